@@ -1,0 +1,1 @@
+"""Subcommand groups of the command line; each module has ``register(subparsers)``."""

@@ -1,0 +1,225 @@
+"""`diagnose kb ...`: the trainer's commands (lint, show, graph, schema, test, analyze, new)."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from importlib import import_module
+from typing import Any
+
+
+def register(sub: Any) -> None:
+    kb = sub.add_parser("kb", help="work on knowledge packs (lint, show, graph, schema, test, ...)",
+                        description="Commands for trainers who write and maintain knowledge packs.")
+    ks = kb.add_subparsers(dest="kb_command", metavar="KB_COMMAND", required=True)
+
+    p = ks.add_parser("lint", help="check packs for errors; exit 1 on errors",
+                      description="Check packs: schema, references, fault tree, effects, units. "
+                      "Exit 0 when clean, 1 on errors (and on warnings with --strict).")
+    p.add_argument("packs_", nargs="+", metavar="PACK", help="pack id or folder")
+    p.add_argument("--strict", action="store_true", help="warnings fail too")
+    p.add_argument("--analysis", action="store_true",
+                   help="add warnings from the knowledge analysis (ambiguity groups, causes no "
+                   "check detects)")
+    p.set_defaults(handler=_lint)
+
+    p = ks.add_parser("show", help="summary of a pack and its fault trees")
+    p.add_argument("pack", metavar="PACK")
+    p.add_argument("--json", action="store_true", help="one JSON object with the counts and ids")
+    p.set_defaults(handler=_show)
+
+    p = ks.add_parser("graph", help="export the compiled graph")
+    p.add_argument("pack", metavar="PACK")
+    p.add_argument("--format", choices=("dot", "mermaid", "graphml", "json"), default="dot")
+    p.add_argument("-o", "--output", metavar="FILE", help="write to FILE instead of the screen")
+    p.set_defaults(handler=_graph)
+
+    p = ks.add_parser("schema", help="print the JSON Schema of pack files (for your editor)")
+    p.add_argument("-o", "--output", metavar="FILE")
+    p.set_defaults(handler=_schema)
+
+    p = ks.add_parser("test", help="run the knowledge test cases stored in a pack")
+    p.add_argument("pack", metavar="PACK")
+    p.add_argument("--json", action="store_true")
+    p.set_defaults(handler=_test)
+
+    p = ks.add_parser("list", help="the packs on the search path")
+    p.set_defaults(handler=_list)
+
+    try:
+        kb_quality = import_module("diagnose.commands.kb_quality")
+    except ModuleNotFoundError as exc:
+        if exc.name != "diagnose.commands.kb_quality":
+            raise
+    else:
+        kb_quality.add_analyze_parser(ks)
+        kb_quality.add_new_parser(ks)
+
+
+def _console() -> Any:
+    from rich.console import Console
+
+    return Console()
+
+
+def _learned(args: argparse.Namespace, pack: str) -> Any:
+    """The learned-priors overlay for ``pack`` unless --no-learned (journal layer, if present)."""
+    if getattr(args, "no_learned", False):
+        return None
+    try:
+        from diagnose.journal.learn import overlay_for
+    except ModuleNotFoundError:
+        return None
+    return overlay_for(pack, getattr(args, "journal", None))
+
+
+def load(args: argparse.Namespace, ref: str) -> Any:
+    """Load pack ``ref`` as the command line asks (search folders, learned overlay)."""
+    from diagnose.kb.loader import load_model
+    from diagnose.kb.locate import find_pack
+
+    learned = None
+    try:
+        from diagnose.kb.loader import read_pack
+
+        src, _ = read_pack(find_pack(ref, args.packs))
+        learned = _learned(args, src.id)
+    except Exception:  # the loader reports real problems below
+        learned = None
+    return load_model(ref, search=args.packs, learned=learned.priors if learned else None)
+
+
+def _lint(args: argparse.Namespace) -> int:
+    from diagnose.kb.lint import lint_paths
+
+    extra = None
+    if args.analysis:
+        from diagnose.reasoning.testability import analysis_problems
+
+        extra = analysis_problems
+    results = lint_paths(args.packs_, search=args.packs, extra=extra)
+    out = sys.stdout
+    failed = False
+    for res in results:
+        for prob in res.problems:
+            print(prob, file=out)
+        verdict = "ok" if res.ok(args.strict) else "FAILED"
+        print(f"{res.ref}: {len(res.errors)} error(s), {len(res.warnings)} warning(s): {verdict}",
+              file=out)
+        failed |= not res.ok(args.strict)
+    return 1 if failed else 0
+
+
+def summary(model: Any) -> dict[str, Any]:
+    """The numbers and ids of a pack, as `kb show --json` prints them."""
+    measurements = [c for c in model.checks.values() if c.measurement]
+    return {
+        "pack": model.id, "title": model.title, "version": model.version,
+        "builds_on": list(model.packs[:-1]), "content_hash": model.content_hash,
+        "path": model.path,
+        "complaints": len(model.complaints), "causes": len(model.causes),
+        "checks": len(model.checks), "measurements": len(measurements),
+        "repairs": len(model.repairs), "cautions": len(model.cautions),
+        "parameters": len(model.parameters), "events": len(model.events),
+        "tests": len(model.cases),
+        "phone_checks": sum(1 for c in model.checks.values() if c.where == "phone"),
+        "complaint_ids": list(model.complaints), "cause_ids": list(model.causes),
+        "check_ids": list(model.checks), "repair_ids": list(model.repairs),
+    }
+
+
+def _show(args: argparse.Namespace) -> int:
+    model = load(args, args.pack)
+    data = summary(model)
+    learned = _learned(args, model.id)
+    data["learned_priors"] = str(learned.path) if learned else None
+    if args.json:
+        print(json.dumps(data, indent=2))
+        return 0
+    from rich.table import Table
+    from rich.tree import Tree
+
+    con = _console()
+    con.print(f"[bold]{model.title}[/] ({model.id} {model.version}, hash {model.content_hash})")
+    if len(model.packs) > 1:
+        con.print(f"builds on: {', '.join(model.packs[:-1])}")
+    if learned:
+        con.print(f"[yellow]learned priors in use:[/] {learned.path} "
+                  f"({learned.sessions} closed session(s)); --no-learned ignores them")
+    t = Table(show_header=False, box=None)
+    for key in ("complaints", "causes", "checks", "measurements", "repairs", "cautions",
+                "parameters", "tests"):
+        t.add_row(key, str(data[key]))
+    con.print(t)
+    for comp in model.complaints.values():
+        tree = Tree(f"[bold]{comp.title}[/] [dim]{comp.id} ({comp.gate.kind})[/]")
+        _grow(tree, comp.gate, model)
+        con.print(tree)
+    return 0
+
+
+def _grow(tree: Any, gate: Any, model: Any) -> None:
+    for x in gate.inputs:
+        if x in model.causes:
+            c = model.causes[x]
+            tree.add(f"{c.title} [dim]{c.id}, prior {c.prior:g}[/]")
+        elif x in model.events:
+            ev = model.events[x]
+            label = ev.kind if ev.kind != "k_of_n" else f"{ev.k} of {len(ev.inputs)}"
+            _grow(tree.add(f"{ev.title} [dim]{ev.id} ({label})[/]"), ev, model)
+
+
+def _write(text: str, output: str | None) -> None:
+    if output:
+        from diagnose.errors import InputError
+
+        try:
+            with open(output, "w", encoding="utf-8") as fh:
+                fh.write(text)
+        except OSError as exc:
+            raise InputError("--output", f"cannot write {output}: {exc.strerror}") from None
+    else:
+        sys.stdout.write(text)
+
+
+def _graph(args: argparse.Namespace) -> int:
+    from diagnose.kb.export import export
+
+    model = load(args, args.pack)
+    _write(export(model.graph, args.format), args.output)
+    return 0
+
+
+def _schema(args: argparse.Namespace) -> int:
+    from diagnose.kb.schema import pack_schema
+
+    _write(json.dumps(pack_schema(), indent=2) + "\n", args.output)
+    return 0
+
+
+def _test(args: argparse.Namespace) -> int:
+    from diagnose.reasoning.cases import run_cases
+
+    model = load(args, args.pack)
+    results = run_cases(model)
+    if args.json:
+        print(json.dumps([r.to_dict() for r in results], indent=2))
+    else:
+        con = _console()
+        for r in results:
+            con.print(r)
+        passed = sum(1 for r in results if r.passed)
+        con.print(f"{model.id}: {passed} of {len(results)} case(s) passed")
+    if not results:
+        print(f"diagnose: pack {model.id} has no test cases", file=sys.stderr)
+        return 1
+    return 0 if all(r.passed for r in results) else 1
+
+
+def _list(args: argparse.Namespace) -> int:
+    from diagnose.kb.locate import available
+
+    for pid, folder in available(args.packs).items():
+        print(f"{pid}\t{folder}")
+    return 0

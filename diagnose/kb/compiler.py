@@ -1,0 +1,712 @@
+"""Compile pack documents into a validated ``Model`` and its networkx graph.
+
+Every problem is collected (not only the first), each tied to the file, line
+and column where the trainer wrote the thing, with the closest existing id
+suggested for an unknown reference.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+from dataclasses import dataclass, field
+from typing import Any, Iterable, Mapping
+
+from diagnose.errors import InputError, Problem, Source
+from diagnose.kb.model import (
+    UNKNOWN_CAUSE,
+    Case,
+    Caution,
+    Cause,
+    Check,
+    Complaint,
+    Gate,
+    Measurement,
+    Model,
+    Parameter,
+    Repair,
+    Step,
+)
+from diagnose.kb.schema import SECTIONS, pack_schema
+from diagnose.kb.yamlpos import Document, Path
+
+SUM_TOLERANCE = 0.001
+_NOUN = {
+    "cautions": "caution", "parameters": "parameter", "complaints": "complaint",
+    "events": "event", "causes": "cause", "checks": "check", "repairs": "repair",
+    "tests": "test case",
+}
+
+
+@dataclass
+class _Item:
+    section: str
+    id: str
+    data: dict[str, Any]
+    doc: Document
+    path: Path
+    pack: str
+    valid: bool  # passed the schema
+
+    def at(self, *sub: Any) -> Source:
+        return self.doc.where(self.path + sub)
+
+
+@dataclass
+class _Ctx:
+    problems: list[Problem] = field(default_factory=list)
+    items: dict[str, dict[str, _Item]] = field(default_factory=lambda: {s: {} for s in SECTIONS})
+
+    def error(self, msg: str, src: Source | None, code: str) -> None:
+        self.problems.append(Problem("error", msg, src, code))
+
+    def warn(self, msg: str, src: Source | None, code: str) -> None:
+        self.problems.append(Problem("warning", msg, src, code))
+
+    def ids(self, *sections: str) -> list[str]:
+        out: list[str] = []
+        for s in sections:
+            out += list(self.items[s])
+        return out
+
+    def ref(self, value: Any, sections: tuple[str, ...], src: Source, what: str,
+            extra: Iterable[str] = ()) -> bool:
+        """True when ``value`` names an entity of ``sections``; else an error with a suggestion."""
+        pool = self.ids(*sections) + list(extra)
+        if value in pool:
+            return True
+        close = difflib.get_close_matches(str(value), pool, n=1, cutoff=0.6)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        self.error(f"{what} {value!r} is not a known {' or '.join(_NOUN[s] for s in sections)}"
+                   f"{hint}", src, "unknown-ref")
+        return False
+
+
+# ---------------------------------------------------------------------------------------------
+# schema
+
+
+def _schema_problems(doc: Document, is_manifest: bool, ctx: _Ctx) -> set[Path]:
+    """Validate one document against the JSON Schema; return the paths of invalid items."""
+    import jsonschema
+
+    validator = jsonschema.Draft202012Validator(pack_schema())
+    bad: set[Path] = set()
+    for err in sorted(validator.iter_errors(doc.data), key=lambda e: list(map(str, e.path))):
+        path = tuple(err.absolute_path)
+        if len(path) >= 2 and path[0] in SECTIONS:
+            bad.add(path[:2])
+        at = path
+        if err.validator == "additionalProperties" and isinstance(err.instance, dict):
+            extra = [k for k in err.instance if k not in err.schema.get("properties", {})]
+            at = path + (extra[0],) if extra else path
+        ctx.error(_schema_message(err, path), doc.where(at), "schema")
+    if not is_manifest:
+        for key in ("pack", "builds_on", "version"):
+            if isinstance(doc.data, dict) and key in doc.data:
+                ctx.error(f"`{key}` belongs in pack.yaml only", doc.where((key,)), "schema")
+    return bad
+
+
+def _schema_message(err: Any, path: Path) -> str:
+    where = _describe_path(path)
+    if err.validator == "required":
+        missing = err.message.split("'")[1] if "'" in err.message else err.message
+        return f"{where}: missing field `{missing}`"
+    if err.validator == "additionalProperties":
+        extra = [p for p in err.instance if p not in err.schema.get("properties", {})]
+        allowed = list(err.schema.get("properties", {}))
+        parts = []
+        for name in extra:
+            close = difflib.get_close_matches(str(name), allowed, n=1)
+            parts.append(f"`{name}`" + (f" (did you mean `{close[0]}`?)" if close else ""))
+        return f"{where}: unknown field {', '.join(parts)}"
+    if err.validator == "oneOf" and isinstance(err.instance, dict) and "check" in str(err.schema):
+        return f"{where}: a step is either {{check, answer}} or {{repair, cured}}"
+    return f"{where}: {err.message}"
+
+
+def _describe_path(path: Path) -> str:
+    if not path:
+        return "file"
+    head = path[0]
+    if head in SECTIONS and len(path) >= 2 and isinstance(path[1], int):
+        rest = ".".join(str(p) for p in path[2:])
+        return f"{_NOUN[head]} #{path[1] + 1}" + (f" `{rest}`" if rest else "")
+    return "`" + ".".join(str(p) for p in path) + "`"
+
+
+# ---------------------------------------------------------------------------------------------
+# collection
+
+
+def _collect(sources: list[Any], ctx: _Ctx) -> None:
+    for src in sources:
+        for n, doc in enumerate(src.documents):
+            bad = _schema_problems(doc, n == 0, ctx)
+            for section in SECTIONS:
+                entries = doc.data.get(section) if isinstance(doc.data, dict) else None
+                if not isinstance(entries, list):
+                    continue
+                for i, raw in enumerate(entries):
+                    if not isinstance(raw, dict) or not isinstance(raw.get("id"), str):
+                        continue
+                    item = _Item(section, raw["id"], raw, doc, (section, i), src.id,
+                                 (section, i) not in bad)
+                    _register(item, ctx)
+
+
+def _register(item: _Item, ctx: _Ctx) -> None:
+    for section, pool in ctx.items.items():
+        first = pool.get(item.id)
+        if first is None:
+            continue
+        if section == item.section or {section, item.section} & {"causes", "events"} == {
+                section, item.section}:
+            ctx.error(f"duplicate id {item.id!r}: already defined as a {_NOUN[section]} at "
+                      f"{first.at('id')}", item.at("id"), "duplicate-id")
+            return
+    ctx.items[item.section][item.id] = item
+
+
+# ---------------------------------------------------------------------------------------------
+# entities
+
+
+def _units():
+    from diagnose.physics import units
+
+    return units
+
+
+def _parameter(it: _Item, ctx: _Ctx) -> Parameter:
+    d = it.data
+    unit = str(d.get("unit", "") or "")
+    lo, hi = d.get("min"), d.get("max")
+    choices = tuple(str(c) for c in d.get("choices", ()) or ())
+    if unit and it.valid:
+        try:
+            ok = _units().fits(unit, unit)
+        except InputError:
+            ok = False
+        if not ok:
+            ctx.error(f"parameter {it.id!r}: unknown unit {unit!r}", it.at("unit"), "unit")
+    if lo is not None and hi is not None and lo > hi:
+        ctx.error(f"parameter {it.id!r}: min {lo} is above max {hi}", it.at("min"), "range")
+    default = d.get("default")
+    if default is not None and it.valid:
+        if choices:
+            if str(default) not in choices:
+                ctx.error(f"parameter {it.id!r}: default {default!r} is not one of {list(choices)}",
+                          it.at("default"), "range")
+        elif unit:
+            try:
+                v = _units().parse_quantity(default, unit, it.id)
+                if (lo is not None and v < lo) or (hi is not None and v > hi):
+                    ctx.error(f"parameter {it.id!r}: default {default} is outside {lo}..{hi} {unit}",
+                              it.at("default"), "range")
+            except InputError as exc:
+                ctx.error(f"parameter {it.id!r}: default: {exc.message}", it.at("default"), "unit")
+    return Parameter(
+        id=it.id, prompt=str(d.get("prompt", it.id)), unit=unit,
+        min=float(lo) if isinstance(lo, (int, float)) else None,
+        max=float(hi) if isinstance(hi, (int, float)) else None,
+        default=None if default is None else str(default),
+        unknown_allowed=bool(d.get("unknown", False)), choices=choices, source=it.at(),
+    )
+
+
+def _gate(it: _Item, ctx: _Ctx) -> Gate:
+    d = it.data
+    kind = d.get("gate", "or")
+    inputs = tuple(x for x in d.get("inputs", ()) if isinstance(x, str))
+    for j, x in enumerate(inputs):
+        ctx.ref(x, ("causes", "events"), it.at("inputs", j), f"{_NOUN[it.section]} {it.id!r} input")
+    k = int(d.get("k", 1) or 1)
+    if kind == "k_of_n":
+        if "k" not in d:
+            ctx.error(f"{_NOUN[it.section]} {it.id!r}: a k_of_n gate needs `k`", it.at("gate"),
+                      "gate")
+        elif not 1 <= k <= len(inputs):
+            ctx.error(f"{_NOUN[it.section]} {it.id!r}: k = {k} but the gate has {len(inputs)} "
+                      "inputs", it.at("k"), "gate")
+    elif kind == "and":
+        k = len(inputs)
+    return Gate(it.id, str(d.get("title", it.id)), kind if kind in ("or", "and", "k_of_n") else "or",
+                inputs, k, it.at())
+
+
+def _distribution(row: Any, outcomes: tuple[str, ...], it: _Item, sub: Path, label: str,
+                  ctx: _Ctx, warn_extremes: bool = True) -> dict[str, float]:
+    """Complete one effects row over ``outcomes``: omitted outcomes share the rest evenly."""
+    if not isinstance(row, Mapping):
+        return {o: 1.0 / len(outcomes) for o in outcomes}
+    given: dict[str, float] = {}
+    for o, p in row.items():
+        src = it.at(*sub, o)
+        if o not in outcomes:
+            close = difflib.get_close_matches(str(o), outcomes, n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            ctx.error(f"check {it.id!r} {label}: {o!r} is not an outcome of this check "
+                      f"(outcomes: {', '.join(outcomes)}){hint}", src, "unknown-ref")
+            continue
+        if not isinstance(p, (int, float)) or isinstance(p, bool) or not 0.0 <= p <= 1.0:
+            ctx.error(f"check {it.id!r} {label}: probability {p!r} of {o!r} is outside [0, 1]", src,
+                      "probability")
+            continue
+        given[o] = float(p)
+    total = sum(given.values())
+    rest = [o for o in outcomes if o not in given]
+    src = it.at(*sub)
+    if total > 1.0 + SUM_TOLERANCE:
+        ctx.error(f"check {it.id!r} {label}: probabilities sum to {total:.3f}, more than 1", src,
+                  "effects-sum")
+    elif not rest and abs(total - 1.0) > SUM_TOLERANCE:
+        ctx.error(f"check {it.id!r} {label}: probabilities sum to {total:.3f}, not 1", src,
+                  "effects-sum")
+    share = max(0.0, 1.0 - total) / len(rest) if rest else 0.0
+    full = {o: given.get(o, share) for o in outcomes}
+    if not rest and total > 0:
+        full = {o: p / total for o, p in full.items()}
+    if warn_extremes:
+        zero = [o for o, p in full.items() if p <= 0.0]
+        if zero and total <= 1.0 + SUM_TOLERANCE:
+            ctx.warn(f"check {it.id!r} {label}: outcome {zero[0]!r} gets probability 0, so one "
+                     "slip of the meter would rule this out for good; use 0.01", src,
+                     "zero-probability")
+    return full
+
+
+def _outcomes(it: _Item, spec: Any, ctx: _Ctx) -> tuple[tuple[str, ...], dict[str, str]]:
+    raw = it.data.get("outcomes")
+    titles: dict[str, str] = {}
+    if isinstance(raw, Mapping):
+        outcomes = tuple(str(k) for k in raw)
+        titles = {str(k): str(v) for k, v in raw.items()}
+    elif isinstance(raw, list):
+        outcomes = tuple(str(k) for k in raw)
+    elif spec is not None:
+        outcomes = tuple(spec.verdicts)
+    elif it.data.get("preparation"):
+        outcomes = ("done",)
+    else:
+        ctx.error(f"check {it.id!r}: missing field `outcomes`", it.at(), "schema")
+        outcomes = ("yes", "no")
+    if spec is not None and raw is not None:
+        missing = [v for v in spec.verdicts if v not in outcomes]
+        extra = [o for o in outcomes if o not in spec.verdicts]
+        if missing:
+            ctx.error(f"check {it.id!r}: outcomes must cover every verdict of evaluator "
+                      f"{spec.name!r}; missing {', '.join(missing)}", it.at("outcomes"), "evaluator")
+        if extra:
+            ctx.error(f"check {it.id!r}: {', '.join(extra)} is not a verdict of evaluator "
+                      f"{spec.name!r} (verdicts: {', '.join(spec.verdicts)})", it.at("outcomes"),
+                      "evaluator")
+    return outcomes, titles
+
+
+def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple[Any, Any]:
+    from diagnose.physics.registry import EVALUATORS
+
+    m = it.data.get("measure")
+    if not isinstance(m, Mapping):
+        return None, None
+    name = m.get("evaluator")
+    spec = EVALUATORS.get(name)
+    if spec is None:
+        close = difflib.get_close_matches(str(name), list(EVALUATORS), n=1)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        ctx.error(f"check {it.id!r}: unknown evaluator {name!r}{hint}", it.at("measure", "evaluator"),
+                  "evaluator")
+        return None, None
+    reading = m.get("reading", spec.reading)
+    rspec = spec.input(reading) if reading else None
+    if rspec is None:
+        ctx.error(f"check {it.id!r}: evaluator {name!r} has no input {reading!r} for the reading"
+                  if reading else f"check {it.id!r}: evaluator {name!r} takes no reading; "
+                  "it computes from given values only", it.at("measure"), "evaluator")
+        return None, spec
+    unit = str(m.get("unit", rspec.unit))
+    units = _units()
+    if "unit" in m:
+        try:
+            if not units.fits(unit, rspec.unit):
+                ctx.error(f"check {it.id!r}: unit {unit!r} does not fit the reading {reading!r} "
+                          f"(expects {rspec.unit or 'a plain number'})", it.at("measure", "unit"),
+                          "unit")
+        except InputError as exc:
+            ctx.error(f"check {it.id!r}: {exc.message}", it.at("measure", "unit"), "unit")
+    inputs = dict(m.get("inputs") or {})
+    for key, value in inputs.items():
+        src = it.at("measure", "inputs", key)
+        ispec = spec.input(key)
+        if ispec is None:
+            names = [i.name for i in spec.inputs]
+            close = difflib.get_close_matches(str(key), names, n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            ctx.error(f"check {it.id!r}: evaluator {name!r} has no input {key!r}{hint}", src,
+                      "evaluator")
+            continue
+        if key == reading:
+            ctx.error(f"check {it.id!r}: input {key!r} is the reading itself", src, "evaluator")
+            continue
+        _check_input_value(it, key, value, ispec, params, src, ctx)
+    for ispec in spec.inputs:
+        if ispec.required and ispec.name != reading and ispec.default is None \
+                and ispec.name not in inputs:
+            ctx.error(f"check {it.id!r}: evaluator {name!r} needs input {ispec.name!r} "
+                      f"({ispec.help})", it.at("measure"), "evaluator")
+    accuracy = float(m.get("accuracy", 0.0) or 0.0)
+    return Measurement(str(name), str(reading), unit, inputs, accuracy, rspec.many), spec
+
+
+def _check_input_value(it: _Item, key: str, value: Any, ispec: Any,
+                       params: Mapping[str, Parameter], src: Source, ctx: _Ctx) -> None:
+    units = _units()
+    if isinstance(value, str) and value.startswith("$"):
+        pid = value[1:]
+        if not ctx.ref(pid, ("parameters",), src, f"check {it.id!r} input {key!r}: parameter"):
+            return
+        param = params.get(pid)
+        if param is None:
+            return
+        if ispec.kind == "quantity":
+            try:
+                ok = units.fits(param.unit, ispec.unit)
+            except InputError:
+                ok = False
+            if not ok:
+                ctx.error(f"check {it.id!r}: parameter {pid!r} is in {param.unit or 'no unit'}, "
+                          f"which does not fit input {key!r} ({ispec.unit or 'a plain number'})",
+                          src, "unit")
+        elif ispec.kind == "choice":
+            wrong = [c for c in param.choices if c not in ispec.choices]
+            if not param.choices or wrong:
+                ctx.error(f"check {it.id!r}: parameter {pid!r} must offer only "
+                          f"{', '.join(ispec.choices)} for input {key!r}", src, "unit")
+        return
+    try:
+        if ispec.kind == "quantity":
+            units.parse_quantity(value, ispec.unit, key)
+        elif ispec.kind == "choice" and str(value) not in ispec.choices:
+            ctx.error(f"check {it.id!r}: input {key!r} must be one of {', '.join(ispec.choices)}",
+                      src, "evaluator")
+    except InputError as exc:
+        ctx.error(f"check {it.id!r}: input {exc.message}", src, "unit")
+
+
+def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
+    d = it.data
+    measurement, spec = _measurement(it, ctx, params)
+    outcomes, titles = _outcomes(it, spec, ctx)
+    for j, c in enumerate(d.get("cautions", ()) or ()):
+        ctx.ref(c, ("cautions",), it.at("cautions", j), f"check {it.id!r} caution")
+    for j, c in enumerate(d.get("needs", ()) or ()):
+        if c == it.id:
+            ctx.error(f"check {it.id!r} needs itself", it.at("needs", j), "needs")
+        else:
+            ctx.ref(c, ("checks",), it.at("needs", j), f"check {it.id!r} needs")
+    for key, value in (d.get("only_if") or {}).items():
+        if ctx.ref(key, ("parameters",), it.at("only_if", key), f"check {it.id!r} only_if"):
+            param = params.get(key)
+            if param is not None and param.choices and str(value) not in param.choices:
+                ctx.error(f"check {it.id!r} only_if: {value!r} is not a choice of {key!r} "
+                          f"({', '.join(param.choices)})", it.at("only_if", key), "unknown-ref")
+    where = d.get("where", "site")
+    if where == "phone" and not d.get("caller"):
+        ctx.error(f"check {it.id!r} is marked safe for a caller but has no `caller` wording",
+                  it.at("where"), "caller-wording")
+    effects: dict[str, dict[str, float]] = {}
+    for cause, row in (d.get("effects") or {}).items():
+        if ctx.ref(cause, ("causes",), it.at("effects", cause), f"check {it.id!r} effect on"):
+            effects[cause] = _distribution(row, outcomes, it, ("effects", cause),
+                                           f"effects of {cause!r}", ctx)
+    if "normal" in d:
+        normal = _distribution(d["normal"], outcomes, it, ("normal",), "normal", ctx)
+    elif d.get("preparation"):
+        normal = {o: (1.0 if i == 0 else 0.0) for i, o in enumerate(outcomes)}
+    else:
+        ctx.error(f"check {it.id!r}: missing field `normal` (the outcomes when none of the listed "
+                  "causes is present)", it.at(), "schema")
+        normal = {o: 1.0 / len(outcomes) for o in outcomes}
+    unknown = _distribution(d.get("unknown"), outcomes, it, ("unknown",), "unknown", ctx,
+                            warn_extremes=False) if "unknown" in d \
+        else {o: 1.0 / len(outcomes) for o in outcomes}
+    return Check(
+        id=it.id, title=str(d.get("title", it.id)), minutes=float(d.get("minutes", 1) or 1),
+        outcomes=outcomes, effects=effects, normal=normal, unknown=unknown, where=where,
+        tools=tuple(str(t) for t in d.get("tools", ()) or ()),
+        cautions=tuple(d.get("cautions", ()) or ()), ask=str(d.get("ask", "")),
+        caller=str(d.get("caller", "") or ""), needs=tuple(d.get("needs", ()) or ()),
+        measurement=measurement, outcome_titles=titles, source=it.at(),
+        only_if={str(k): str(v) for k, v in (d.get("only_if") or {}).items()},
+        preparation=bool(d.get("preparation", False)),
+    )
+
+
+def _repair(it: _Item, ctx: _Ctx) -> Repair:
+    d = it.data
+    for j, c in enumerate(d.get("fixes", ()) or ()):
+        ctx.ref(c, ("causes",), it.at("fixes", j), f"repair {it.id!r} fixes")
+    for j, c in enumerate(d.get("cautions", ()) or ()):
+        ctx.ref(c, ("cautions",), it.at("cautions", j), f"repair {it.id!r} caution")
+    for j, c in enumerate(d.get("needs", ()) or ()):
+        ctx.ref(c, ("checks",), it.at("needs", j), f"repair {it.id!r} needs")
+    confirm = d.get("confirm")
+    if confirm is not None:
+        ctx.ref(confirm, ("checks",), it.at("confirm"), f"repair {it.id!r} confirm")
+    return Repair(
+        id=it.id, title=str(d.get("title", it.id)), minutes=float(d.get("minutes", 1) or 1),
+        fixes=tuple(d.get("fixes", ()) or ()), parts=tuple(str(p) for p in d.get("parts", ()) or ()),
+        success=float(d.get("success", 0.95)), cautions=tuple(d.get("cautions", ()) or ()),
+        confirm=confirm, needs=tuple(d.get("needs", ()) or ()), ask=str(d.get("ask", "") or ""),
+        where=str(d.get("where", "site")), source=it.at(),
+    )
+
+
+def _case(it: _Item, ctx: _Ctx, checks: Mapping[str, Check]) -> Case:
+    d = it.data
+    for j, c in enumerate(d.get("complaints", ()) or ()):
+        ctx.ref(c, ("complaints",), it.at("complaints", j), f"test {it.id!r} complaint")
+    for key in (d.get("nameplate") or {}):
+        ctx.ref(key, ("parameters",), it.at("nameplate", key), f"test {it.id!r} nameplate")
+    for j, c in enumerate(d.get("expect_top", ()) or ()):
+        ctx.ref(c, ("causes",), it.at("expect_top", j), f"test {it.id!r} expect_top",
+                extra=(UNKNOWN_CAUSE,))
+    steps: list[Step] = []
+    for j, s in enumerate(d.get("steps", ()) or ()):
+        if not isinstance(s, Mapping):
+            continue
+        src = it.at("steps", j)
+        if "check" in s:
+            cid = s["check"]
+            if ctx.ref(cid, ("checks",), it.at("steps", j, "check"), f"test {it.id!r} step"):
+                chk = checks.get(cid)
+                ans = s.get("answer")
+                if chk is not None and chk.measurement is None and ans is not None \
+                        and str(ans) not in chk.outcomes and str(ans) != "unsure":
+                    close = difflib.get_close_matches(str(ans), chk.outcomes, n=1)
+                    hint = f"; did you mean {close[0]!r}?" if close else ""
+                    ctx.error(f"test {it.id!r}: {ans!r} is not an outcome of check {cid!r}{hint}",
+                              it.at("steps", j, "answer"), "unknown-ref")
+                if ans is None and not s.get("skip"):
+                    ctx.error(f"test {it.id!r}: step on {cid!r} needs `answer` or `skip: true`",
+                              src, "schema")
+            steps.append(Step(check=cid, answer=s.get("answer"), skip=bool(s.get("skip", False)),
+                              source=src))
+        elif "repair" in s:
+            ctx.ref(s["repair"], ("repairs",), it.at("steps", j, "repair"), f"test {it.id!r} step")
+            steps.append(Step(repair=s["repair"], cured=bool(s.get("cured")), source=src))
+    return Case(
+        id=it.id, complaints=tuple(d.get("complaints", ()) or ()), steps=tuple(steps),
+        expect_top=tuple(d.get("expect_top", ()) or ()),
+        nameplate={str(k): v for k, v in (d.get("nameplate") or {}).items()},
+        mode=str(d.get("mode", "site")), max_faults=int(d.get("max_faults", 1)),
+        title=str(d.get("title", "") or ""), source=it.at(),
+    )
+
+
+# ---------------------------------------------------------------------------------------------
+# whole-pack checks
+
+
+def _tree_checks(model: Model, ctx: _Ctx) -> bool:
+    """Cycles, causes reaching no complaint, complaints with no cause. False on a cycle."""
+    import networkx as nx
+
+    g = nx.DiGraph()
+    for gate in list(model.events.values()) + [c.gate for c in model.complaints.values()]:
+        for x in gate.inputs:
+            g.add_edge(x, gate.id)
+    try:
+        cycle = nx.find_cycle(g)
+    except nx.NetworkXNoCycle:
+        cycle = None
+    if cycle:
+        names = " -> ".join([cycle[0][0]] + [v for _, v in cycle])
+        first = model.events.get(cycle[0][1]) or model.complaints.get(cycle[0][1])
+        src = first.source if first else None
+        ctx.error(f"the fault tree has a cycle: {names}", src, "cycle")
+        return False
+    reached: set[str] = set()
+    for comp in model.complaints.values():
+        causes = model.tree_causes(comp.id)
+        if not causes:
+            ctx.error(f"complaint {comp.id!r} has no cause below it", comp.source, "no-cause")
+        reached.update(causes)
+    for cause in model.causes.values():
+        if cause.id not in reached:
+            ctx.error(f"cause {cause.id!r} reaches no complaint: put it under a complaint's or "
+                      "event's `inputs`", cause.source, "unreachable-cause")
+    for ev in model.events.values():
+        if not nx.has_path(g, ev.id, ev.id) and not any(
+                nx.has_path(g, ev.id, c) for c in model.complaints if c in g):
+            ctx.warn(f"event {ev.id!r} reaches no complaint", ev.source, "unreachable-event")
+    return True
+
+
+def _usage_checks(model: Model, ctx: _Ctx) -> None:
+    fixed = {c for r in model.repairs.values() for c in r.fixes}
+    for cause in model.causes.values():
+        if cause.id not in fixed:
+            ctx.error(f"cause {cause.id!r} has no repair that fixes it", cause.source, "no-repair")
+    for chk in model.checks.values():
+        if not chk.effects and not chk.preparation:
+            ctx.warn(f"check {chk.id!r} observes no cause (give it `effects`, or mark it "
+                     "`preparation: true`)", chk.source, "observes-nothing")
+    used = {c for x in list(model.checks.values()) + list(model.repairs.values()) for c in x.cautions}
+    for caution in model.cautions.values():
+        if caution.id not in used:
+            ctx.warn(f"caution {caution.id!r} is not used by any check or repair", caution.source,
+                     "unused-caution")
+    import networkx as nx
+
+    needs = nx.DiGraph([(c.id, n) for c in model.checks.values() for n in c.needs])
+    try:
+        cycle = nx.find_cycle(needs)
+        ctx.error("checks need each other in a circle: "
+                  + " -> ".join([cycle[0][0]] + [v for _, v in cycle]),
+                  model.checks[cycle[0][0]].source, "needs")
+    except nx.NetworkXNoCycle:
+        pass
+
+
+# ---------------------------------------------------------------------------------------------
+# graph
+
+
+def build_graph(model: Model) -> Any:
+    """The knowledge as a networkx DiGraph (see DEVELOPERS.md, "The graph")."""
+    import networkx as nx
+
+    g = nx.DiGraph(pack=model.id, title=model.title, version=model.version)
+
+    def node(kind: str, ent: Any, **attrs: Any) -> str:
+        name = f"{kind}:{ent.id}"
+        src = getattr(ent, "source", None)
+        g.add_node(name, kind=kind, id=ent.id, title=getattr(ent, "title", ent.id),
+                   file=src.file if src else "", line=src.line if src else 0, **attrs)
+        return name
+
+    for p in model.parameters.values():
+        node("parameter", p, unit=p.unit)
+    for c in model.cautions.values():
+        node("caution", c, level=c.level, text=c.text)
+    for c in model.causes.values():
+        node("cause", c, prior=c.prior, pack=c.pack)
+    for e in model.events.values():
+        node("event", e, gate=e.kind, k=e.k)
+    for c in model.complaints.values():
+        node("complaint", c, gate=c.gate.kind, k=c.gate.k)
+    for c in model.checks.values():
+        node("check", c, minutes=c.minutes, where=c.where, measurement=bool(c.measurement),
+             evaluator=c.measurement.evaluator if c.measurement else "",
+             outcomes=",".join(c.outcomes))
+    for r in model.repairs.values():
+        node("repair", r, minutes=r.minutes, success=r.success, parts="; ".join(r.parts))
+    for gate in list(model.events.values()) + [c.gate for c in model.complaints.values()]:
+        kind = "complaint" if gate.id in model.complaints else "event"
+        for x in gate.inputs:
+            src = "cause" if x in model.causes else "event"
+            g.add_edge(f"{src}:{x}", f"{kind}:{gate.id}", kind="feeds")
+    for c in model.checks.values():
+        for cause in c.effects:
+            g.add_edge(f"check:{c.id}", f"cause:{cause}", kind="observes")
+        for n in c.needs:
+            g.add_edge(f"check:{c.id}", f"check:{n}", kind="needs")
+        for w in c.cautions:
+            g.add_edge(f"check:{c.id}", f"caution:{w}", kind="warns")
+        if c.measurement:
+            for v in c.measurement.inputs.values():
+                if isinstance(v, str) and v.startswith("$"):
+                    g.add_edge(f"check:{c.id}", f"parameter:{v[1:]}", kind="uses")
+    for r in model.repairs.values():
+        for cause in r.fixes:
+            g.add_edge(f"repair:{r.id}", f"cause:{cause}", kind="fixes")
+        for w in r.cautions:
+            g.add_edge(f"repair:{r.id}", f"caution:{w}", kind="warns")
+        for n in r.needs:
+            g.add_edge(f"repair:{r.id}", f"check:{n}", kind="needs")
+        if r.confirm:
+            g.add_edge(f"repair:{r.id}", f"check:{r.confirm}", kind="confirmed_by")
+    return g
+
+
+# ---------------------------------------------------------------------------------------------
+# entry point
+
+
+def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None = None,
+                    with_graph: bool = True) -> tuple[Model | None, list[Problem]]:
+    """Compile the documents of a pack chain (base packs first) into a Model.
+
+    Returns the model (``None`` when any error was found) and every problem.
+    ``learned`` replaces the priors of the causes it names (an overlay).
+    """
+    ctx = _Ctx()
+    _collect(sources, ctx)
+    it = ctx.items
+    top = sources[-1]
+    manifest = top.manifest
+
+    cautions = {i: Caution(i, str(x.data.get("level", "NOTICE")), str(x.data.get("text", "")),
+                           x.at()) for i, x in it["cautions"].items()}
+    params = {i: _parameter(x, ctx) for i, x in it["parameters"].items()}
+    causes = {}
+    for i, x in it["causes"].items():
+        prior = x.data.get("prior", 1.0)
+        prior = float(prior) if isinstance(prior, (int, float)) and not isinstance(prior, bool) \
+            else 1.0
+        if learned and i in learned:
+            prior = float(learned[i])
+        causes[i] = Cause(i, str(x.data.get("title", i)), prior,
+                          str(x.data.get("description", "") or ""), x.pack, x.at())
+    events = {i: _gate(x, ctx) for i, x in it["events"].items()}
+    complaints = {i: Complaint(i, str(x.data.get("title", i)), _gate(x, ctx),
+                               str(x.data.get("caller", "") or ""),
+                               str(x.data.get("description", "") or ""), x.at())
+                  for i, x in it["complaints"].items()}
+    checks = {i: _check(x, ctx, params) for i, x in it["checks"].items()}
+    repairs = {i: _repair(x, ctx) for i, x in it["repairs"].items()}
+    cases = {i: _case(x, ctx, checks) for i, x in it["tests"].items() if x.pack == top.id}
+
+    digest = hashlib.sha256()
+    for src in sources:
+        for doc in src.documents:
+            digest.update(getattr(doc, "text_hash", "").encode())
+    version = manifest.get("version", "0")
+    model = Model(
+        id=top.id, title=str(manifest.get("title", top.id)), version=str(version),
+        packs=tuple(s.id for s in sources), notice=str(manifest.get("notice", "") or ""),
+        parameters=params, complaints=complaints, events=events, causes=causes, checks=checks,
+        repairs=repairs, cautions=cautions, cases=cases,
+        unknown_prior=float(manifest.get("unknown_prior", 5.0)),
+        leak=float(manifest.get("leak", 0.01)), content_hash=digest.hexdigest()[:16],
+        path=top.folder,
+    )
+    if not any(p.level == "error" and p.code == "unknown-ref" for p in ctx.problems):
+        if _tree_checks(model, ctx):
+            _usage_checks(model, ctx)
+    if any(p.level == "error" for p in ctx.problems):
+        return None, ctx.problems
+    if with_graph:
+        object.__setattr__(model, "graph", build_graph(model))
+    return model, ctx.problems
+
+
+def compile_pack(files: list[tuple[str, dict[str, Any]]], *, pack_id: str = "inline",
+                 with_graph: bool = True) -> Model:
+    """Compile in-memory pack files (name, data) with no positions: for benchmarks and tests.
+
+    Raises:
+        KnowledgeError: the data has errors.
+    """
+    from diagnose.errors import KnowledgeError
+    from diagnose.kb.loader import PackSource
+
+    src = PackSource(id=pack_id, folder=pack_id,
+                     documents=[Document(name, data) for name, data in files])
+    model, problems = compile_sources([src], with_graph=with_graph)
+    if model is None:
+        raise KnowledgeError([p for p in problems if p.level == "error"])
+    return model

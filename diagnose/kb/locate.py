@@ -1,0 +1,84 @@
+"""Where packs are found: a path, or a pack id on the search path.
+
+The search path is, in order: folders given with ``--packs``, the folders in
+the ``DIAGNOSE_PACKS`` environment variable (separated by ``os.pathsep``),
+then the packs shipped with the program. Inside a search folder a pack is a
+sub-folder holding ``pack.yaml``; it is found by its folder name or by the
+``pack:`` id in its manifest.
+"""
+
+from __future__ import annotations
+
+import difflib
+import os
+from pathlib import Path
+
+from diagnose.errors import InputError
+
+MANIFEST = "pack.yaml"
+ENV = "DIAGNOSE_PACKS"
+DEFAULT_PACK = "spring-applied-brake"
+
+
+def shipped_dir() -> Path:
+    """The folder of the packs shipped with diagnose (installed or in a checkout)."""
+    from importlib.resources import files
+
+    return Path(str(files("diagnose.knowledge")))
+
+
+def search_path(extra: list[str] | None = None) -> list[Path]:
+    dirs = [Path(p).expanduser() for p in (extra or [])]
+    env = os.environ.get(ENV, "")
+    dirs += [Path(p).expanduser() for p in env.split(os.pathsep) if p.strip()]
+    dirs.append(shipped_dir())
+    return dirs
+
+
+def _manifest_id(folder: Path) -> str | None:
+    import yaml
+
+    try:
+        with open(folder / MANIFEST, encoding="utf-8") as fh:
+            head = yaml.safe_load(fh)
+    except (OSError, yaml.YAMLError, UnicodeDecodeError):
+        return None
+    return head.get("pack") if isinstance(head, dict) else None
+
+
+def available(extra: list[str] | None = None) -> dict[str, Path]:
+    """Every pack id on the search path and its folder (earlier folders win)."""
+    found: dict[str, Path] = {}
+    for d in search_path(extra):
+        if not d.is_dir():
+            continue
+        for sub in sorted(d.iterdir()):
+            if (sub / MANIFEST).is_file():
+                pid = _manifest_id(sub) or sub.name
+                found.setdefault(pid, sub)
+    return found
+
+
+def find_pack(ref: str, extra: list[str] | None = None) -> Path:
+    """The folder of pack ``ref`` (a folder path, a path to pack.yaml, or a pack id).
+
+    Raises:
+        InputError: no such pack; the message names the closest known id.
+    """
+    p = Path(ref).expanduser()
+    if p.is_file() and p.name == MANIFEST:
+        return p.parent
+    if p.is_dir():
+        if (p / MANIFEST).is_file():
+            return p
+        raise InputError("pack", f"{ref} is a folder without {MANIFEST}, so it is not a pack")
+    for d in search_path(extra):
+        if (d / ref / MANIFEST).is_file():
+            return d / ref
+    packs = available(extra)
+    if ref in packs:
+        return packs[ref]
+    close = difflib.get_close_matches(ref, list(packs), n=1)
+    hint = f"; did you mean {close[0]!r}?" if close else ""
+    known = ", ".join(sorted(packs)) or "none"
+    raise InputError("pack", f"no pack {ref!r} (known: {known}){hint}")

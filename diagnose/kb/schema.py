@@ -1,0 +1,230 @@
+"""The JSON Schema of a pack's YAML files (one schema for every file of a pack).
+
+``diagnose kb schema`` prints it so that a trainer's editor can validate and
+complete while typing; the loader validates every file against it (with
+jsonschema) before the compiler looks at meaning.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+ID = {"type": "string", "pattern": "^[a-z][a-z0-9_]*$",
+      "description": "lower-case id: letters, digits and underscores, starting with a letter"}
+PACK_ID = {"type": "string", "pattern": "^[a-z][a-z0-9-]*$",
+           "description": "pack id: lower-case letters, digits and hyphens"}
+TEXT = {"type": "string", "minLength": 1}
+IDS = {"type": "array", "items": ID, "uniqueItems": True}
+PROB = {"type": "number", "minimum": 0, "maximum": 1}
+MINUTES = {"type": "number", "exclusiveMinimum": 0, "maximum": 100000,
+           "description": "minutes of work, including getting at the part"}
+SCALAR = {"type": ["string", "number", "boolean"]}
+DISTRIBUTION = {
+    "type": "object",
+    "description": "outcome id -> probability; omitted outcomes share what is left evenly",
+    "propertyNames": ID,
+    "additionalProperties": {"type": "number"},
+}
+
+CAUTION = {
+    "type": "object",
+    "required": ["id", "level", "text"],
+    "additionalProperties": False,
+    "properties": {
+        "id": ID,
+        "level": {"enum": ["DANGER", "WARNING", "CAUTION", "NOTICE"],
+                  "description": "signal word as in ANSI Z535 / ISO 3864"},
+        "text": TEXT,
+    },
+}
+
+PARAMETER = {
+    "type": "object",
+    "required": ["id", "prompt"],
+    "additionalProperties": False,
+    "properties": {
+        "id": ID,
+        "prompt": TEXT,
+        "unit": {"type": "string", "description": "unit of the value, e.g. V, W, ohm, mm, degC"},
+        "min": {"type": "number"},
+        "max": {"type": "number"},
+        "default": SCALAR,
+        "unknown": {"type": "boolean", "description": "the answer 'unknown' is allowed"},
+        "choices": {"type": "array", "items": {"type": "string"}, "minItems": 2},
+    },
+}
+
+GATE_PROPS = {
+    "gate": {"enum": ["or", "and", "k_of_n"], "default": "or"},
+    "k": {"type": "integer", "minimum": 1, "description": "for k_of_n: how many inputs"},
+    "inputs": {**IDS, "minItems": 1, "description": "causes or events under this gate"},
+}
+
+COMPLAINT = {
+    "type": "object",
+    "required": ["id", "title", "inputs"],
+    "additionalProperties": False,
+    "properties": {"id": ID, "title": TEXT, "caller": TEXT, "description": TEXT, **GATE_PROPS},
+}
+
+EVENT = {
+    "type": "object",
+    "required": ["id", "title", "inputs"],
+    "additionalProperties": False,
+    "properties": {"id": ID, "title": TEXT, "description": TEXT, **GATE_PROPS},
+}
+
+CAUSE = {
+    "type": "object",
+    "required": ["id", "title", "prior"],
+    "additionalProperties": False,
+    "properties": {
+        "id": ID,
+        "title": TEXT,
+        "prior": {"type": "number", "exclusiveMinimum": 0, "maximum": 1000,
+                  "description": "relative frequency: times found per 1,000 service calls"},
+        "description": TEXT,
+    },
+}
+
+MEASURE = {
+    "type": "object",
+    "required": ["evaluator"],
+    "additionalProperties": False,
+    "properties": {
+        "evaluator": {"type": "string", "description": "a registered evaluator name"},
+        "reading": {"type": "string", "description": "evaluator input the reading fills"},
+        "unit": {"type": "string", "description": "unit assumed for a bare number"},
+        "accuracy": {"type": "number", "minimum": 0, "maximum": 0.5,
+                     "description": "meter accuracy as a fraction of the reading"},
+        "inputs": {"type": "object", "additionalProperties": SCALAR,
+                   "description": "evaluator input -> constant or $parameter"},
+    },
+}
+
+CHECK = {
+    "type": "object",
+    "required": ["id", "title", "minutes", "ask"],
+    "additionalProperties": False,
+    "properties": {
+        "id": ID,
+        "title": TEXT,
+        "minutes": MINUTES,
+        "tools": {"type": "array", "items": TEXT},
+        "where": {"enum": ["phone", "site"], "default": "site",
+                  "description": "phone: safe for an untrained caller; site: on site only"},
+        "cautions": IDS,
+        "ask": {**TEXT, "description": "technician wording"},
+        "caller": {**TEXT, "description": "plain wording for a caller on the phone"},
+        "needs": {**IDS, "description": "checks that must be done first"},
+        "only_if": {"type": "object", "additionalProperties": SCALAR,
+                    "description": "parameter -> value: offered only when the nameplate matches"},
+        "preparation": {"type": "boolean",
+                        "description": "a step that secures or prepares; observes no cause"},
+        "outcomes": {
+            "oneOf": [
+                {**IDS, "minItems": 2},
+                {"type": "object", "propertyNames": ID, "additionalProperties": TEXT,
+                 "minProperties": 1},
+            ],
+            "description": "outcome ids, or outcome id -> wording",
+        },
+        "normal": DISTRIBUTION,
+        "unknown": DISTRIBUTION,
+        "effects": {"type": "object", "propertyNames": ID, "additionalProperties": DISTRIBUTION,
+                    "description": "cause id -> outcome probabilities when that cause is present"},
+        "measure": MEASURE,
+    },
+}
+
+REPAIR = {
+    "type": "object",
+    "required": ["id", "title", "minutes", "fixes"],
+    "additionalProperties": False,
+    "properties": {
+        "id": ID,
+        "title": TEXT,
+        "minutes": MINUTES,
+        "parts": {"type": "array", "items": TEXT},
+        "fixes": {**IDS, "minItems": 1},
+        "success": {**PROB, "description": "P(cured | a cause it fixes is present)"},
+        "cautions": IDS,
+        "confirm": {**ID, "description": "the check that confirms the cure"},
+        "needs": IDS,
+        "ask": TEXT,
+        "where": {"enum": ["phone", "site"], "default": "site"},
+    },
+}
+
+STEP = {
+    "type": "object",
+    "additionalProperties": False,
+    "properties": {
+        "check": ID,
+        "answer": {"type": ["string", "number", "array", "boolean"]},
+        "skip": {"type": "boolean"},
+        "repair": ID,
+        "cured": {"type": "boolean"},
+    },
+    "oneOf": [{"required": ["check"]}, {"required": ["repair", "cured"]}],
+}
+
+CASE = {
+    "type": "object",
+    "required": ["id", "complaints", "steps", "expect_top"],
+    "additionalProperties": False,
+    "properties": {
+        "id": ID,
+        "title": TEXT,
+        "complaints": {**IDS, "minItems": 1},
+        "nameplate": {"type": "object", "additionalProperties": SCALAR},
+        "mode": {"enum": ["site", "phone"]},
+        "max_faults": {"type": "integer", "minimum": 1, "maximum": 2},
+        "steps": {"type": "array", "items": STEP},
+        "expect_top": {**IDS, "minItems": 1,
+                       "description": "the top cause must be one of these"},
+    },
+}
+
+
+def _section(item: dict[str, Any]) -> dict[str, Any]:
+    return {"type": "array", "items": item}
+
+
+PACK_FILE_SCHEMA: dict[str, Any] = {
+    "$schema": "https://json-schema.org/draft/2020-12/schema",
+    "$id": "https://diagnose.invalid/schema/pack-file.json",
+    "title": "diagnose knowledge pack file",
+    "description": "One YAML file of a knowledge pack. pack.yaml also carries the manifest keys.",
+    "type": "object",
+    "additionalProperties": False,
+    "properties": {
+        "pack": PACK_ID,
+        "title": TEXT,
+        "version": {"type": ["string", "number"]},
+        "builds_on": {"type": "array", "items": PACK_ID, "uniqueItems": True},
+        "notice": TEXT,
+        "unknown_prior": {"type": "number", "exclusiveMinimum": 0, "maximum": 1000,
+                          "description": "'none of the known causes', per 1,000 service calls"},
+        "leak": {**PROB, "description": "P(complaint) under a hypothesis outside its tree"},
+        "description": TEXT,
+        "cautions": _section(CAUTION),
+        "parameters": _section(PARAMETER),
+        "complaints": _section(COMPLAINT),
+        "events": _section(EVENT),
+        "causes": _section(CAUSE),
+        "checks": _section(CHECK),
+        "repairs": _section(REPAIR),
+        "tests": _section(CASE),
+    },
+}
+
+SECTIONS = ("cautions", "parameters", "complaints", "events", "causes", "checks", "repairs",
+            "tests")
+MANIFEST_KEYS = ("pack", "title", "version", "builds_on", "notice", "unknown_prior", "leak",
+                 "description")
+
+
+def pack_schema() -> dict[str, Any]:
+    """The JSON Schema (draft 2020-12) of one pack file."""
+    return PACK_FILE_SCHEMA

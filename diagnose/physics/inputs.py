@@ -1,0 +1,164 @@
+"""An evaluator's inputs read against its registry spec: defaults, units, choices, flags.
+
+Each evaluator calls :func:`read_inputs` first; it returns plain floats in
+each input's default unit, so the physics below works on numbers alone.
+"""
+
+from __future__ import annotations
+
+import re
+from typing import Any, Collection, Mapping
+
+from diagnose.errors import InputError
+from diagnose.physics import units
+from diagnose.physics.registry import EVALUATORS, InputSpec
+
+_TRUE = frozenset({"yes", "y", "true", "1", "on"})
+_FALSE = frozenset({"no", "n", "false", "0", "off"})
+
+
+def read_inputs(
+    evaluator: str,
+    values: Mapping[str, Any],
+    *,
+    positive: Collection[str] = (),
+    negative: Collection[str] = (),
+    open_ok: Collection[str] = (),
+    at_least: Mapping[str, int] | None = None,
+) -> dict[str, Any]:
+    """Every input of ``evaluator``, parsed: float (default unit), list of floats, str or bool.
+
+    Inputs left out take the registry default, or None when there is none.
+    ``positive`` inputs must be above zero, ``negative`` ones may be below
+    zero, ``open_ok`` ones may be an open reading (``math.inf``);
+    ``at_least`` gives the least count of readings of ``many`` inputs.
+
+    Raises:
+        InputError: an unknown input name, a required input missing, or any
+            value :func:`diagnose.physics.units.parse_quantity` refuses.
+    """
+    spec = EVALUATORS[evaluator]
+    known = {s.name for s in spec.inputs}
+    for name in values:
+        if name not in known:
+            raise InputError(name, f"not an input of {evaluator}; known: {', '.join(sorted(known))}")
+    out: dict[str, Any] = {}
+    for inp in spec.inputs:
+        raw = values.get(inp.name)
+        if raw is None or (isinstance(raw, str) and not raw.strip()):
+            raw = inp.default
+        if raw is None:
+            if inp.required:
+                raise InputError(inp.name, f"missing: {inp.help}")
+            out[inp.name] = None
+            continue
+        out[inp.name] = _read(inp, raw, positive, negative, open_ok, (at_least or {}))
+    return out
+
+
+def _read(inp: InputSpec, raw: Any, positive: Collection[str], negative: Collection[str],
+          open_ok: Collection[str], at_least: Mapping[str, int]) -> Any:
+    if inp.kind == "choice":
+        return read_choice(raw, inp.choices, inp.name)
+    if inp.kind == "flag":
+        return read_flag(raw, inp.name)
+    kwargs = {"negative": inp.name in negative, "open_ok": inp.name in open_ok}
+    if inp.many:
+        items = split_readings(raw, inp.name)
+        least = at_least.get(inp.name, 1)
+        if len(items) < least:
+            raise InputError(inp.name, f"expected at least {least} readings, got {len(items)}")
+        numbers = [units.parse_quantity(item, inp.unit, inp.name, **kwargs) for item in items]
+        if inp.name in positive:
+            for number, item in zip(numbers, items):
+                _positive(number, item, inp.name)
+        return numbers
+    number = units.parse_quantity(raw, inp.unit, inp.name, **kwargs)
+    if inp.name in positive:
+        _positive(number, raw, inp.name)
+    return number
+
+
+def _positive(number: float, raw: Any, field: str) -> None:
+    if not number > 0:
+        raise InputError(field, f"must be above zero, got {raw}")
+
+
+def split_readings(raw: Any, field: str = "readings") -> list[Any]:
+    """Readings as a list; a unit standing alone applies to the bare numbers just before it.
+
+    >>> split_readings("0.62 0.65 0.60 mm")
+    ['0.62 mm', '0.65 mm', '0.60 mm']
+    >>> split_readings(["0.1 mm", "0.004", "in"])
+    ['0.1 mm', '0.004 in']
+    """
+    if isinstance(raw, str):
+        items: list[Any] = [t for t in re.split(r"[\s,;]+", raw.strip()) if t]
+    elif isinstance(raw, (list, tuple)):
+        items = list(raw)
+    else:
+        items = [raw]
+    out: list[Any] = []
+    bare: list[int] = []  # positions in out of numbers typed without a unit
+    for item in items:
+        if isinstance(item, str) and units.is_unit(item):
+            if not bare:
+                raise InputError(field, f"unit {item!r} follows no number")
+            for i in bare:
+                out[i] = f"{out[i]} {item.strip()}"
+            bare = []
+            continue
+        if isinstance(item, (int, float, str)) and units.unit_of(item) is None:
+            bare.append(len(out))
+        out.append(item)
+    return out
+
+
+def read_choice(raw: Any, choices: tuple[str, ...], field: str) -> str:
+    """One of ``choices``; case, spaces, hyphens and underscores do not matter.
+
+    >>> read_choice("Half_Wave", ("half-wave", "bridge"), "type")
+    'half-wave'
+    """
+    if isinstance(raw, str):
+        key = _squash(raw)
+        for choice in choices:
+            if _squash(choice) == key:
+                return choice
+    raise InputError(field, f"unknown choice {raw!r}; expected one of: {', '.join(choices)}")
+
+
+def _squash(text: str) -> str:
+    return re.sub(r"[\s_\-]+", "", text.strip().lower())
+
+
+def read_flag(raw: Any, field: str) -> bool:
+    """A yes/no answer: a bool, or text such as yes, no, true, false, 1, 0."""
+    if isinstance(raw, bool):
+        return raw
+    if isinstance(raw, str) and raw.strip().lower() in _TRUE | _FALSE:
+        return raw.strip().lower() in _TRUE
+    raise InputError(field, f"expected yes or no, got {raw!r}")
+
+
+def require(condition: bool, field: str, message: str) -> None:
+    """Raise InputError(field, message) unless ``condition`` holds (a guard for evaluators)."""
+    if not condition:
+        raise InputError(field, message)
+
+
+def typed_unit(raw: Any, input_unit: str) -> str:
+    """The unit a person typed on the readings of ``raw`` that fits ``input_unit``.
+
+    The first reading with a fitting unit wins; the input's default unit when
+    none was typed. Used to show figures in the unit the technician used.
+    """
+    try:
+        items = split_readings(raw)
+    except InputError:
+        return input_unit
+    for item in items:
+        unit = units.unit_of(item)
+        if unit and units.fits(unit, input_unit):
+            return unit
+    return input_unit

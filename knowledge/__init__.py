@@ -1,0 +1,1 @@
+"""The knowledge packs shipped with diagnose (data only; see DEVELOPERS.md)."""
