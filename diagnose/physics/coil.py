@@ -27,6 +27,7 @@ from typing import Any, Mapping
 
 from diagnose.physics.copper import resistance_at, winding_temperature
 from diagnose.physics.inputs import read_inputs, require
+from diagnose.physics.units import above, below
 from diagnose.physics.verdict import Verdict, make_figures, quantity_text
 
 #: Above this multiple of the expected resistance a reading counts as open.
@@ -46,9 +47,9 @@ def judge_coil(measured: float, expected: float, tolerance: float) -> str:
         return "open"
     if ratio < SHORT_RATIO:
         return "short"
-    if ratio < 1 - tolerance:
+    if below(ratio, 1 - tolerance):
         return "low"
-    if ratio > 1 + tolerance:
+    if above(ratio, 1 + tolerance):
         return "high"
     return "ok"
 
@@ -91,15 +92,16 @@ def evaluate_coil(values: Mapping[str, Any]) -> Verdict:
     require(0 < v["tolerance"] < 1, "tolerance",
             f"expected a fraction between 0 and 1 such as 0.1, got {v['tolerance']:g}")
     volts, temp, measured = v["rated_voltage"], v["temperature"], v["ohms"]
-    r20 = v["rated_resistance"] if v["rated_resistance"] is not None else volts**2 / v["rated_power"]
+    r20 = v["rated_resistance"]
+    if r20 is None:
+        r20 = volts**2 / v["rated_power"]
     expected = resistance_at(r20, temp)
     require(expected > 0, "temperature", f"{temp:g} degC is far below any working coil temperature")
     verdict = judge_coil(measured, expected, v["tolerance"])
 
     theta = None
     if v["reference_ohms"] is not None and math.isfinite(measured):
-        ref_t = v["reference_temperature"] if v["reference_temperature"] is not None else 20.0
-        theta = winding_temperature(measured, v["reference_ohms"], ref_t)
+        theta = winding_temperature(measured, v["reference_ohms"], v["reference_temperature"])
     finite = math.isfinite(measured) and measured > 0
     figures = make_figures((
         ("expected_20", "expected resistance at 20 °C", r20, "ohm"),

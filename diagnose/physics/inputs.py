@@ -41,7 +41,8 @@ def read_inputs(
     known = {s.name for s in spec.inputs}
     for name in values:
         if name not in known:
-            raise InputError(name, f"not an input of {evaluator}; known: {', '.join(sorted(known))}")
+            raise InputError(name, f"not an input of {evaluator}; "
+                                   f"known: {', '.join(sorted(known))}")
     out: dict[str, Any] = {}
     for inp in spec.inputs:
         raw = values.get(inp.name)
@@ -67,7 +68,8 @@ def _read(inp: InputSpec, raw: Any, positive: Collection[str], negative: Collect
         items = split_readings(raw, inp.name)
         least = at_least.get(inp.name, 1)
         if len(items) < least:
-            raise InputError(inp.name, f"expected at least {least} readings, got {len(items)}")
+            raise InputError(inp.name, f"expected at least {least} readings ({inp.help}), "
+                                       f"got {len(items)}")
         numbers = [units.parse_quantity(item, inp.unit, inp.name, **kwargs) for item in items]
         if inp.name in positive:
             for number, item in zip(numbers, items):

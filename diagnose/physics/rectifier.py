@@ -42,7 +42,7 @@ NO_OUTPUT_FRACTION = 0.05
 
 
 def expected_dc(ac_volts: float, kind: str) -> float:
-    """Ideal mean DC output (V) of a ``kind`` rectifier ("half-wave" or "bridge") fed ``ac_volts`` rms.
+    """Ideal mean DC output (V) of a ``kind`` rectifier fed ``ac_volts`` rms.
 
     >>> round(expected_dc(230, "half-wave"), 2), round(expected_dc(230, "bridge"), 2)
     (103.54, 207.07)
@@ -51,7 +51,7 @@ def expected_dc(ac_volts: float, kind: str) -> float:
 
 
 def judge_rectifier(measured: float, expected: float, kind: str) -> str:
-    """The pattern ``measured`` mean DC fits, for a ``kind`` rectifier expected to give ``expected``.
+    """The pattern ``measured`` fits, for a ``kind`` rectifier expected to give ``expected``.
 
     >>> judge_rectifier(103, 207.07, "bridge")
     'half_wave'

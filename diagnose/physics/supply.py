@@ -23,6 +23,7 @@ from __future__ import annotations
 from typing import Any, Mapping
 
 from diagnose.physics.inputs import read_inputs, require
+from diagnose.physics.units import above, below
 from diagnose.physics.verdict import Verdict, make_figures, quantity_text
 
 #: Allowed band per kind of source, as fractions of rated (IEC 60204-1, from memory).
@@ -59,9 +60,9 @@ def judge_supply(rated: float, volts: float, band: tuple[float, float],
         return "absent"
     if volts < 0 and polarity_known:
         return "reversed"
-    if ratio < band[0]:
+    if below(ratio, band[0]):
         return "low"
-    if ratio > band[1]:
+    if above(ratio, band[1]):
         return "high"
     return "ok"
 

@@ -41,6 +41,7 @@ _SPELLINGS: tuple[tuple[re.Pattern[str], str], ...] = tuple(
         (r"\bmils?\b", "thou"),
         (r'^"$', "inch"),
         (r"\br/min\b|\bmin-1\b|\bmin\^-1\b|\bmin⁻¹", "rpm"),
+        (r"\brevs?\b", "revolution"),
         (r"\b([kmµu]?V)\s*(?:DC|AC|dc|ac|d\.c\.|a\.c\.)(?=\s|$)", r"\1"),
         (r"²", "**2"),
         (r"³", "**3"),
@@ -179,7 +180,7 @@ def parse_quantity(
             given in kilograms), NaN, infinity where no open reading makes
             sense, a negative value where none is possible.
 
-    >>> parse_quantity("0.5mm2", "mm**2", "area"), parse_quantity("104 degF", "degC", "t")
+    >>> parse_quantity("0.5mm2", "mm**2", "area"), round(parse_quantity("104 degF", "degC", "t"), 9)
     (0.5, 40.0)
     """
     if isinstance(value, bool) or value is None:
@@ -225,6 +226,8 @@ def _to_quantity(value: Any, target: Any, field: str, default_unit: str) -> Any:
         raise InputError(field, f"expected {_expected(default_unit)}, got {value!r}")
     match = _NUMBER.match(value)
     if not match:
+        if value.strip().lower().lstrip("+-").startswith("nan"):
+            raise InputError(field, f"expected a finite number, got {_show(value)}")
         raise InputError(field, f"expected {_expected(default_unit)}, got {_show(value)}")
     number, unit_text = float(match.group(1)), match.group(2)
     if not unit_text:
@@ -246,3 +249,22 @@ def convert(value: float, from_unit: str, to_unit: str) -> float:
     0.1778
     """
     return float(registry().Quantity(value, _units(from_unit)).to(_units(to_unit)).magnitude)
+
+
+#: Relative slack in comparisons, so that the same length typed in mm or in
+#: inches gets the same verdict in spite of rounding in the conversion.
+ROUNDING = 1e-9
+
+
+def above(value: float, limit: float) -> bool:
+    """``value > limit`` by more than conversion rounding.
+
+    >>> above(0.5000000000000001, 0.5), above(0.51, 0.5)
+    (False, True)
+    """
+    return value > limit + ROUNDING * max(abs(limit), abs(value), 1e-12)
+
+
+def below(value: float, limit: float) -> bool:
+    """``value < limit`` by more than conversion rounding."""
+    return above(limit, value)

@@ -98,12 +98,11 @@ class Verdict:
 
     def __rich_console__(self, console: Any, options: Any) -> Any:
         """A small table of the figures, then the verdict line and the summary."""
-        from rich import box
         from rich.table import Table
         from rich.text import Text
 
-        table = Table(box=box.SIMPLE, show_header=False, pad_edge=False,
-                      title=self.evaluator, title_justify="left")
+        table = Table(box=None, show_header=False, pad_edge=False, title=self.evaluator,
+                      title_justify="left", title_style="bold")
         table.add_column("figure", overflow="fold")
         table.add_column("value", justify="right", no_wrap=True)
         table.add_column("unit", no_wrap=True)
