@@ -6,8 +6,10 @@ that these tests do not depend on the loader.
 
 from __future__ import annotations
 
+from collections.abc import Iterable, Mapping, Sequence
 from itertools import product
-from typing import Iterable, Mapping, Sequence
+
+from hypothesis import strategies as st
 
 from diagnose.errors import Source
 from diagnose.kb.model import Cause, Check, Complaint, Gate, Model, Repair
@@ -72,6 +74,31 @@ def two_of_three(q: float = 0.1) -> Model:
     """A 2-out-of-3 tree over causes a, b, c, each with probability ``q``."""
     return make_model(causes={"a": q * 1000, "b": q * 1000, "c": q * 1000},
                       complaints={"top": gate("top", "k_of_n", ("a", "b", "c"), k=2)})
+
+
+@st.composite
+def random_trees(draw):
+    """A tree over 2..7 causes with or / and / k_of_n gates; gates may share inputs."""
+    n = draw(st.integers(2, 7))
+    causes = {f"c{i}": draw(st.sampled_from([1, 5, 50, 200, 500, 900])) for i in range(n)}
+    nodes = list(causes)
+    gates = []
+    for g in range(draw(st.integers(1, 5))):
+        inputs = draw(st.lists(st.sampled_from(nodes), min_size=1, max_size=4, unique=True))
+        kind = draw(st.sampled_from(["or", "and", "k_of_n"]))
+        k = draw(st.integers(1, len(inputs))) if kind == "k_of_n" else 1
+        gates.append(gate(f"g{g}", kind, inputs, k))
+        nodes.append(f"g{g}")
+    top = gates[-1]
+    # every cause must reach the top: an OR of the last gate and every node nothing uses
+    used = {i for g in gates for i in g.inputs}
+    loose = [c for c in nodes[:-1] if c not in used]
+    if loose:
+        top = gate("root", "or", (top.id, *loose))
+        gates.append(top)
+    model = make_model(causes=causes, complaints={"top": gate("top_c", "or", (top.id,))},
+                       events=gates)
+    return model
 
 
 # --- brute force, the reference for the exact methods -----------------------------------

@@ -173,6 +173,28 @@ def _register(item: _Item, ctx: _Ctx) -> None:
 # entities
 
 
+def _num(value: Any, default: float) -> float:
+    """A number from pack data, or ``default`` when the schema already rejected it."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return default
+    return float(value)
+
+
+def _list(value: Any) -> tuple[Any, ...]:
+    return tuple(value) if isinstance(value, list) else ()
+
+
+def _map(value: Any) -> dict[Any, Any]:
+    return dict(value) if isinstance(value, Mapping) else {}
+
+
+def _fits(unit: str, target: str) -> bool:
+    try:
+        return bool(_units().fits(unit, target))
+    except (InputError, ValueError):
+        return False
+
+
 def _units():
     from diagnose.physics import units
 
@@ -182,36 +204,37 @@ def _units():
 def _parameter(it: _Item, ctx: _Ctx) -> Parameter:
     d = it.data
     unit = str(d.get("unit", "") or "")
-    lo, hi = d.get("min"), d.get("max")
-    choices = tuple(str(c) for c in d.get("choices", ()) or ())
-    if unit and it.valid:
+    lo = _num(d.get("min"), float("nan"))
+    hi = _num(d.get("max"), float("nan"))
+    lo_, hi_ = (None if lo != lo else lo), (None if hi != hi else hi)  # NaN: not given
+    choices = tuple(str(c) for c in _list(d.get("choices")))
+    unit_ok = True
+    if unit:
         try:
-            ok = _units().fits(unit, unit)
-        except InputError:
-            ok = False
-        if not ok:
+            unit_ok = _units().fits(unit, unit)
+        except (InputError, ValueError):
+            unit_ok = False
+        if not unit_ok:
             ctx.error(f"parameter {it.id!r}: unknown unit {unit!r}", it.at("unit"), "unit")
-    if lo is not None and hi is not None and lo > hi:
-        ctx.error(f"parameter {it.id!r}: min {lo} is above max {hi}", it.at("min"), "range")
+    if lo_ is not None and hi_ is not None and lo_ > hi_:
+        ctx.error(f"parameter {it.id!r}: min {lo_:g} is above max {hi_:g}", it.at("min"), "range")
     default = d.get("default")
     if default is not None and it.valid:
         if choices:
             if str(default) not in choices:
                 ctx.error(f"parameter {it.id!r}: default {default!r} is not one of {list(choices)}",
                           it.at("default"), "range")
-        elif unit:
+        elif unit and unit_ok:
             try:
                 v = _units().parse_quantity(default, unit, it.id)
-                if (lo is not None and v < lo) or (hi is not None and v > hi):
-                    ctx.error(f"parameter {it.id!r}: default {default} is outside {lo}..{hi} {unit}",
-                              it.at("default"), "range")
+                if (lo_ is not None and v < lo_) or (hi_ is not None and v > hi_):
+                    ctx.error(f"parameter {it.id!r}: default {default} is outside "
+                              f"{lo_}..{hi_} {unit}", it.at("default"), "range")
             except InputError as exc:
                 ctx.error(f"parameter {it.id!r}: default: {exc.message}", it.at("default"), "unit")
     return Parameter(
-        id=it.id, prompt=str(d.get("prompt", it.id)), unit=unit,
-        min=float(lo) if isinstance(lo, (int, float)) else None,
-        max=float(hi) if isinstance(hi, (int, float)) else None,
-        default=None if default is None else str(default),
+        id=it.id, prompt=str(d.get("prompt", it.id)), unit=unit if unit_ok else "",
+        min=lo_, max=hi_, default=None if default is None else str(default),
         unknown_allowed=bool(d.get("unknown", False)), choices=choices, source=it.at(),
     )
 
@@ -219,10 +242,10 @@ def _parameter(it: _Item, ctx: _Ctx) -> Parameter:
 def _gate(it: _Item, ctx: _Ctx) -> Gate:
     d = it.data
     kind = d.get("gate", "or")
-    inputs = tuple(x for x in d.get("inputs", ()) if isinstance(x, str))
+    inputs = tuple(x for x in _list(d.get("inputs")) if isinstance(x, str))
     for j, x in enumerate(inputs):
         ctx.ref(x, ("causes", "events"), it.at("inputs", j), f"{_NOUN[it.section]} {it.id!r} input")
-    k = int(d.get("k", 1) or 1)
+    k = int(_num(d.get("k"), 1))
     if kind == "k_of_n":
         if "k" not in d:
             ctx.error(f"{_NOUN[it.section]} {it.id!r}: a k_of_n gate needs `k`", it.at("gate"),
@@ -312,7 +335,7 @@ def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple
     if not isinstance(m, Mapping):
         return None, None
     name = m.get("evaluator")
-    spec = EVALUATORS.get(name)
+    spec = EVALUATORS.get(name) if isinstance(name, str) else None
     if spec is None:
         close = difflib.get_close_matches(str(name), list(EVALUATORS), n=1)
         hint = f"; did you mean {close[0]!r}?" if close else ""
@@ -320,6 +343,7 @@ def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple
                   "evaluator")
         return None, None
     reading = m.get("reading", spec.reading)
+    reading = reading if isinstance(reading, str) else None
     rspec = spec.input(reading) if reading else None
     if rspec is None:
         ctx.error(f"check {it.id!r}: evaluator {name!r} has no input {reading!r} for the reading"
@@ -330,13 +354,13 @@ def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple
     units = _units()
     if "unit" in m:
         try:
-            if not units.fits(unit, rspec.unit):
+            if not _fits(unit, rspec.unit):
                 ctx.error(f"check {it.id!r}: unit {unit!r} does not fit the reading {reading!r} "
                           f"(expects {rspec.unit or 'a plain number'})", it.at("measure", "unit"),
                           "unit")
         except InputError as exc:
             ctx.error(f"check {it.id!r}: {exc.message}", it.at("measure", "unit"), "unit")
-    inputs = dict(m.get("inputs") or {})
+    inputs = _map(m.get("inputs"))
     for key, value in inputs.items():
         src = it.at("measure", "inputs", key)
         ispec = spec.input(key)
@@ -356,7 +380,7 @@ def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple
                 and ispec.name not in inputs:
             ctx.error(f"check {it.id!r}: evaluator {name!r} needs input {ispec.name!r} "
                       f"({ispec.help})", it.at("measure"), "evaluator")
-    accuracy = float(m.get("accuracy", 0.0) or 0.0)
+    accuracy = _num(m.get("accuracy"), 0.0)
     return Measurement(str(name), str(reading), unit, inputs, accuracy, rspec.many), spec
 
 
@@ -373,7 +397,7 @@ def _check_input_value(it: _Item, key: str, value: Any, ispec: Any,
         if ispec.kind == "quantity":
             try:
                 ok = units.fits(param.unit, ispec.unit)
-            except InputError:
+            except (InputError, ValueError):
                 ok = False
             if not ok:
                 ctx.error(f"check {it.id!r}: parameter {pid!r} is in {param.unit or 'no unit'}, "
@@ -399,14 +423,14 @@ def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
     d = it.data
     measurement, spec = _measurement(it, ctx, params)
     outcomes, titles = _outcomes(it, spec, ctx)
-    for j, c in enumerate(d.get("cautions", ()) or ()):
+    for j, c in enumerate(_list(d.get("cautions"))):
         ctx.ref(c, ("cautions",), it.at("cautions", j), f"check {it.id!r} caution")
-    for j, c in enumerate(d.get("needs", ()) or ()):
+    for j, c in enumerate(_list(d.get("needs"))):
         if c == it.id:
             ctx.error(f"check {it.id!r} needs itself", it.at("needs", j), "needs")
         else:
             ctx.ref(c, ("checks",), it.at("needs", j), f"check {it.id!r} needs")
-    for key, value in (d.get("only_if") or {}).items():
+    for key, value in _map(d.get("only_if")).items():
         if ctx.ref(key, ("parameters",), it.at("only_if", key), f"check {it.id!r} only_if"):
             param = params.get(key)
             if param is not None and param.choices and str(value) not in param.choices:
@@ -417,7 +441,7 @@ def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
         ctx.error(f"check {it.id!r} is marked safe for a caller but has no `caller` wording",
                   it.at("where"), "caller-wording")
     effects: dict[str, dict[str, float]] = {}
-    for cause, row in (d.get("effects") or {}).items():
+    for cause, row in _map(d.get("effects")).items():
         if ctx.ref(cause, ("causes",), it.at("effects", cause), f"check {it.id!r} effect on"):
             effects[cause] = _distribution(row, outcomes, it, ("effects", cause),
                                            f"effects of {cause!r}", ctx)
@@ -433,52 +457,52 @@ def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
                             warn_extremes=False) if "unknown" in d \
         else {o: 1.0 / len(outcomes) for o in outcomes}
     return Check(
-        id=it.id, title=str(d.get("title", it.id)), minutes=float(d.get("minutes", 1) or 1),
+        id=it.id, title=str(d.get("title", it.id)), minutes=_num(d.get("minutes"), 1.0),
         outcomes=outcomes, effects=effects, normal=normal, unknown=unknown, where=where,
-        tools=tuple(str(t) for t in d.get("tools", ()) or ()),
-        cautions=tuple(d.get("cautions", ()) or ()), ask=str(d.get("ask", "")),
-        caller=str(d.get("caller", "") or ""), needs=tuple(d.get("needs", ()) or ()),
+        tools=tuple(str(t) for t in _list(d.get("tools"))),
+        cautions=_list(d.get("cautions")), ask=str(d.get("ask", "")),
+        caller=str(d.get("caller", "") or ""), needs=_list(d.get("needs")),
         measurement=measurement, outcome_titles=titles, source=it.at(),
-        only_if={str(k): str(v) for k, v in (d.get("only_if") or {}).items()},
+        only_if={str(k): str(v) for k, v in _map(d.get("only_if")).items()},
         preparation=bool(d.get("preparation", False)),
     )
 
 
 def _repair(it: _Item, ctx: _Ctx) -> Repair:
     d = it.data
-    for j, c in enumerate(d.get("fixes", ()) or ()):
+    for j, c in enumerate(_list(d.get("fixes"))):
         ctx.ref(c, ("causes",), it.at("fixes", j), f"repair {it.id!r} fixes")
-    for j, c in enumerate(d.get("cautions", ()) or ()):
+    for j, c in enumerate(_list(d.get("cautions"))):
         ctx.ref(c, ("cautions",), it.at("cautions", j), f"repair {it.id!r} caution")
-    for j, c in enumerate(d.get("needs", ()) or ()):
+    for j, c in enumerate(_list(d.get("needs"))):
         ctx.ref(c, ("checks",), it.at("needs", j), f"repair {it.id!r} needs")
     confirm = d.get("confirm")
     if confirm is not None:
         ctx.ref(confirm, ("checks",), it.at("confirm"), f"repair {it.id!r} confirm")
     return Repair(
-        id=it.id, title=str(d.get("title", it.id)), minutes=float(d.get("minutes", 1) or 1),
-        fixes=tuple(d.get("fixes", ()) or ()), parts=tuple(str(p) for p in d.get("parts", ()) or ()),
-        success=float(d.get("success", 0.95)), cautions=tuple(d.get("cautions", ()) or ()),
-        confirm=confirm, needs=tuple(d.get("needs", ()) or ()), ask=str(d.get("ask", "") or ""),
+        id=it.id, title=str(d.get("title", it.id)), minutes=_num(d.get("minutes"), 1.0),
+        fixes=_list(d.get("fixes")), parts=tuple(str(p) for p in _list(d.get("parts"))),
+        success=_num(d.get("success"), 0.95), cautions=_list(d.get("cautions")),
+        confirm=confirm, needs=_list(d.get("needs")), ask=str(d.get("ask", "") or ""),
         where=str(d.get("where", "site")), source=it.at(),
     )
 
 
 def _case(it: _Item, ctx: _Ctx, checks: Mapping[str, Check]) -> Case:
     d = it.data
-    for j, c in enumerate(d.get("complaints", ()) or ()):
+    for j, c in enumerate(_list(d.get("complaints"))):
         ctx.ref(c, ("complaints",), it.at("complaints", j), f"test {it.id!r} complaint")
-    for key in (d.get("nameplate") or {}):
+    for key in _map(d.get("nameplate")):
         ctx.ref(key, ("parameters",), it.at("nameplate", key), f"test {it.id!r} nameplate")
-    for j, c in enumerate(d.get("expect_top", ()) or ()):
+    for j, c in enumerate(_list(d.get("expect_top"))):
         ctx.ref(c, ("causes",), it.at("expect_top", j), f"test {it.id!r} expect_top",
                 extra=(UNKNOWN_CAUSE,))
     steps: list[Step] = []
-    for j, s in enumerate(d.get("steps", ()) or ()):
+    for j, s in enumerate(_list(d.get("steps"))):
         if not isinstance(s, Mapping):
             continue
         src = it.at("steps", j)
-        if "check" in s:
+        if isinstance(s.get("check"), str):
             cid = s["check"]
             if ctx.ref(cid, ("checks",), it.at("steps", j, "check"), f"test {it.id!r} step"):
                 chk = checks.get(cid)
@@ -494,14 +518,14 @@ def _case(it: _Item, ctx: _Ctx, checks: Mapping[str, Check]) -> Case:
                               src, "schema")
             steps.append(Step(check=cid, answer=s.get("answer"), skip=bool(s.get("skip", False)),
                               source=src))
-        elif "repair" in s:
+        elif isinstance(s.get("repair"), str):
             ctx.ref(s["repair"], ("repairs",), it.at("steps", j, "repair"), f"test {it.id!r} step")
             steps.append(Step(repair=s["repair"], cured=bool(s.get("cured")), source=src))
     return Case(
-        id=it.id, complaints=tuple(d.get("complaints", ()) or ()), steps=tuple(steps),
-        expect_top=tuple(d.get("expect_top", ()) or ()),
-        nameplate={str(k): v for k, v in (d.get("nameplate") or {}).items()},
-        mode=str(d.get("mode", "site")), max_faults=int(d.get("max_faults", 1)),
+        id=it.id, complaints=_list(d.get("complaints")), steps=tuple(steps),
+        expect_top=_list(d.get("expect_top")),
+        nameplate={str(k): v for k, v in _map(d.get("nameplate")).items()},
+        mode=str(d.get("mode", "site")), max_faults=int(_num(d.get("max_faults"), 1)),
         title=str(d.get("title", "") or ""), source=it.at(),
     )
 
@@ -680,8 +704,8 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
         packs=tuple(s.id for s in sources), notice=str(manifest.get("notice", "") or ""),
         parameters=params, complaints=complaints, events=events, causes=causes, checks=checks,
         repairs=repairs, cautions=cautions, cases=cases,
-        unknown_prior=float(manifest.get("unknown_prior", 5.0)),
-        leak=float(manifest.get("leak", 0.01)), content_hash=digest.hexdigest()[:16],
+        unknown_prior=_num(manifest.get("unknown_prior"), 5.0),
+        leak=_num(manifest.get("leak"), 0.01), content_hash=digest.hexdigest()[:16],
         path=top.folder,
     )
     if not any(p.level == "error" and p.code == "unknown-ref" for p in ctx.problems):

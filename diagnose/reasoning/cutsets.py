@@ -30,8 +30,8 @@ References:
 
 from __future__ import annotations
 
+from collections.abc import Iterable, Mapping
 from itertools import combinations
-from typing import Iterable, Mapping, Union
 
 from diagnose.errors import DiagnoseError, InputError
 from diagnose.kb.model import Model
@@ -39,7 +39,7 @@ from diagnose.kb.model import Model
 #: A tree as plain, hashable data: ``("c", cause_id)`` for a basic event,
 #: ``("g", kind, k, inputs)`` for a gate, or a constant ``True`` / ``False``
 #: once some causes are fixed. ``k`` is the number of inputs that must hold.
-Expr = Union[bool, tuple]
+Expr = bool | tuple
 
 #: Stop expanding cut sets past this many; no pack comes near it.
 MAX_CUT_SETS = 200_000
@@ -72,7 +72,8 @@ def tree_expression(model: Model, node: str) -> Expr:
 
 
 def _gate(k: int, inputs: Iterable[Expr]) -> Expr:
-    """A gate "at least ``k`` of ``inputs``", reduced: constants folded, or/and flattened."""
+    """A gate "at least ``k`` of ``inputs``", reduced: constants folded, or/and flattened
+    and their repeated inputs dropped."""
     rest: list[Expr] = []
     for item in inputs:
         if item is True:
@@ -93,7 +94,9 @@ def _gate(k: int, inputs: Iterable[Expr]) -> Expr:
                 flat.extend(item[3])
             else:
                 flat.append(item)
-        rest = flat
+        rest = list(dict.fromkeys(flat))  # a + a = a, a a = a
+        if len(rest) == 1:
+            return rest[0]
         k = 1 if kind == "or" else len(rest)
     return ("g", kind, k, tuple(rest))
 

@@ -23,8 +23,9 @@ References:
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from typing import Any, Mapping, Sequence
+from typing import Any
 
 from diagnose.kb.model import Model
 from diagnose.reasoning.cutsets import (

@@ -15,6 +15,9 @@ is more than a threshold (``THRESHOLD``, 0.1 unless asked otherwise).
   check tells their rows apart. The **ambiguity groups** are the classes of
   causes linked by chains of indistinguishable pairs (groups of two or more).
 * A cause is **isolated** when it is detected and in no ambiguity group.
+* The **closest pair** of a complaint is the pair of causes whose best
+  check separates them least (its TV distance is the *separation*): the
+  next ambiguity group if the threshold were raised.
 * A check is **idle** (it never changes any ranking) when every row it lists
   is within the threshold of its ``normal``.
 
@@ -31,8 +34,9 @@ References:
 
 from __future__ import annotations
 
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
-from typing import Any, Iterable, Mapping
+from typing import Any
 
 from diagnose.errors import InputError, Problem
 from diagnose.kb.model import Check, Model
@@ -112,6 +116,7 @@ class Testability:
     isolation: float  # prior-weighted share of causes isolated
     groups: tuple[AmbiguityGroup, ...] = ()
     checks: tuple[str, ...] = field(default=())  # available checks that see some cause
+    closest: tuple[str, str, float] | None = None  # the pair hardest to tell apart, its best TV
 
     @property
     def undetected(self) -> tuple[str, ...]:
@@ -128,6 +133,8 @@ class Testability:
             "isolated": list(self.isolated),
             "ambiguity_groups": [g.to_dict() for g in self.groups],
             "checks": list(self.checks),
+            "closest_pair": None if self.closest is None else {
+                "causes": list(self.closest[:2]), "separation": self.closest[2]},
         }
 
 
@@ -144,7 +151,9 @@ def testability(
     checks = available_checks(model, mode)
     causes = model.tree_causes(complaint)
     detected = tuple(c for c in causes if _detected(checks, c, threshold))
-    classes = _classes(checks, causes, threshold)
+    sep = _separations(checks, causes)
+    classes = _classes(causes, sep, threshold)
+    closest = min(sep.items(), key=lambda kv: kv[1], default=None)
     in_group = {c for cls in classes if len(cls) > 1 for c in cls}
     isolated = tuple(c for c in detected if c not in in_group)
     groups = tuple(
@@ -164,6 +173,7 @@ def testability(
         isolation=weighted_share(model, causes, isolated),
         groups=groups,
         checks=seeing,
+        closest=(*closest[0], closest[1]) if closest else None,
     )
 
 
@@ -193,13 +203,14 @@ def undetected_causes(
 def idle_checks(model: Model, *, threshold: float = THRESHOLD) -> tuple[str, ...]:
     """Checks that list causes but whose every row is within ``threshold`` of ``normal``.
 
-    Such a check never changes any ranking. Checks that list no cause at all
-    (preparation steps) are not reported; lint speaks of those.
+    Such a check never changes any ranking. Preparation steps and checks that
+    list no cause at all are not reported; lint speaks of the latter.
     """
     return tuple(
         k.id
         for k in model.checks.values()
-        if k.effects and all(detection_strength(k, c) <= threshold for c in k.effects)
+        if k.effects and not getattr(k, "preparation", False)
+        and all(detection_strength(k, c) <= threshold for c in k.effects)
     )
 
 
@@ -263,8 +274,19 @@ def _apart(checks: Iterable[Check], a: str, b: str, threshold: float) -> tuple[s
     )
 
 
+def _separations(
+    checks: tuple[Check, ...], causes: tuple[str, ...]
+) -> dict[tuple[str, str], float]:
+    """(a, b) -> the largest TV distance between their rows over ``checks``, a before b."""
+    return {
+        (a, b): max((total_variation(row(k, a), row(k, b)) for k in checks
+                     if a in k.effects or b in k.effects), default=0.0)
+        for i, a in enumerate(causes) for b in causes[i + 1:]
+    }
+
+
 def _classes(
-    checks: tuple[Check, ...], causes: tuple[str, ...], threshold: float
+    causes: tuple[str, ...], sep: Mapping[tuple[str, str], float], threshold: float
 ) -> list[tuple[str, ...]]:
     """Causes linked by chains of indistinguishable pairs, in listing order."""
     parent = {c: c for c in causes}
@@ -275,10 +297,9 @@ def _classes(
             c = parent[c]
         return c
 
-    for i, a in enumerate(causes):
-        for b in causes[i + 1:]:
-            if find(a) != find(b) and not _apart(checks, a, b, threshold):
-                parent[find(b)] = find(a)
+    for (a, b), distance in sep.items():
+        if distance <= threshold and find(a) != find(b):
+            parent[find(b)] = find(a)
     out: dict[str, list[str]] = {}
     for c in causes:
         out.setdefault(find(c), []).append(c)
@@ -318,5 +339,6 @@ def _group(
         if not any(c in detected for c in causes):
             hint = f"no check detects {names}: add a check that observes them"
         else:
-            hint = f"add a check whose outcomes differ between {names} (they need different repairs)"
+            hint = (f"add a check whose outcomes differ between {names} "
+                    "(they need different repairs)")
     return AmbiguityGroup(complaint, mode, causes, action, hint, split)

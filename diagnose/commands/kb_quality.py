@@ -1,0 +1,102 @@
+"""`diagnose kb analyze` and `diagnose kb new`: knowledge quality for trainers.
+
+``diagnose/commands/kb.py`` calls ``add_analyze_parser`` and
+``add_new_parser`` from its ``register``. Handlers take ``args`` and return
+an exit status; heavy imports stay inside them.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from typing import Any
+
+
+def add_analyze_parser(ks: Any) -> None:
+    """``kb analyze PACK [--complaint ID] [--json] [--format md|html] [-o FILE]``."""
+    p = ks.add_parser(
+        "analyze", help="fault-tree, testability and effort analysis of a pack",
+        description="Per complaint and for the pack: minimal cut sets, top-event probability "
+        "(exact, rare-event, min-cut upper bound), importance of each cause, detection and "
+        "isolation shares, ambiguity groups (site and phone) and the expected effort to cure. "
+        "See 'Reading the analysis' in DEVELOPERS.md.")
+    p.add_argument("pack", metavar="PACK", help="pack id or folder")
+    p.add_argument("--complaint", metavar="ID", help="only this complaint")
+    p.add_argument("--json", action="store_true", help="one JSON object (to FILE with -o)")
+    p.add_argument("--format", choices=("md", "html"),
+                   help="a Markdown or HTML report (default with -o: from the file's suffix)")
+    p.add_argument("-o", "--output", metavar="FILE", help="write to FILE instead of the screen")
+    p.add_argument("--threshold", type=float, default=0.1, metavar="TV",
+                   help="total variation above which two outcome rows count as told apart "
+                   "(default 0.1)")
+    p.add_argument("--no-effort", action="store_true",
+                   help="leave out the simulated effort (faster)")
+    p.add_argument("--runs", type=int, metavar="N", help="simulated sessions per policy")
+    p.set_defaults(handler=analyze_command)
+
+
+def add_new_parser(ks: Any) -> None:
+    """``kb new KIND ID [--pack DIR] [--file FILE] [--evaluator NAME]``."""
+    from diagnose.kb.scaffold import KINDS
+
+    p = ks.add_parser(
+        "new", help="write a commented skeleton of a new entry into a pack",
+        description="Write a YAML skeleton of a new cause, check, measurement, repair or "
+        "complaint with every field to fill marked TODO; lint fails until they are filled.")
+    p.add_argument("kind", choices=tuple(KINDS), metavar="KIND",
+                   help="one of: " + ", ".join(KINDS))
+    p.add_argument("id", metavar="ID", help="the new entry's id (lower_case_with_underscores)")
+    p.add_argument("--pack", metavar="DIR",
+                   help="the pack folder (default: this folder, if it holds pack.yaml)")
+    p.add_argument("--file", metavar="FILE",
+                   help="append to this file of the pack (default: a new <kind>s-<id>.yaml)")
+    p.add_argument("--evaluator", metavar="NAME",
+                   help="for a measurement: fill evaluator, inputs and verdicts from the registry")
+    p.set_defaults(handler=new_command)
+
+
+def analyze_command(args: argparse.Namespace) -> int:
+    from diagnose.commands.kb import load
+    from diagnose.errors import InputError
+    from diagnose.reasoning.analysis import analyze
+
+    if not 0.0 <= args.threshold < 1.0:
+        raise InputError("--threshold", "give a total variation from 0 up to 1")
+    if args.runs is not None and args.runs < 1:
+        raise InputError("--runs", "give at least 1")
+    if args.json and args.format:
+        raise InputError("--format", "give either --json or --format")
+    model = load(args, args.pack)
+    result = analyze(model, complaint=args.complaint, threshold=args.threshold,
+                     effort=not args.no_effort, runs=args.runs)
+    if args.json:
+        from diagnose.commands.kb import _write  # the kb group's one writer (stdout or FILE)
+
+        _write(json.dumps(result.to_dict(), indent=2) + "\n", args.output)
+        if args.output:
+            print(f"wrote {args.output}", file=sys.stderr)
+    elif args.format or args.output:
+        from diagnose.report_analysis import render_analysis, write_analysis
+
+        if args.output:
+            path = write_analysis(result, args.output, args.format)
+            print(f"wrote {path}", file=sys.stderr)
+        else:
+            sys.stdout.write(render_analysis(result, args.format))
+    else:
+        from rich.console import Console
+
+        Console().print(result)
+    return 0
+
+
+def new_command(args: argparse.Namespace) -> int:
+    from diagnose.kb.scaffold import pack_folder, write_skeleton
+
+    folder = pack_folder(args.pack)
+    path = write_skeleton(folder, args.kind, args.id, file=args.file, evaluator=args.evaluator)
+    todo = sum(1 for line in path.read_text(encoding="utf-8").splitlines() if "TODO" in line)
+    print(f"wrote {args.kind} {args.id} to {path}; fill the lines marked TODO "
+          f"({todo} in the file), then run `diagnose kb lint {folder}`")
+    return 0

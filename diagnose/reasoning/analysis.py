@@ -1,0 +1,431 @@
+"""The knowledge analysis of a pack, per complaint and for the pack, as values.
+
+``analyze(model)`` gathers, for every complaint:
+
+* the fault-tree analysis (``cutsets``, ``importance``): minimal cut sets, the
+  top-event probability exactly, by the rare-event approximation and by the
+  min-cut upper bound, and the importance of each cause;
+* the testability (``testability``) in site and in phone mode: detection and
+  isolation shares, ambiguity groups with a hint each;
+* the expected effort to cure from the simulator, when the simulator is
+  installed, beside the entropy lower bound and the chart policy.
+
+The values render themselves on a rich console and turn into plain data with
+``to_dict()`` (what ``--json`` prints and the Markdown / HTML reports read), so
+that screen and report agree. Pure: no I/O.
+
+See "Reading the analysis" (DEVELOPERS.md; drafted in docs_analysis.md) for what
+each figure means.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterator, Mapping
+from dataclasses import asdict, dataclass, field, replace
+from typing import Any
+
+from diagnose.errors import DiagnoseError, InputError
+from diagnose.kb.model import Model
+from diagnose.reasoning.cutsets import (
+    cause_probabilities,
+    min_cut_upper_bound,
+    minimal_cut_sets,
+    rare_event_approximation,
+    top_event_probability,
+)
+from diagnose.reasoning.importance import Importance, importances
+from diagnose.reasoning.testability import (
+    MODES,
+    THRESHOLD,
+    Testability,
+    available_checks,
+    dependency_matrix,
+    idle_checks,
+    testability,
+    undetected_causes,
+    weighted_share,
+)
+
+NO_SIMULATOR = "simulator not available: expected effort not computed"
+RUNS = 100  # simulated calls per policy and complaint, unless asked otherwise
+SEED = 1  # the same draws every time: the figures of two analyses compare
+SHOWN_CUT_SETS = 12  # on screen; the JSON and the reports carry them all
+
+
+@dataclass(frozen=True)
+class Effort:
+    """Expected work to cure a complaint, in minutes and checks.
+
+    ``expected_*`` come from the simulator with the planner's policy,
+    ``chart_*`` from the simulator with the fixed chart policy, ``bound_*``
+    are the entropy lower bound (see ``entropy_bound``). Fields the simulator
+    did not fill are ``None``; ``note`` says why.
+    """
+
+    available: bool
+    note: str = ""
+    expected_minutes: float | None = None
+    expected_checks: float | None = None
+    chart_minutes: float | None = None
+    chart_checks: float | None = None
+    bound_minutes: float | None = None
+    bound_checks: float | None = None
+    entropy_bits: float | None = None
+    cured: float | None = None  # share of simulated calls the planner cured (no escalation)
+    runs: int | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        return asdict(self)
+
+
+@dataclass(frozen=True)
+class ComplaintAnalysis:
+    """Fault tree, testability and effort of one complaint."""
+
+    complaint: str
+    title: str
+    causes: tuple[tuple[str, str, float], ...]  # (id, title, prior) in listing order
+    cut_sets: tuple[tuple[str, ...], ...]
+    probability: float  # exact top-event probability
+    rare_event: float
+    upper_bound: float  # min-cut upper bound
+    importances: tuple[Importance, ...]
+    testability: Mapping[str, Testability]  # mode -> figures
+    effort: Effort
+    matrix: Mapping[str, Mapping[str, float]] = field(default_factory=dict)  # check -> cause -> TV
+
+    @property
+    def groups(self) -> tuple[Any, ...]:
+        """The ambiguity groups of every mode, site first."""
+        return tuple(g for m in MODES for g in self.testability[m].groups)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "complaint": self.complaint,
+            "title": self.title,
+            "causes": [{"id": c, "title": t, "prior": p} for c, t, p in self.causes],
+            "fault_tree": {
+                "cut_sets": [list(s) for s in self.cut_sets],
+                "probability": {
+                    "exact": self.probability,
+                    "rare_event": self.rare_event,
+                    "min_cut_upper_bound": self.upper_bound,
+                },
+                "importance": [i.to_dict() for i in self.importances],
+            },
+            "testability": {m: t.to_dict() for m, t in self.testability.items()},
+            "dependency_matrix": {k: dict(row) for k, row in self.matrix.items()},
+            "effort": self.effort.to_dict(),
+        }
+
+    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
+        from rich.padding import Padding
+        from rich.table import Table
+        from rich.text import Text
+
+        titles = {c: t for c, t, _ in self.causes}
+        yield Text(f"{self.title} ({self.complaint})", style="bold")
+        yield Text(
+            f"P(top) exact {_num(self.probability)}, rare-event {_num(self.rare_event)}, "
+            f"min-cut upper bound {_num(self.upper_bound)}; "
+            f"{len(self.cut_sets)} minimal cut set(s)"
+        )
+        shown = self.cut_sets[:SHOWN_CUT_SETS]
+        if any(len(s) > 1 for s in self.cut_sets):
+            more = len(self.cut_sets) - len(shown)
+            yield Text("cut sets: " + "; ".join(" & ".join(s) for s in shown)
+                       + (f"; and {more} more" if more else ""))
+        imp = Table(title="Importance of each cause", title_justify="left", show_edge=False)
+        for head in ("cause", "q", "Birnbaum", "F-V", "RAW", "RRW"):
+            imp.add_column(head, justify="left" if head == "cause" else "right")
+        for i in sorted(self.importances, key=lambda i: -i.fussell_vesely):
+            imp.add_row(i.cause, _num(i.q), _num(i.birnbaum), _num(i.fussell_vesely),
+                        _num(i.risk_achievement_worth), _num(i.risk_reduction_worth))
+        yield imp
+        for mode in MODES:
+            t = self.testability[mode]
+            line = (f"{mode}: detected {_pct(t.detection)}, isolated {_pct(t.isolation)} "
+                    f"(by prior)")
+            if t.closest is not None:
+                line += f"; closest pair {t.closest[0]} / {t.closest[1]} at {t.closest[2]:.2f}"
+            if t.undetected:
+                line += "; no check detects " + ", ".join(t.undetected)
+            yield Text(line)
+            for g in t.groups:
+                names = ", ".join(f"{c} ({titles.get(c, c)})" for c in g.causes)
+                yield Padding(Text(f"ambiguity group: {names}", style="yellow"), (0, 0, 0, 2))
+                yield Padding(Text(f"hint: {g.hint}"), (0, 0, 0, 4))
+        yield Text(_effort_line(self.effort))
+        yield Text("")
+
+
+@dataclass(frozen=True)
+class PackAnalysis:
+    """The analysis of every complaint of a pack (or of the one asked for) and the totals."""
+
+    pack: str
+    title: str
+    version: str
+    threshold: float
+    complaints: tuple[ComplaintAnalysis, ...]
+    detection: Mapping[str, float]  # mode -> prior-weighted share over the pack's causes
+    isolation: Mapping[str, float]  # mode -> share isolated in every complaint they belong to
+    undetected: Mapping[str, tuple[str, ...]]  # mode -> causes no check detects
+    idle_checks: tuple[str, ...]
+    effort_note: str = ""
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def groups(self) -> tuple[Any, ...]:
+        return tuple(g for c in self.complaints for g in c.groups)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "pack": self.pack,
+            "title": self.title,
+            "version": self.version,
+            "threshold": self.threshold,
+            "summary": {
+                "detection": dict(self.detection),
+                "isolation": dict(self.isolation),
+                "undetected": {m: list(v) for m, v in self.undetected.items()},
+                "ambiguity_groups": {
+                    m: sum(1 for g in self.groups if g.mode == m) for m in MODES
+                },
+                "idle_checks": list(self.idle_checks),
+                "effort": self.effort_note,
+                "notes": list(self.notes),
+            },
+            "complaints": [c.to_dict() for c in self.complaints],
+        }
+
+    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
+        from rich.rule import Rule
+        from rich.text import Text
+
+        yield Text(f"Knowledge analysis: {self.title} ({self.pack} {self.version})",
+                   style="bold underline")
+        yield Text(f"rows told apart at total variation > {self.threshold:g}")
+        yield Text("")
+        for c in self.complaints:
+            yield Rule(style="dim")
+            yield c
+        yield Rule("pack", style="dim")
+        for mode in MODES:
+            line = (f"{mode}: detected {_pct(self.detection[mode])}, isolated "
+                    f"{_pct(self.isolation[mode])} of the causes (by prior); "
+                    f"{sum(1 for g in self.groups if g.mode == mode)} ambiguity group(s)")
+            yield Text(line)
+        if self.undetected["site"]:
+            yield Text("no check detects: " + ", ".join(self.undetected["site"]), style="yellow")
+        if self.idle_checks:
+            yield Text("checks that never change any ranking: " + ", ".join(self.idle_checks),
+                       style="yellow")
+        for note in self.notes:
+            yield Text(note, style="dim")
+
+
+def analyze(
+    model: Model,
+    *,
+    complaint: str | None = None,
+    threshold: float = THRESHOLD,
+    effort: bool = True,
+    runs: int | None = None,
+) -> PackAnalysis:
+    """The knowledge analysis of ``model``: every complaint, or only ``complaint``.
+
+    ``effort=False`` leaves out the simulator (the entropy bound is still
+    given); ``runs`` is passed on to the simulator when it takes a number of runs.
+
+    Raises:
+        InputError: unknown complaint.
+    """
+    if complaint is not None and complaint not in model.complaints:
+        known = ", ".join(model.complaints)
+        raise InputError("--complaint", f"unknown complaint {complaint!r}; known: {known}")
+    ids = (complaint,) if complaint else tuple(model.complaints)
+    simulator = _simulator() if effort else None
+    if simulator is not None:
+        note = f"simulated, {runs or RUNS} calls per policy and complaint (seed {SEED})"
+    else:
+        note = NO_SIMULATOR if effort else "effort not asked for"
+    parts = tuple(
+        analyze_complaint(model, cid, threshold=threshold, simulator=simulator, note=note,
+                          runs=runs)
+        for cid in ids
+    )
+    causes = tuple(dict.fromkeys(c for cid in ids for c in model.tree_causes(cid)))
+    isolated = {
+        m: tuple(c for c in causes
+                 if all(c in p.testability[m].isolated
+                        for p in parts if c in p.testability[m].causes))
+        for m in MODES
+    }
+    return PackAnalysis(
+        pack=model.id,
+        title=model.title,
+        version=model.version,
+        threshold=threshold,
+        complaints=parts,
+        detection={m: weighted_share(model, causes, set(causes) - set(
+            undetected_causes(model, mode=m, threshold=threshold))) for m in MODES},
+        isolation={m: weighted_share(model, causes, isolated[m]) for m in MODES},
+        undetected={m: tuple(c for c in undetected_causes(model, mode=m, threshold=threshold)
+                             if c in causes) for m in MODES},
+        idle_checks=idle_checks(model, threshold=threshold),
+        effort_note=note,
+    )
+
+
+def analyze_complaint(
+    model: Model,
+    complaint: str,
+    *,
+    threshold: float = THRESHOLD,
+    simulator: Any = None,
+    note: str = NO_SIMULATOR,
+    runs: int | None = None,
+) -> ComplaintAnalysis:
+    """Fault tree, testability and effort of one complaint (see ``analyze``)."""
+    sets = minimal_cut_sets(model, complaint)
+    q = cause_probabilities(model)
+    causes = model.tree_causes(complaint)
+    bound = entropy_bound(model, complaint)
+    eff = Effort(available=False, note=note, **bound)
+    if simulator is not None:
+        eff = simulator(model, complaint, bound, runs)
+    return ComplaintAnalysis(
+        complaint=complaint,
+        title=model.complaints[complaint].title,
+        causes=tuple((c, model.causes[c].title, model.causes[c].prior) for c in causes),
+        cut_sets=tuple(tuple(c for c in model.causes if c in s) for s in sets),
+        probability=top_event_probability(model, complaint),
+        rare_event=rare_event_approximation(sets, q),
+        upper_bound=min_cut_upper_bound(sets, q),
+        importances=importances(model, complaint, cut_sets=sets),
+        testability={m: testability(model, complaint, mode=m, threshold=threshold)
+                     for m in MODES},
+        effort=eff,
+        matrix=dependency_matrix(model, complaint, mode="site"),
+    )
+
+
+def entropy_bound(model: Model, complaint: str) -> dict[str, float | None]:
+    """The entropy lower bound of the effort to find the cause of ``complaint``.
+
+    With the causes of the tree weighted by their priors, ``H`` bits must be
+    learnt. A check with ``m`` outcomes gives at most ``log2 m`` bits, so at
+    least ``H / log2 m_max`` checks are needed on average, and at least
+    ``H / r`` minutes where ``r`` is the best bits-per-minute of the site
+    checks that see a cause of the complaint; the expected minutes of the
+    quickest repair of the true cause are added to the minutes. A bound for
+    strategies that find the cause before they repair; trying a repair as a
+    test can go below it.
+
+    References:
+        C. E. Shannon, "A mathematical theory of communication", 1948
+        (noiseless coding theorem); D. W. Loveland, "Performance bounds for
+        binary testing with arbitrary weights", Acta Informatica 22, 1985.
+    """
+    causes = model.tree_causes(complaint)
+    total = sum(model.causes[c].prior for c in causes)
+    probs = [model.causes[c].prior / total for c in causes] if total > 0 else []
+    bits = -sum(p * math.log2(p) for p in probs if p > 0)
+    seeing = [k for k in available_checks(model, "site")
+              if len(k.outcomes) > 1 and any(c in k.effects for c in causes)]
+    repair = 0.0
+    for c, p in zip(causes, probs):
+        fixes = [model.repairs[r].minutes for r in model.repairs_for(c)]
+        repair += p * (min(fixes) if fixes else 0.0)
+    if not seeing:
+        return {"entropy_bits": bits, "bound_checks": None, "bound_minutes": None}
+    best_bits = max(math.log2(len(k.outcomes)) for k in seeing)
+    best_rate = max(math.log2(len(k.outcomes)) / k.minutes for k in seeing)
+    return {
+        "entropy_bits": bits,
+        "bound_checks": bits / best_bits,
+        "bound_minutes": bits / best_rate + repair,
+    }
+
+
+def complaint_model(model: Model, complaint: str) -> Model:
+    """``model`` cut down to one complaint: its tree's causes and events, every check and repair.
+
+    What the simulator runs on to give the effort of one complaint.
+    """
+    keep: set[str] = set()
+    stack = [complaint]
+    while stack:
+        node = stack.pop()
+        gate = model.complaints[node].gate if node in model.complaints else model.events.get(node)
+        if gate is not None and node not in keep:
+            keep.add(node)
+            stack.extend(gate.inputs)
+    tree = set(model.tree_causes(complaint))
+    return replace(
+        model,
+        complaints={complaint: model.complaints[complaint]},
+        events={e: g for e, g in model.events.items() if e in keep},
+        causes={c: v for c, v in model.causes.items() if c in tree},
+        cases={},
+        graph=None,
+    )
+
+
+def _simulator() -> Any:
+    """A function (model, complaint, bound, runs) -> Effort, or None without the simulator."""
+    try:
+        from diagnose.reasoning.simulate import simulate
+    except ImportError:
+        return None
+
+    def run(model: Model, complaint: str, bound: dict[str, Any], runs: int | None) -> Effort:
+        n = runs or RUNS
+        try:
+            report = simulate(complaint_model(model, complaint), runs=n, seed=SEED,
+                              policies=("planner", "chart"))
+        except DiagnoseError as exc:
+            return Effort(available=False, note=f"simulator failed: {exc}", **bound)
+        planner, chart = report.policies["planner"], report.policies["chart"]
+        return Effort(
+            available=True,
+            note=f"{n} simulated calls per policy on this complaint's causes (seed {SEED})",
+            expected_minutes=planner.mean_minutes,
+            expected_checks=planner.mean_checks,
+            chart_minutes=chart.mean_minutes,
+            chart_checks=chart.mean_checks,
+            cured=planner.cured,
+            runs=n,
+            **bound,
+        )
+
+    return run
+
+
+def _effort_line(e: Effort) -> str:
+    bound = ""
+    if e.bound_minutes is not None:
+        bound = (f"entropy bound {e.bound_minutes:.0f} min, {e.bound_checks:.1f} checks "
+                 f"({e.entropy_bits:.2f} bits)")
+    if not e.available:
+        return f"effort: {e.note}" + (f"; {bound}" if bound else "")
+    line = f"effort to cure: {e.expected_minutes:.0f} min, {e.expected_checks:.1f} checks"
+    if e.chart_minutes is not None:
+        line += f"; chart {e.chart_minutes:.0f} min, {e.chart_checks:.1f} checks"
+    return line + (f"; {bound}" if bound else "")
+
+
+def _num(x: float) -> str:
+    if math.isinf(x):
+        return "inf"
+    if x == 0:
+        return "0"
+    if abs(x) >= 0.01:
+        return f"{x:.4g}"
+    return f"{x:.3g}"
+
+
+def _pct(x: float) -> str:
+    return f"{100 * x:.0f}%"

@@ -1,0 +1,87 @@
+"""The knowledge analysis as a Markdown or HTML report for trainers.
+
+Renders ``PackAnalysis.to_dict()`` with the Jinja2 templates
+``templates/analysis.md.j2`` and ``templates/analysis.html.j2`` (HTML with
+autoescape on), so that the report says what ``--json`` says.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import Any
+
+from diagnose.errors import InputError
+
+FORMATS = ("md", "html")
+_TEMPLATES = Path(__file__).parent / "templates"
+
+
+def render_analysis(analysis: Any, fmt: str = "md") -> str:
+    """The report text of a ``PackAnalysis`` (or of its ``to_dict()``) in ``fmt``.
+
+    Raises:
+        InputError: ``fmt`` is not "md" or "html".
+    """
+    if fmt not in FORMATS:
+        raise InputError("--format", f"unknown report format {fmt!r}; use md or html")
+    data = analysis if isinstance(analysis, dict) else analysis.to_dict()
+    return _environment().get_template(f"analysis.{fmt}.j2").render(a=data)
+
+
+def write_analysis(analysis: Any, path: str | Path, fmt: str | None = None) -> Path:
+    """Write the report to ``path``; the format defaults to the file's suffix (.md, .html).
+
+    Raises:
+        InputError: unknown format, or the file cannot be written.
+    """
+    path = Path(path)
+    if fmt is None:
+        fmt = {".htm": "html", ".html": "html"}.get(path.suffix.lower(), "md")
+    text = render_analysis(analysis, fmt)
+    try:
+        path.write_text(text, encoding="utf-8")
+    except OSError as exc:
+        raise InputError("--output", f"cannot write {path}: {exc.strerror}") from None
+    return path
+
+
+def _environment() -> Any:
+    from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
+
+    env = Environment(
+        loader=FileSystemLoader(str(_TEMPLATES)),
+        autoescape=select_autoescape(enabled_extensions=("html.j2",), default=False),
+        undefined=StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        keep_trailing_newline=True,
+    )
+    env.filters["num"] = _num
+    env.filters["pct"] = _pct
+    env.filters["cell"] = _cell
+    env.filters["minutes"] = _minutes
+    return env
+
+
+def _num(x: Any) -> str:
+    """A probability or importance for people: four significant digits."""
+    if x is None:
+        return "inf"  # an infinite risk reduction worth is written null in the data
+    x = float(x)
+    if math.isinf(x):
+        return "inf"
+    return "0" if x == 0 else f"{x:.4g}"
+
+
+def _pct(x: Any) -> str:
+    return "n/a" if x is None else f"{100 * float(x):.0f}%"
+
+
+def _minutes(x: Any) -> str:
+    return "n/a" if x is None else f"{float(x):.1f}"
+
+
+def _cell(text: Any) -> str:
+    """Text safe inside a Markdown table cell."""
+    return str(text).replace("|", "\\|").replace("\n", " ")
