@@ -168,3 +168,27 @@ def test_load_model_raises_knowledge_error_with_all_problems(tmp_path):
         load_model(str(bad))
     assert any(p.code == "unreachable-cause" for p in err.value.problems)
     assert "bad/pack.yaml:5" in str(err.value)
+
+
+def test_device_pack_extends_a_base_check_with_its_own_causes():
+    model = load_model("permanent-magnet-brake")
+    row = model.checks["coil_voltage"].effects["pm_supply_above_window"]
+    assert row["high"] == pytest.approx(0.47)
+    # the base pack on its own knows nothing of the device's causes
+    assert "pm_supply_above_window" not in load_model("electrical-supply").checks[
+        "coil_voltage"].effects
+
+
+def test_extending_an_unknown_check_is_an_error(tmp_path):
+    from diagnose.kb.lint import lint_paths
+
+    pack = tmp_path / "p"
+    pack.mkdir()
+    for f in MINI.glob("*.yaml"):
+        (pack / f.name).write_text(f.read_text())
+    (pack / "more.yaml").write_text("extend_checks:\n  - check: listen_clik\n"
+                                    "    effects:\n      coil_open: {silent: 0.9}\n")
+    (res,) = lint_paths([str(pack)])
+    assert any(p.code == "unknown-ref" and "listen_click" in p.message
+               and p.source.file.endswith("more.yaml") and p.source.line == 2
+               for p in res.errors), [str(p) for p in res.problems]

@@ -56,6 +56,7 @@ class _Item:
 class _Ctx:
     problems: list[Problem] = field(default_factory=list)
     items: dict[str, dict[str, _Item]] = field(default_factory=lambda: {s: {} for s in SECTIONS})
+    extensions: list[_Item] = field(default_factory=list)  # `extend_checks` entries
 
     def error(self, msg: str, src: Source | None, code: str) -> None:
         self.problems.append(Problem("error", msg, src, code))
@@ -94,7 +95,7 @@ def _schema_problems(doc: Document, is_manifest: bool, ctx: _Ctx) -> set[Path]:
     bad: set[Path] = set()
     for err in sorted(validator.iter_errors(doc.data), key=lambda e: list(map(str, e.path))):
         path = tuple(err.absolute_path)
-        if len(path) >= 2 and path[0] in SECTIONS:
+        if len(path) >= 2 and (path[0] in SECTIONS or path[0] == "extend_checks"):
             bad.add(path[:2])
         at = path
         if err.validator == "additionalProperties" and isinstance(err.instance, dict):
@@ -144,6 +145,12 @@ def _collect(sources: list[Any], ctx: _Ctx) -> None:
     for src in sources:
         for n, doc in enumerate(src.documents):
             bad = _schema_problems(doc, n == 0, ctx)
+            exts = doc.data.get("extend_checks") if isinstance(doc.data, dict) else None
+            for i, raw in enumerate(exts if isinstance(exts, list) else []):
+                if isinstance(raw, dict) and isinstance(raw.get("check"), str):
+                    ctx.extensions.append(_Item("extend_checks", raw["check"], raw, doc,
+                                                ("extend_checks", i), src.id,
+                                                ("extend_checks", i) not in bad))
             for section in SECTIONS:
                 entries = doc.data.get(section) if isinstance(doc.data, dict) else None
                 if not isinstance(entries, list):
@@ -445,6 +452,19 @@ def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
         if ctx.ref(cause, ("causes",), it.at("effects", cause), f"check {it.id!r} effect on"):
             effects[cause] = _distribution(row, outcomes, it, ("effects", cause),
                                            f"effects of {cause!r}", ctx)
+    for ext in ctx.extensions:
+        if ext.id != it.id:
+            continue
+        for cause, row in _map(ext.data.get("effects")).items():
+            if not ctx.ref(cause, ("causes",), ext.at("effects", cause),
+                           f"extension of check {it.id!r}: effect on"):
+                continue
+            if cause in effects:
+                ctx.error(f"check {it.id!r} already has effects of {cause!r}",
+                          ext.at("effects", cause), "duplicate-id")
+                continue
+            effects[cause] = _distribution(row, outcomes, ext, ("effects", cause),
+                                           f"effects of {cause!r}", ctx)
     if "normal" in d:
         normal = _distribution(d["normal"], outcomes, it, ("normal",), "normal", ctx)
     elif d.get("preparation"):
@@ -692,6 +712,8 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
                   for i, x in it["complaints"].items()}
     checks = {i: _check(x, ctx, params) for i, x in it["checks"].items()}
     repairs = {i: _repair(x, ctx) for i, x in it["repairs"].items()}
+    for ext in ctx.extensions:
+        ctx.ref(ext.id, ("checks",), ext.at("check"), "extend_checks: check")
     cases = {i: _case(x, ctx, checks) for i, x in it["tests"].items() if x.pack == top.id}
 
     digest = hashlib.sha256()

@@ -156,6 +156,18 @@ REPAIR = {
     },
 }
 
+EXTENSION = {
+    "type": "object",
+    "required": ["check", "effects"],
+    "additionalProperties": False,
+    "description": "effects of this pack's causes on a check of a pack it builds on",
+    "properties": {
+        "check": ID,
+        "effects": {"type": "object", "propertyNames": ID, "additionalProperties": DISTRIBUTION,
+                    "minProperties": 1},
+    },
+}
+
 STEP = {
     "type": "object",
     "additionalProperties": False,
@@ -216,6 +228,7 @@ PACK_FILE_SCHEMA: dict[str, Any] = {
         "checks": _section(CHECK),
         "repairs": _section(REPAIR),
         "tests": _section(CASE),
+        "extend_checks": _section(EXTENSION),
     },
 }
 
