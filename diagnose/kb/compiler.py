@@ -73,6 +73,8 @@ class _Ctx:
     def ref(self, value: Any, sections: tuple[str, ...], src: Source, what: str,
             extra: Iterable[str] = ()) -> bool:
         """True when ``value`` names an entity of ``sections``; else an error with a suggestion."""
+        if isinstance(value, str) and any(value in self.items[s] for s in sections):
+            return True
         pool = self.ids(*sections) + list(extra)
         if value in pool:
             return True
@@ -141,10 +143,10 @@ def _describe_path(path: Path) -> str:
 # collection
 
 
-def _collect(sources: list[Any], ctx: _Ctx) -> None:
+def _collect(sources: list[Any], ctx: _Ctx, schema: bool = True) -> None:
     for src in sources:
         for n, doc in enumerate(src.documents):
-            bad = _schema_problems(doc, n == 0, ctx)
+            bad = _schema_problems(doc, n == 0, ctx) if schema else set()
             exts = doc.data.get("extend_checks") if isinstance(doc.data, dict) else None
             for i, raw in enumerate(exts if isinstance(exts, list) else []):
                 if isinstance(raw, dict) and isinstance(raw.get("check"), str):
@@ -562,29 +564,29 @@ def _tree_checks(model: Model, ctx: _Ctx) -> bool:
     for gate in list(model.events.values()) + [c.gate for c in model.complaints.values()]:
         for x in gate.inputs:
             g.add_edge(x, gate.id)
-    try:
-        cycle = nx.find_cycle(g)
-    except nx.NetworkXNoCycle:
-        cycle = None
+    cycle = None if nx.is_directed_acyclic_graph(g) else nx.find_cycle(g)
     if cycle:
         names = " -> ".join([cycle[0][0]] + [v for _, v in cycle])
         first = model.events.get(cycle[0][1]) or model.complaints.get(cycle[0][1])
         src = first.source if first else None
         ctx.error(f"the fault tree has a cycle: {names}", src, "cycle")
         return False
-    reached: set[str] = set()
+    feeding: set[str] = set()  # everything below some complaint, in one sweep
+    stack = [c for c in model.complaints if c in g]
+    while stack:
+        for parent in g.predecessors(stack.pop()):
+            if parent not in feeding:
+                feeding.add(parent)
+                stack.append(parent)
     for comp in model.complaints.values():
-        causes = model.tree_causes(comp.id)
-        if not causes:
+        if not model.tree_causes(comp.id):
             ctx.error(f"complaint {comp.id!r} has no cause below it", comp.source, "no-cause")
-        reached.update(causes)
     for cause in model.causes.values():
-        if cause.id not in reached:
+        if cause.id not in feeding:
             ctx.error(f"cause {cause.id!r} reaches no complaint: put it under a complaint's or "
                       "event's `inputs`", cause.source, "unreachable-cause")
     for ev in model.events.values():
-        if not nx.has_path(g, ev.id, ev.id) and not any(
-                nx.has_path(g, ev.id, c) for c in model.complaints if c in g):
+        if ev.id not in feeding:
             ctx.warn(f"event {ev.id!r} reaches no complaint", ev.source, "unreachable-event")
     return True
 
@@ -606,13 +608,11 @@ def _usage_checks(model: Model, ctx: _Ctx) -> None:
     import networkx as nx
 
     needs = nx.DiGraph([(c.id, n) for c in model.checks.values() for n in c.needs])
-    try:
+    if not nx.is_directed_acyclic_graph(needs):
         cycle = nx.find_cycle(needs)
         ctx.error("checks need each other in a circle: "
                   + " -> ".join([cycle[0][0]] + [v for _, v in cycle]),
                   model.checks[cycle[0][0]].source, "needs")
-    except nx.NetworkXNoCycle:
-        pass
 
 
 # ---------------------------------------------------------------------------------------------
@@ -681,14 +681,17 @@ def build_graph(model: Model) -> Any:
 
 
 def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None = None,
-                    with_graph: bool = True) -> tuple[Model | None, list[Problem]]:
+                    with_graph: bool = True, schema: bool = True
+                    ) -> tuple[Model | None, list[Problem]]:
     """Compile the documents of a pack chain (base packs first) into a Model.
 
     Returns the model (``None`` when any error was found) and every problem.
     ``learned`` replaces the priors of the causes it names (an overlay).
+    ``schema=False`` skips the JSON Schema pass, for data that code built and
+    already checked (the benchmark times that pass on its own).
     """
     ctx = _Ctx()
-    _collect(sources, ctx)
+    _collect(sources, ctx, schema)
     it = ctx.items
     top = sources[-1]
     manifest = top.manifest
@@ -741,7 +744,7 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
 
 
 def compile_pack(files: list[tuple[str, dict[str, Any]]], *, pack_id: str = "inline",
-                 with_graph: bool = True) -> Model:
+                 with_graph: bool = True, schema: bool = True) -> Model:
     """Compile in-memory pack files (name, data) with no positions: for benchmarks and tests.
 
     Raises:
@@ -752,7 +755,7 @@ def compile_pack(files: list[tuple[str, dict[str, Any]]], *, pack_id: str = "inl
 
     src = PackSource(id=pack_id, folder=pack_id,
                      documents=[Document(name, data) for name, data in files])
-    model, problems = compile_sources([src], with_graph=with_graph)
+    model, problems = compile_sources([src], with_graph=with_graph, schema=schema)
     if model is None:
         raise KnowledgeError([p for p in problems if p.level == "error"])
     return model

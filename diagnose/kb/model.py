@@ -245,7 +245,16 @@ class Model:
             gate = self.complaints[cur].gate if cur in self.complaints else self.events.get(cur)
             if gate is not None:
                 stack.extend(gate.inputs)
-        return tuple(c for c in self.causes if c in found)
+        order = self._cause_order()
+        return tuple(sorted(found, key=order.__getitem__))
+
+    def _cause_order(self) -> dict[str, int]:
+        """Listing position of each cause (computed once per model)."""
+        order = self.__dict__.get("_order")
+        if order is None:
+            order = {c: i for i, c in enumerate(self.causes)}
+            object.__setattr__(self, "_order", order)
+        return order
 
     def repairs_for(self, cause: str) -> tuple[str, ...]:
         return tuple(r.id for r in self.repairs.values() if cause in r.fixes)

@@ -1,0 +1,268 @@
+"""Benchmark of the reasoner: ``python -m diagnose.bench``.
+
+For synthetic packs of 200, 2,000 and 10,000 causes (about one check per five
+causes; :func:`diagnose.reasoning.synthetic.synthetic_model`) it prints:
+
+* the median milliseconds of one step: add one finding to the evidence, then
+  the posterior and the full ranking of the next actions (every check's
+  expected information and ECO, every repair's p/c, sorted, and the choice);
+* the compile time of the same pack as raw data through the knowledge
+  compiler (``diagnose.kb.compiler.compile_pack``: references, fault tree,
+  effects, the networkx graph), and apart from it the JSON Schema pass, which
+  belongs to loading a pack from YAML;
+* the peak memory (tracemalloc) of compiling and of one planning step;
+* on the 200-cause pack, pgmpy's VariableElimination for the same posterior,
+  and how many times slower it is than the reasoner.
+
+The Bayesian network given to pgmpy is the reasoner's model written out: one
+root ``H`` over the hypotheses and one child per piece of evidence.
+"""
+
+from __future__ import annotations
+
+import argparse
+import gc
+import statistics
+import time
+import tracemalloc
+from typing import Any
+
+import numpy as np
+
+from diagnose.kb.model import PER, UNKNOWN_CAUSE, Check, Model
+from diagnose.reasoning.evidence import Evidence
+
+SIZES = (200, 2000, 10000)
+
+
+def _hypotheses(model: Model, max_faults: int) -> list[frozenset[str] | None]:
+    ids = list(model.causes)
+    hyps: list[frozenset[str] | None] = [frozenset({c}) for c in ids]
+    if max_faults == 2:
+        hyps += [frozenset({a, b}) for i, a in enumerate(ids) for b in ids[i + 1:]]
+    return [*hyps, None]
+
+
+def _row(check: Check, h: frozenset[str] | None) -> list[float]:
+    if h is None:
+        return [check.unknown[o] for o in check.outcomes]
+    listed = [c for c in h if c in check.effects]
+    if not listed:
+        return [check.normal[o] for o in check.outcomes]
+    return [sum(check.effects[c][o] for c in listed) / len(listed) for o in check.outcomes]
+
+
+def bayesian_network(model: Model, evidence: Evidence, max_faults: int = 1,
+                     ) -> tuple[Any, dict[str, str], list[Any], list[str]]:
+    """The model as a pgmpy network for ``evidence``: (network, hard evidence, virtual, labels).
+
+    One root ``H`` over the hypotheses (prior as in the reasoner); a child per
+    complaint reported, per check answered (soft answers as virtual evidence)
+    and per repair done.
+    """
+    from pgmpy.factors.discrete import TabularCPD
+    from pgmpy.models import DiscreteBayesianNetwork
+
+    order = list(model.causes)
+    hyps = _hypotheses(model, max_faults)
+    labels = [UNKNOWN_CAUSE if h is None else "+".join(sorted(h, key=order.index)) for h in hyps]
+    if max_faults == 1:
+        prior = np.array([model.unknown_prior if h is None else model.causes[next(iter(h))].prior
+                          for h in hyps], dtype=float)
+    else:
+        def odds(q: float) -> float:
+            return q / (1 - q)
+
+        prior = np.array([odds(model.unknown_prior / PER) if h is None
+                          else float(np.prod([odds(model.causes[c].q) for c in h]))
+                          for h in hyps])
+    n = len(hyps)
+    bn = DiscreteBayesianNetwork()
+    bn.add_node("H")
+    cpds = [TabularCPD("H", n, (prior / prior.sum()).reshape(-1, 1), state_names={"H": labels})]
+    hard: dict[str, str] = {}
+    virtual: list[Any] = []
+
+    def child(node: str, states: list[str], table: np.ndarray) -> None:
+        bn.add_edge("H", node)
+        cpds.append(TabularCPD(node, len(states), table, evidence=["H"], evidence_card=[n],
+                               state_names={node: states, "H": labels}))
+
+    for k in evidence.complaints:
+        yes = np.array([1.0 if h is None or model.holds(k, h) else model.leak for h in hyps])
+        child(f"complaint_{k}", ["yes", "no"], np.vstack([yes, 1 - yes]))
+        hard[f"complaint_{k}"] = "yes"
+    for cid, weights in evidence.findings.items():
+        chk = model.checks[cid]
+        child(f"check_{cid}", list(chk.outcomes), np.array([_row(chk, h) for h in hyps]).T)
+        if len(weights) == 1:
+            hard[f"check_{cid}"] = next(iter(weights))
+        else:
+            virtual.append(TabularCPD(f"check_{cid}", len(chk.outcomes),
+                                      [[weights.get(o, 0.0)] for o in chk.outcomes],
+                                      state_names={f"check_{cid}": list(chk.outcomes)}))
+    for j, (rid, cured) in enumerate(evidence.repairs):
+        r = model.repairs[rid]
+        cure = np.array([r.success if h is not None and any(c in h for c in r.fixes) else 0.0
+                         for h in hyps])
+        child(f"repair_{j}_{rid}", ["cured", "not"], np.vstack([cure, 1 - cure]))
+        hard[f"repair_{j}_{rid}"] = "cured" if cured else "not"
+    bn.add_cpds(*cpds)
+    return bn, hard, virtual, labels
+
+
+def pgmpy_posterior(model: Model, evidence: Evidence, max_faults: int = 1) -> dict[str, float]:
+    """P(h | evidence) from pgmpy's VariableElimination on :func:`bayesian_network`."""
+    from pgmpy.inference import VariableElimination
+
+    bn, hard, virtual, _ = bayesian_network(model, evidence, max_faults)
+    result = VariableElimination(bn).query(["H"], evidence=hard or None,
+                                           virtual_evidence=virtual or None, show_progress=False)
+    return {s: float(v) for s, v in zip(result.state_names["H"], result.values)}
+
+
+def _session(model: Model, steps: int, seed: int) -> tuple[str, list[tuple[str, str]]]:
+    """A complaint and plausible answers: the planner's proposals, answered from one cause."""
+    from diagnose.reasoning.planner import next_action
+
+    rng = np.random.default_rng(seed)
+    cause = list(model.causes)[int(rng.integers(len(model.causes)))]
+    complaint = next(k for k in model.complaints if cause in model.tree_causes(k))
+    ev = Evidence(complaints=(complaint,))
+    out = []
+    for _ in range(steps):
+        a = next_action(model, ev)
+        if a.kind != "check" or a.id is None:
+            break
+        chk = model.checks[a.id]
+        row = chk.effects.get(cause, chk.normal)
+        o = str(rng.choice(chk.outcomes, p=np.array([row[x] for x in chk.outcomes])))
+        out.append((a.id, o))
+        ev = ev.with_outcome(a.id, o)
+    return complaint, out
+
+
+def _step_times(model: Model, answers: list[tuple[str, str]], complaint: str) -> list[float]:
+    from diagnose.reasoning.planner import plan
+    from diagnose.reasoning.posterior import posterior
+
+    ev = Evidence(complaints=(complaint,))
+    times = []
+    for cid, o in answers:
+        t0 = time.perf_counter()
+        ev = ev.with_outcome(cid, o)
+        post = posterior(model, ev)
+        pl = plan(model, ev, post=post)
+        np.lexsort((np.nan_to_num(pl.check_eco, nan=np.inf), pl.check_code != 0))  # all checks
+        np.argsort(-(pl.p_cure / pl.repair_minutes))  # all repairs
+        times.append((time.perf_counter() - t0) * 1000)
+    return times
+
+
+def run(sizes: tuple[int, ...] = SIZES, *, seed: int = 1, steps: int = 12,
+        pgmpy: bool = True) -> list[dict[str, Any]]:
+    """Measure each size; returns one row per size (see the module docstring)."""
+    from diagnose.reasoning.synthetic import pack_data, synthetic_model
+    from diagnose.reasoning.tables import tables_for
+
+    rows = []
+    for n in sizes:
+        model = synthetic_model(n, seed=seed)
+        data = pack_data(model)
+        row: dict[str, Any] = {"causes": n, "checks": len(model.checks) - 1,
+                               "repairs": len(model.repairs)}
+        from diagnose.kb.compiler import compile_pack
+
+        gc.collect()
+        t0 = time.perf_counter()
+        compiled = compile_pack([("pack.yaml", data)], pack_id=model.id, schema=False)
+        row["compile_s"] = time.perf_counter() - t0
+        del compiled
+        t0 = time.perf_counter()
+        compile_pack([("pack.yaml", data)], pack_id=model.id, schema=True)
+        row["schema_s"] = time.perf_counter() - t0 - row["compile_s"]
+        gc.collect()
+        tracemalloc.start()
+        compiled = compile_pack([("pack.yaml", data)], pack_id=model.id, schema=False)
+        row["compile_peak_mb"] = tracemalloc.get_traced_memory()[1] / 2**20
+        tracemalloc.stop()
+        del compiled
+        t0 = time.perf_counter()
+        tables_for(model)
+        row["tables_s"] = time.perf_counter() - t0
+        complaint, answers = _session(model, steps, seed)
+        _step_times(model, answers[:2], complaint)  # warm caches
+        times = _step_times(model, answers, complaint)
+        row["step_ms"] = statistics.median(times) if times else float("nan")
+        gc.collect()
+        tracemalloc.start()
+        _step_times(model, answers[:3], complaint)
+        row["step_peak_mb"] = tracemalloc.get_traced_memory()[1] / 2**20
+        tracemalloc.stop()
+        if pgmpy and n == min(sizes):
+            row.update(_against_pgmpy(model, answers, complaint))
+        rows.append(row)
+    return rows
+
+
+def _against_pgmpy(model: Model, answers: list[tuple[str, str]], complaint: str,
+                   ) -> dict[str, Any]:
+    """Median ms of the same posterior: the reasoner against pgmpy's VariableElimination."""
+    try:
+        from pgmpy.inference import VariableElimination
+    except ImportError:
+        return {}
+    from diagnose.reasoning.posterior import posterior
+
+    ev = Evidence(complaints=(complaint,))
+    for cid, o in answers[:6]:
+        ev = ev.with_outcome(cid, o)
+    bn, hard, virtual, _ = bayesian_network(model, ev)
+    ve = VariableElimination(bn)
+    ours, theirs = [], []
+    for _ in range(5):
+        t0 = time.perf_counter()
+        ve.query(["H"], evidence=hard, virtual_evidence=virtual or None, show_progress=False)
+        theirs.append((time.perf_counter() - t0) * 1000)
+    for _ in range(50):
+        t0 = time.perf_counter()
+        posterior(model, ev)
+        ours.append((time.perf_counter() - t0) * 1000)
+    a, b = statistics.median(ours), statistics.median(theirs)
+    return {"posterior_ms": a, "pgmpy_ms": b, "pgmpy_ratio": b / a}
+
+
+def table(rows: list[dict[str, Any]]) -> str:
+    """The rows as a plain-text table that fits 80 columns."""
+    head = (f"{'causes':>7} {'checks':>6} {'step ms':>8} {'compile s':>9} {'schema s':>8} "
+            f"{'tables s':>8} {'peak MB':>8} {'step MB':>8}")
+    lines = [head, "-" * len(head)]
+    for r in rows:
+        lines.append(f"{r['causes']:>7} {r['checks']:>6} {r['step_ms']:>8.2f} "
+                     f"{r['compile_s']:>9.2f} {r.get('schema_s', float('nan')):>8.2f} "
+                     f"{r['tables_s']:>8.3f} "
+                     f"{r['compile_peak_mb']:>8.1f} {r['step_peak_mb']:>8.1f}")
+    for r in rows:
+        if "pgmpy_ms" in r:
+            lines.append("")
+            lines.append(f"posterior at {r['causes']} causes: reasoner {r['posterior_ms']:.3f} ms, "
+                         f"pgmpy VariableElimination {r['pgmpy_ms']:.1f} ms "
+                         f"({r['pgmpy_ratio']:.0f}x)")
+    lines.append("step: add one finding, posterior, rank every check and repair, choose")
+    return "\n".join(lines)
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(prog="python -m diagnose.bench",
+                                     description="Benchmark the reasoner on synthetic packs.")
+    parser.add_argument("--sizes", type=int, nargs="+", default=list(SIZES), metavar="N")
+    parser.add_argument("--seed", type=int, default=1)
+    parser.add_argument("--no-pgmpy", action="store_true", help="skip the pgmpy comparison")
+    args = parser.parse_args(argv)
+    rows = run(tuple(args.sizes), seed=args.seed, pgmpy=not args.no_pgmpy)
+    print(table(rows))
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

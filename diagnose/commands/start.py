@@ -1,0 +1,36 @@
+"""`diagnose start [PACK] [--mode site|phone]`: the interactive diagnosis shell.
+
+Bare `diagnose` calls :func:`default`, which opens the shell on the default
+pack in site mode. The shell itself (prompt_toolkit, rich) is imported only
+when it runs, so `diagnose --help` stays fast.
+"""
+
+from __future__ import annotations
+
+import argparse
+from typing import Any
+
+
+def register(sub: Any) -> None:
+    p = sub.add_parser(
+        "start", help="open the interactive diagnosis shell (the default command)",
+        description="Diagnose one unit interactively: safety notice, nameplate, complaint, "
+        "then the proposed checks, readings and repairs until the cure or an escalation. "
+        "Without a terminal, answers are read line by line from standard input.")
+    p.add_argument("pack", nargs="?", metavar="PACK",
+                   help="pack id or folder (default: spring-applied-brake)")
+    p.add_argument("--mode", choices=("site", "phone"), default="site",
+                   help="site: a technician at the unit (default); phone: a help-desk agent "
+                   "guiding a caller, with caller-safe checks only")
+    p.set_defaults(handler=run)
+
+
+def default(args: argparse.Namespace) -> int:
+    """Bare `diagnose`: the shell on the default pack, in site mode."""
+    return run(args)
+
+
+def run(args: argparse.Namespace) -> int:
+    from diagnose.shell.app import main
+
+    return main(args)

@@ -1,0 +1,351 @@
+"""The record of one session: its events read back into what a repair log shows.
+
+``build_record(info, events, model, rankings)`` folds a session's events (as
+the journal stored them; see the table of kinds in ``diagnose.session``) into
+a :class:`Record`: the unit and its nameplate, the complaint, every step with
+its time, answer or reading (with the computed figures and the verdict), the
+ranking after it, the cautions acknowledged, the repairs and their results,
+the confirmed cause and the minutes. The report, the statistics and the
+learning all read sessions through it, so they agree on what a session says.
+
+Undone events (``undo``) are left out, as the session's own fold leaves them
+out. The model (the compiled pack) is optional: it gives titles, prompts and
+the pack's minutes, and recomputes a ranking the journal does not hold;
+without it (a pack since removed) ids stand in for titles.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from datetime import datetime
+from typing import Any
+
+CHECK_KINDS = ("answer", "reading", "unsure", "skip")
+STEP_KINDS = CHECK_KINDS + ("repair",)
+RESOLVED = "resolved"  # the end result that means a repair cured the unit
+
+
+@dataclass(frozen=True)
+class Step:
+    """One step of the diagnosis: a check answered, read, skipped, or a repair done."""
+
+    n: int
+    kind: str  # one of STEP_KINDS
+    time: str
+    id: str  # check or repair id
+    title: str
+    who: str | None = None
+    outcome: str | None = None  # the outcome of a check (of a reading: its verdict)
+    outcome_title: str | None = None
+    reading: str | None = None  # the value(s) as typed
+    summary: str | None = None  # the evaluator's sentence
+    figures: tuple[Mapping[str, Any], ...] = ()  # label, value, unit
+    weights: Mapping[str, float] = field(default_factory=dict)  # soft evidence
+    cured: bool | None = None
+    minutes: float | None = None  # the pack's estimate
+    ranking: tuple[Mapping[str, Any], ...] = ()  # after this step: cause, title, p
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"n": self.n, "kind": self.kind, "time": self.time, "id": self.id,
+                "title": self.title, "who": self.who, "outcome": self.outcome,
+                "outcome_title": self.outcome_title, "reading": self.reading,
+                "summary": self.summary, "figures": [dict(f) for f in self.figures],
+                "weights": dict(self.weights) if len(self.weights) > 1 else {},
+                "cured": self.cured, "minutes": self.minutes,
+                "ranking": [dict(r) for r in self.ranking]}
+
+
+@dataclass(frozen=True)
+class Record:
+    """What one session says, ready for a report or a statistic."""
+
+    session: Mapping[str, Any]
+    pack: Mapping[str, Any]
+    notice: str = ""
+    identity: Mapping[str, str] = field(default_factory=dict)
+    nameplate: tuple[Mapping[str, Any], ...] = ()
+    complaints: tuple[Mapping[str, str], ...] = ()
+    mode: str = "site"
+    steps: tuple[Step, ...] = ()
+    cautions: tuple[Mapping[str, Any], ...] = ()
+    notes: tuple[Mapping[str, Any], ...] = ()
+    initial_ranking: tuple[Mapping[str, Any], ...] = ()
+    final_ranking: tuple[Mapping[str, Any], ...] = ()
+    result: str | None = None  # of the end: resolved, visit, escalated, abandoned
+    cause: Mapping[str, str] | None = None  # confirmed by a cure
+    end: Mapping[str, Any] | None = None
+    started: str = ""
+    ended: str = ""
+    clock_minutes: float | None = None
+    minutes_to_cure: float | None = None
+    work_minutes: float = 0.0
+    events: int = 0
+    undone: int = 0
+    recomputed: bool = False  # rankings worked out again from the events, not as shown
+
+    @property
+    def repairs(self) -> tuple[Step, ...]:
+        return tuple(s for s in self.steps if s.kind == "repair")
+
+    @property
+    def checks(self) -> tuple[Step, ...]:
+        return tuple(s for s in self.steps if s.kind in CHECK_KINDS)
+
+    @property
+    def cured(self) -> bool:
+        return any(s.cured for s in self.repairs)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "session": dict(self.session), "pack": dict(self.pack), "notice": self.notice,
+            "identity": dict(self.identity), "nameplate": [dict(p) for p in self.nameplate],
+            "complaints": [dict(c) for c in self.complaints], "mode": self.mode,
+            "steps": [s.to_dict() for s in self.steps],
+            "cautions": [dict(c) for c in self.cautions],
+            "repairs": [s.to_dict() for s in self.repairs],
+            "notes": [dict(n) for n in self.notes],
+            "initial_ranking": [dict(r) for r in self.initial_ranking],
+            "final_ranking": [dict(r) for r in self.final_ranking],
+            "result": self.result, "cause": dict(self.cause) if self.cause else None,
+            "end": dict(self.end) if self.end else None,
+            "started": self.started, "ended": self.ended,
+            "clock_minutes": self.clock_minutes, "minutes_to_cure": self.minutes_to_cure,
+            "work_minutes": self.work_minutes, "events": self.events, "undone": self.undone,
+            "rankings_recomputed": self.recomputed,
+        }
+
+
+# --- reading the events --------------------------------------------------------------------
+
+
+def _title(table: Mapping[str, Any], key: str) -> str:
+    return str(getattr(table.get(key), "title", "") or key)
+
+
+def _cause_title(model: Any, cid: str) -> str:
+    causes = getattr(model, "causes", None) or {}
+    if cid in causes:
+        return _title(causes, cid)
+    return "None of the known causes" if cid == "unknown" else cid
+
+
+def _named(ranking: Sequence[Mapping[str, Any]] | None, model: Any) -> tuple[dict[str, Any], ...]:
+    if not ranking:
+        return ()
+    return tuple({"cause": str(r["cause"]), "title": _cause_title(model, str(r["cause"])),
+                  "p": float(r.get("p", 0.0))} for r in ranking if "cause" in r)
+
+
+def minutes_between(a: str, b: str) -> float | None:
+    """Minutes from ISO time ``a`` to ``b`` (one decimal), or None if either is not a time.
+
+    >>> minutes_between("2025-01-14T09:00:00+00:00", "2025-01-14T09:45:30+00:00")
+    45.5
+    """
+    try:
+        t0, t1 = datetime.fromisoformat(a), datetime.fromisoformat(b)
+        return round(max((t1 - t0).total_seconds(), 0.0) / 60.0, 1)
+    except (TypeError, ValueError):
+        return None
+
+
+def _text(value: Any) -> str:
+    if value is None:
+        return ""
+    if isinstance(value, (list, tuple)):
+        return ", ".join(str(v) for v in value)
+    return str(value)
+
+
+def effective(events: Sequence[Any]) -> tuple[list[int], int]:
+    """Indices of the events that still count (as ``diagnose.session.effective_events``)
+    and how many were undone."""
+    undone = {int(e.data["index"]) for e in events if e.kind == "undo" and "index" in e.data}
+    keep = [i for i, e in enumerate(events) if i not in undone and e.kind != "undo"]
+    return keep, len(undone)
+
+
+def recompute_rankings(events: Sequence[Any], model: Any) -> list[list[dict[str, Any]] | None]:
+    """The ranking after each step, worked out again from the events with ``model``."""
+    from diagnose.journal.recorder import RANKED_KINDS
+    from diagnose.reasoning.posterior import posterior
+    from diagnose.session import fold
+
+    max_faults = 1
+    if events and events[0].kind == "notice":
+        max_faults = int(events[0].data.get("max_faults", 1))
+    out: list[list[dict[str, Any]] | None] = []
+    for i, ev in enumerate(events):
+        if ev.kind not in RANKED_KINDS:
+            out.append(None)
+            continue
+        try:
+            post = posterior(model, fold(events[: i + 1]), max_faults=max_faults)
+            out.append(post.ranking().to_list())
+        except Exception:  # noqa: BLE001 (a pack changed since may not know an id any more)
+            out.append(None)
+    return out
+
+
+def build_record(info: Any, events: Sequence[Any], model: Any = None,
+                 rankings: Sequence[Any] | None = None) -> Record:
+    """The record of a session from its metadata (``SessionInfo``), events and the model.
+
+    ``rankings`` is the ranking kept beside each event (``Journal.load_rankings``);
+    where none was kept and ``model`` is given, they are worked out again.
+    """
+    events = list(events)
+    checks = getattr(model, "checks", None) or {}
+    repairs = getattr(model, "repairs", None) or {}
+    cautions_def = getattr(model, "cautions", None) or {}
+    params = getattr(model, "parameters", None) or {}
+    complaints_def = getattr(model, "complaints", None) or {}
+    ranks = list(rankings) if rankings is not None else [None] * len(events)
+    ranks += [None] * (len(events) - len(ranks))
+    recomputed = False
+    if model is not None and not any(ranks) and any(e.kind in STEP_KINDS for e in events):
+        ranks, recomputed = recompute_rankings(events, model), True
+    who = getattr(info, "who", None)
+
+    notice = ""
+    identity: dict[str, str] = {}
+    nameplate: dict[str, dict[str, Any]] = {}
+    complaints: list[dict[str, str]] = []
+    steps: list[Step] = []
+    cautions: list[dict[str, Any]] = []
+    notes: list[dict[str, Any]] = []
+    initial: tuple[dict[str, Any], ...] = ()
+    final: tuple[dict[str, Any], ...] = ()
+    end: dict[str, Any] | None = None
+    mode = getattr(info, "mode", "site") or "site"
+    keep, undone = effective(events)
+    # The last ranking kept, an undo's included: the ranking once a step was taken back.
+    counted = set(keep) | {i for i, e in enumerate(events) if e.kind == "undo"}
+    for i in sorted(counted):
+        if ranks[i]:
+            final = _named(ranks[i], model)
+    for i in keep:
+        ev = events[i]
+        kind, data, when = ev.kind, dict(ev.data or {}), str(ev.time)
+        ranking = _named(ranks[i], model)
+        if kind == "notice":
+            notice = _text(data.get("text"))
+            mode = _text(data.get("mode")) or mode
+        elif kind == "identity":
+            identity.update({str(k): _text(v) for k, v in data.items()})
+        elif kind == "nameplate":
+            pid = str(data.get("param", ""))
+            p = params.get(pid)
+            nameplate[pid] = {"id": pid, "prompt": getattr(p, "prompt", pid),
+                              "value": _text(data.get("value")), "typed": _text(data.get("text"))}
+        elif kind == "complaint":
+            cid = str(data.get("complaint", ""))
+            if cid and all(c["id"] != cid for c in complaints):
+                complaints.append({"id": cid, "title": _title(complaints_def, cid)})
+            initial = ranking or initial
+        elif kind == "mode":
+            mode = _text(data.get("mode")) or mode
+        elif kind == "ack":
+            cid = str(data.get("caution", ""))
+            c = cautions_def.get(cid)
+            cautions.append({"id": cid, "time": when, "who": who,
+                             "level": str(getattr(c, "level", "")),
+                             "text": str(getattr(c, "text", ""))})
+        elif kind == "note":
+            notes.append({"time": when, "who": who, "text": _text(data.get("text"))})
+        elif kind in CHECK_KINDS:
+            steps.append(_check_step(len(steps) + 1, kind, when, data, checks, who, ranking))
+        elif kind == "repair":
+            rid = str(data.get("repair", ""))
+            cured = bool(data.get("cured"))
+            steps.append(Step(
+                n=len(steps) + 1, kind=kind, time=when, id=rid, title=_title(repairs, rid),
+                who=who, cured=cured, outcome="cured" if cured else "not cured",
+                minutes=getattr(repairs.get(rid), "minutes", None), ranking=ranking))
+        elif kind == "end":
+            end = data
+
+    started = str(events[0].time) if events else str(getattr(info, "started", ""))
+    ended = str((events[keep[-1]] if keep else events[-1]).time) if events else ""
+    if end is not None:
+        ended = next(str(e.time) for e in events if e.kind == "end")
+    cure = next((s for s in steps if s.kind == "repair" and s.cured), None)
+    result = _text((end or {}).get("result")) or getattr(info, "outcome", None)
+    cause_id = confirmed_cause(result, end, steps, model)
+    session = info.to_dict() if hasattr(info, "to_dict") else dict(info or {})
+    first = events[0].data if events and events[0].kind == "notice" else {}
+    pack = {"id": session.get("pack_id") or first.get("pack") or getattr(model, "id", ""),
+            "version": session.get("pack_version") or first.get("version", ""),
+            "content_hash": session.get("content_hash") or first.get("content_hash", ""),
+            "packs": list(first.get("packs", [])),
+            "title": str(getattr(model, "title", "")) if model is not None else "",
+            "current_hash": getattr(model, "content_hash", None) if model is not None else None,
+            "loaded": model is not None,
+            "learned": session.get("learned")}
+    return Record(
+        session=session, pack=pack, notice=notice or str(getattr(model, "notice", "") or ""),
+        identity=identity, nameplate=tuple(nameplate.values()), complaints=tuple(complaints),
+        mode=mode, steps=tuple(steps), cautions=tuple(cautions), notes=tuple(notes),
+        initial_ranking=initial, final_ranking=final or initial, result=result or None,
+        cause={"id": cause_id, "title": _cause_title(model, cause_id)} if cause_id else None,
+        end=end, started=started, ended=ended, clock_minutes=minutes_between(started, ended),
+        minutes_to_cure=minutes_between(started, cure.time) if cure else None,
+        work_minutes=sum(float(s.minutes or 0) for s in steps if s.kind != "skip"),
+        events=len(events), undone=undone, recomputed=recomputed)
+
+
+def _check_step(n: int, kind: str, when: str, data: Mapping[str, Any], checks: Mapping[str, Any],
+                who: str | None, ranking: tuple[dict[str, Any], ...]) -> Step:
+    cid = str(data.get("check", ""))
+    check = checks.get(cid)
+    outcome = data.get("outcome") if kind == "answer" else data.get("verdict")
+    titles = getattr(check, "outcome_titles", None) or {}
+    figures = data.get("figures") if isinstance(data.get("figures"), Mapping) else {}
+    weights = data.get("weights") if isinstance(data.get("weights"), Mapping) else {}
+    return Step(
+        n=n, kind=kind, time=when, id=cid, title=_title(checks, cid), who=who,
+        outcome=_text(outcome) or None,
+        outcome_title=str(titles[outcome]) if outcome in titles else None,
+        reading=_text(data.get("text")) if kind == "reading" else None,
+        summary=_text(data.get("summary")) or None,
+        figures=tuple({"key": str(k), "label": str(f.get("label", k)), "value": f.get("value"),
+                       "unit": str(f.get("unit", ""))} for k, f in figures.items()
+                      if isinstance(f, Mapping)),
+        weights={str(k): float(v) for k, v in weights.items()},
+        minutes=None if kind == "skip" else getattr(check, "minutes", None), ranking=ranking)
+
+
+def confirmed_cause(result: str | None, end: Mapping[str, Any] | None, steps: Iterable[Step],
+                    model: Any = None) -> str | None:
+    """The cause a cure confirmed, or None (not resolved by a repair, or it cannot tell).
+
+    The cause the session's end names counts when a repair cured and fixes it;
+    else the cause the curing repair fixes, or of several, the one ranked
+    highest just before it.
+    """
+    steps = list(steps)
+    if result != RESOLVED:
+        return None
+    cure = next((s for s in steps if s.kind == "repair" and s.cured), None)
+    if cure is None:
+        return None
+    repair = (getattr(model, "repairs", None) or {}).get(cure.id)
+    fixes = tuple(getattr(repair, "fixes", ()))
+    named = (end or {}).get("cause")
+    if named and (not fixes or named in fixes):
+        return str(named)
+    if len(fixes) == 1:
+        return fixes[0]
+    before = [s.ranking for s in steps if s.n < cure.n and s.ranking]
+    for entry in before[-1] if before else ():
+        if entry["cause"] in fixes:
+            return str(entry["cause"])
+    return None
+
+
+def session_record(journal: Any, session_id: str, model: Any = None) -> Record:
+    """The record of ``session_id`` read from ``journal``."""
+    info = journal.session(session_id)
+    return build_record(info, journal.load_events(session_id), model,
+                        journal.load_rankings(session_id))

@@ -1,0 +1,547 @@
+"""The journal: an embedded SQLite store of sessions and their events.
+
+One file (see ``diagnose.journal.paths``) in WAL mode holds every session:
+its pack (id, version, content hash), mode and technician, and each event
+(``kind``, ``data`` as JSON, ``time``) in order. ``Journal.write`` is the
+session's sink: one short committed transaction an event, so whatever a
+person has seen on screen is on disk before the next prompt, and a killed
+process loses nothing it had acknowledged.
+
+Safety rules, in the order ``Journal`` applies them:
+
+* An existing file is first opened **read-only** and checked: SQLite header,
+  application id, schema version (``PRAGMA user_version``) and, before any
+  write, ``PRAGMA quick_check``. A damaged file, another program's database
+  or a journal from a newer diagnose raises ``JournalError`` and the file is
+  left byte for byte as it was: no migration, no write, not even a change of
+  journal mode.
+* Migrations run in one ``BEGIN IMMEDIATE`` transaction, after a copy of the
+  old file is kept beside it (``journal.sqlite3.schema1.bak``).
+* Writers wait for each other (``busy_timeout`` and a bounded retry), so two
+  sessions writing at once lose nothing.
+
+References:
+    SQLite, "Write-Ahead Logging" (https://sqlite.org/wal.html) and
+    "Database File Format", section 1.3 (the header, user_version,
+    application_id), https://sqlite.org/fileformat2.html.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import os
+import sqlite3
+import time as _time
+from collections.abc import Iterator, Mapping
+from contextlib import contextmanager
+from dataclasses import dataclass
+from datetime import datetime
+from pathlib import Path
+from typing import Any
+
+from diagnose.errors import JournalError
+
+SCHEMA_VERSION = 1
+APPLICATION_ID = 0x44474E4A  # "DGNJ": marks the file as a diagnose journal
+HEADER = b"SQLite format 3\x00"
+BUSY_TIMEOUT_MS = 5000
+_RETRIES = 4  # on top of busy_timeout: a writer waits up to about 20 s in all
+STATUSES = ("open", "closed")
+
+# _MIGRATIONS[n] takes a journal from schema n to n + 1. Append only; never edit one
+# that has shipped.
+_MIGRATIONS: tuple[tuple[str, ...], ...] = (
+    (
+        """CREATE TABLE session (
+            id TEXT PRIMARY KEY,
+            pack_id TEXT NOT NULL,
+            pack_version TEXT NOT NULL,
+            content_hash TEXT NOT NULL,
+            mode TEXT NOT NULL,
+            who TEXT,
+            started TEXT NOT NULL,
+            updated TEXT NOT NULL,
+            status TEXT NOT NULL DEFAULT 'open' CHECK (status IN ('open', 'closed')),
+            outcome TEXT,
+            cause TEXT,
+            learned TEXT
+        )""",
+        """CREATE TABLE event (
+            session_id TEXT NOT NULL REFERENCES session(id),
+            seq INTEGER NOT NULL,
+            kind TEXT NOT NULL,
+            time TEXT NOT NULL,
+            data TEXT NOT NULL,
+            ranking TEXT,
+            PRIMARY KEY (session_id, seq)
+        ) WITHOUT ROWID""",
+        "CREATE INDEX session_by_pack ON session (pack_id, status)",
+    ),
+)
+
+
+@dataclass(frozen=True)
+class StoredEvent:
+    """An event as read back, when ``diagnose.session`` is not there to give its own type."""
+
+    kind: str
+    data: dict[str, Any]
+    time: str
+
+
+@dataclass(frozen=True)
+class SessionInfo:
+    """One session's metadata, as ``sessions`` and ``session`` return it."""
+
+    id: str
+    pack_id: str
+    pack_version: str
+    content_hash: str
+    mode: str
+    who: str | None
+    started: str
+    updated: str
+    status: str
+    outcome: str | None = None
+    cause: str | None = None
+    learned: str | None = None
+    events: int = 0
+    last_kind: str | None = None
+
+    @property
+    def is_open(self) -> bool:
+        return self.status == "open"
+
+    def to_dict(self) -> dict[str, Any]:
+        return dataclasses.asdict(self)
+
+
+def now() -> str:
+    """The local time with its UTC offset, to the second, as the journal writes it."""
+    return datetime.now().astimezone().isoformat(timespec="seconds")
+
+
+def to_jsonable(value: Any) -> Any:
+    """``value`` as plain JSON data: objects with ``to_dict``, dataclasses, sets and paths too.
+
+    >>> to_jsonable({"a": (1, 2), "b": {3}, "c": Path("x")})
+    {'a': [1, 2], 'b': [3], 'c': 'x'}
+    """
+    if isinstance(value, (str, int, float, bool)) or value is None:
+        return value
+    if isinstance(value, Mapping):
+        return {str(k): to_jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [to_jsonable(v) for v in value]
+    if isinstance(value, (set, frozenset)):
+        return sorted((to_jsonable(v) for v in value), key=str)
+    if hasattr(value, "to_dict"):
+        return to_jsonable(value.to_dict())
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return to_jsonable({f.name: getattr(value, f.name) for f in dataclasses.fields(value)})
+    if isinstance(value, os.PathLike):
+        return os.fspath(value)
+    return str(value)
+
+
+def _event_fields(event: Any) -> tuple[str, dict[str, Any], str]:
+    if isinstance(event, Mapping):
+        kind, data, when = event.get("kind"), event.get("data", {}), event.get("time")
+    else:
+        kind, data, when = (getattr(event, "kind", None), getattr(event, "data", {}),
+                            getattr(event, "time", None))
+    if not isinstance(kind, str) or not kind:
+        raise JournalError(f"cannot record an event without a kind: {event!r}")
+    return kind, to_jsonable(data or {}), str(when or now())
+
+
+def _event_type() -> Any:
+    """The session's own Event class when there is one, so that replay gets what it wrote."""
+    try:
+        from diagnose.session import Event
+    except ImportError:
+        return StoredEvent
+    return Event
+
+
+# --- checking a file before anything writes to it ----------------------------------
+
+
+def _ro_uri(path: Path, immutable: bool = False) -> str:
+    extra = "&immutable=1" if immutable else ""
+    return f"{path.resolve().as_uri()}?mode=ro{extra}"
+
+
+def _connect_ro(path: Path) -> sqlite3.Connection:
+    try:
+        conn = sqlite3.connect(_ro_uri(path), uri=True, isolation_level=None)
+        conn.execute("SELECT count(*) FROM sqlite_master").fetchone()
+        return conn
+    except sqlite3.OperationalError:
+        # A WAL journal in a folder we may not write, with no -shm file left: read the
+        # main file as it stands (there is no -wal file either, or we could not open it).
+        if (path.parent / (path.name + "-wal")).exists():
+            raise
+        conn = sqlite3.connect(_ro_uri(path, immutable=True), uri=True, isolation_level=None)
+        conn.execute("SELECT count(*) FROM sqlite_master").fetchone()
+        return conn
+
+
+def _damaged(path: Path, why: str) -> JournalError:
+    return JournalError(
+        f"the journal {path} is damaged or not a diagnose journal ({why}); it was left as it is. "
+        "Restore a backup or move it away, then try again")
+
+
+def inspect(path: Path, *, thorough: bool = False) -> int:
+    """Check an existing journal without writing to it; return its schema version.
+
+    A missing or empty file is version 0 (a new journal). ``thorough`` adds
+    ``PRAGMA quick_check``, which reads every page.
+
+    Raises:
+        JournalError: the file is damaged, is not a diagnose journal, was written
+            by a newer diagnose, or cannot be read.
+    """
+    try:
+        size = path.stat().st_size
+    except FileNotFoundError:
+        return 0
+    except OSError as exc:
+        raise JournalError(f"cannot read the journal {path}: {exc.strerror}") from None
+    if size == 0:
+        return 0
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(100)
+    except OSError as exc:
+        raise JournalError(f"cannot read the journal {path}: {exc.strerror}") from None
+    if len(head) < 100 or not head.startswith(HEADER):
+        raise _damaged(path, "it does not start with an SQLite header")
+    try:
+        conn = _connect_ro(path)
+    except sqlite3.DatabaseError as exc:
+        raise _damaged(path, str(exc)) from None
+    try:
+        version = conn.execute("PRAGMA user_version").fetchone()[0]
+        app = conn.execute("PRAGMA application_id").fetchone()[0]
+        tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type='table'")}
+        if app not in (0, APPLICATION_ID) or (app == 0 and (tables or version)):
+            raise _damaged(path, "another program's database")
+        if version > SCHEMA_VERSION:
+            raise JournalError(
+                f"the journal {path} was written by a newer diagnose (schema {version}; this "
+                f"program knows up to {SCHEMA_VERSION}); it was left as it is. Upgrade diagnose, "
+                "or give another file with --journal")
+        if version and not {"session", "event"} <= tables:
+            raise _damaged(path, "its tables are missing")
+        if thorough:
+            found = [r[0] for r in conn.execute("PRAGMA quick_check(5)")]
+            if found != ["ok"]:
+                raise _damaged(path, "; ".join(found))
+        return int(version)
+    except sqlite3.DatabaseError as exc:
+        raise _damaged(path, str(exc)) from None
+    finally:
+        conn.close()
+
+
+def _translate(path: Path, exc: sqlite3.Error) -> JournalError:
+    text = str(exc)
+    low = text.lower()
+    if "readonly" in low or "read-only" in low or "unable to open" in low:
+        return JournalError(
+            f"cannot write the journal {path}: the file or its folder is read-only. Choose "
+            "another place with --journal PATH or DIAGNOSE_JOURNAL")
+    if "locked" in low or "busy" in low:
+        return JournalError(f"the journal {path} is busy (another diagnose is writing); "
+                            "try again")
+    if "malformed" in low or "not a database" in low or "corrupt" in low:
+        return _damaged(path, text)
+    if "full" in low:
+        return JournalError(f"cannot write the journal {path}: the disk is full")
+    return JournalError(f"journal {path}: {text}")
+
+
+def _is_busy(exc: sqlite3.Error) -> bool:
+    low = str(exc).lower()
+    return "locked" in low or "busy" in low
+
+
+# --- the store ------------------------------------------------------------------------
+
+
+class Journal:
+    """The journal file: sessions and their events.
+
+    ``Journal(path)`` opens (or creates) the file for writing after the checks
+    above; ``Journal(path, readonly=True)`` only reads and never creates.
+    Use it as a context manager or call ``close``.
+
+    >>> import tempfile, pathlib
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> with Journal(folder / "j.sqlite3") as j:
+    ...     sid = j.new_session("mini-brake", "1.0.0", "abc", "site", who="ana")
+    ...     seq = j.write(sid, {"kind": "note", "data": {"text": "hello"}, "time": now()})
+    ...     [e.kind for e in j.load_events(sid)], j.session(sid).events
+    (['note'], 1)
+    """
+
+    def __init__(self, path: str | os.PathLike[str], *, readonly: bool = False) -> None:
+        self.path = Path(path)
+        self.readonly = readonly
+        if readonly:
+            if not self.path.exists():
+                raise JournalError(f"there is no journal at {self.path} yet: nothing was "
+                                   "recorded there")
+            inspect(self.path)
+            try:
+                self._conn = _connect_ro(self.path)
+            except sqlite3.Error as exc:
+                raise _translate(self.path, exc) from None
+            return
+        version = inspect(self.path, thorough=True)
+        self._conn = self._connect_rw()
+        try:
+            self._prepare(version)
+        except BaseException:
+            self._conn.close()
+            raise
+
+    # -- opening -------------------------------------------------------------------
+    def _connect_rw(self) -> sqlite3.Connection:
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise JournalError(
+                f"cannot create the folder {self.path.parent} for the journal: {exc.strerror}. "
+                "Choose another place with --journal PATH or DIAGNOSE_JOURNAL") from None
+        try:
+            conn = sqlite3.connect(self.path, isolation_level=None, timeout=BUSY_TIMEOUT_MS / 1000)
+            conn.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
+            conn.execute("PRAGMA foreign_keys = ON")
+            conn.execute("PRAGMA synchronous = FULL")  # an answer survives a power cut too
+        except sqlite3.Error as exc:
+            raise _translate(self.path, exc) from None
+        return conn
+
+    def _prepare(self, version: int) -> None:
+        conn = self._conn
+        try:
+            if conn.execute("PRAGMA journal_mode").fetchone()[0].lower() != "wal":
+                mode = conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
+                if mode.lower() != "wal":
+                    raise JournalError(f"the journal {self.path} cannot use write-ahead "
+                                       f"logging here (mode {mode})")
+        except sqlite3.Error as exc:
+            raise _translate(self.path, exc) from None
+        if version < SCHEMA_VERSION:
+            if version > 0:
+                self._keep_copy(version)
+            self._migrate()
+
+    def _keep_copy(self, version: int) -> None:
+        """Copy the journal aside before a migration changes it."""
+        target = self.path.with_name(f"{self.path.name}.schema{version}.bak")
+        if not target.exists():
+            self.backup(target)
+
+    def _migrate(self) -> None:
+        with self._transaction() as conn:
+            # Another process may have migrated while we waited for the lock.
+            current = conn.execute("PRAGMA user_version").fetchone()[0]
+            if current > SCHEMA_VERSION:
+                raise JournalError(f"the journal {self.path} was just upgraded by a newer "
+                                   "diagnose; upgrade diagnose too")
+            for step in _MIGRATIONS[current:SCHEMA_VERSION]:
+                for statement in step:
+                    conn.execute(statement)
+            conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
+            conn.execute(f"PRAGMA user_version = {SCHEMA_VERSION}")
+
+    @contextmanager
+    def _transaction(self) -> Iterator[sqlite3.Connection]:
+        """One short write transaction, taken at once and retried while another writer holds it."""
+        if self.readonly:
+            raise JournalError(f"the journal {self.path} is open for reading only")
+        conn = self._conn
+        for attempt in range(_RETRIES):
+            try:
+                conn.execute("BEGIN IMMEDIATE")
+                break
+            except sqlite3.OperationalError as exc:
+                if not _is_busy(exc) or attempt == _RETRIES - 1:
+                    raise _translate(self.path, exc) from None
+                _time.sleep(0.05 * (attempt + 1))
+            except sqlite3.Error as exc:
+                raise _translate(self.path, exc) from None
+        try:
+            yield conn
+            conn.execute("COMMIT")
+        except BaseException as exc:
+            if conn.in_transaction:
+                conn.execute("ROLLBACK")
+            if isinstance(exc, sqlite3.Error):
+                raise _translate(self.path, exc) from None
+            raise
+
+    def _read(self, sql: str, params: tuple[Any, ...] = ()) -> list[tuple[Any, ...]]:
+        try:
+            return self._conn.execute(sql, params).fetchall()
+        except sqlite3.Error as exc:
+            raise _translate(self.path, exc) from None
+
+    # -- public API ----------------------------------------------------------------
+    def close(self) -> None:
+        self._conn.close()
+
+    def __enter__(self) -> Journal:  # noqa: PYI034 (no subclasses)
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    @property
+    def schema_version(self) -> int:
+        return int(self._read("PRAGMA user_version")[0][0])
+
+    def new_session(self, pack_id: str, pack_version: str, content_hash: str, mode: str,
+                    who: str | None = None, *, started: str | None = None,
+                    learned: str | None = None) -> str:
+        """Record a new open session; return its id, the date and a counter: ``250114-3``.
+
+        ``learned`` says which learned priors the session ranks with (None: the pack's own).
+        """
+        when = started or now()
+        day = when[2:10].replace("-", "")
+        with self._transaction() as conn:
+            rows = conn.execute("SELECT id FROM session WHERE id LIKE ?", (f"{day}-%",)).fetchall()
+            taken = [int(r[0].split("-", 1)[1]) for r in rows if r[0].split("-", 1)[1].isdigit()]
+            sid = f"{day}-{max(taken, default=0) + 1}"
+            conn.execute(
+                "INSERT INTO session (id, pack_id, pack_version, content_hash, mode, who, "
+                "started, updated, learned) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                (sid, pack_id, pack_version, content_hash, mode, who, when, when, learned))
+        return sid
+
+    def write(self, session_id: str, event: Any, *, ranking: Any = None) -> int:
+        """Append one event to a session, committed before this returns; the session's sink.
+
+        ``event`` has ``kind``, ``data`` (JSON-able) and ``time`` (ISO text), as an
+        object or a mapping. ``ranking`` (a list of ``{"cause", "p"}``), when given,
+        is the ranking after the event, kept beside it for the repair log. An
+        ``end`` event also closes the session with the ``result`` and ``cause`` of
+        its data; a closed session still takes notes and acknowledgements.
+        Returns the event's number (from 1).
+
+        Raises:
+            JournalError: unknown session, a second end, or the file cannot be written.
+        """
+        kind, data, when = _event_fields(event)
+        payload = json.dumps(data, ensure_ascii=False, separators=(",", ":"))
+        ranked = None if ranking is None else json.dumps(to_jsonable(ranking),
+                                                         separators=(",", ":"))
+        with self._transaction() as conn:
+            row = conn.execute("SELECT status FROM session WHERE id = ?", (session_id,)).fetchone()
+            if row is None:
+                raise JournalError(f"no session {session_id} in the journal {self.path}")
+            if row[0] == "closed" and kind == "end":
+                raise JournalError(f"session {session_id} is closed already")
+            seq = conn.execute("SELECT coalesce(max(seq), 0) + 1 FROM event WHERE session_id = ?",
+                               (session_id,)).fetchone()[0]
+            conn.execute("INSERT INTO event (session_id, seq, kind, time, data, ranking) "
+                         "VALUES (?, ?, ?, ?, ?, ?)", (session_id, seq, kind, when, payload, ranked))
+            if kind == "end":
+                outcome, cause = _end_fields(data)
+                conn.execute("UPDATE session SET updated = ?, status = 'closed', outcome = ?, "
+                             "cause = ? WHERE id = ?", (when, outcome, cause, session_id))
+            else:
+                conn.execute("UPDATE session SET updated = ? WHERE id = ?", (when, session_id))
+        return int(seq)
+
+    def close_session(self, session_id: str, outcome: str, cause: str | None = None) -> None:
+        """Mark a session closed with its ``outcome`` (``resolved``, ``escalated``, ...) and cause.
+
+        A session normally closes with its ``end`` event; this is for a face that ends
+        one without a session object.
+        """
+        with self._transaction() as conn:
+            cur = conn.execute("UPDATE session SET status = 'closed', outcome = ?, cause = ?, "
+                               "updated = ? WHERE id = ?", (outcome, cause, now(), session_id))
+            if cur.rowcount == 0:
+                raise JournalError(f"no session {session_id} in the journal {self.path}")
+
+    def load_events(self, session_id: str) -> list[Any]:
+        """The events of a session in the order they were written (for ``Session.replay``)."""
+        self.session(session_id)
+        make = _event_type()
+        rows = self._read("SELECT kind, data, time FROM event WHERE session_id = ? ORDER BY seq",
+                          (session_id,))
+        return [make(kind=k, data=json.loads(d), time=t) for k, d, t in rows]
+
+    def load_rankings(self, session_id: str) -> list[list[dict[str, Any]] | None]:
+        """The ranking kept beside each event (None where none was), in event order."""
+        rows = self._read("SELECT ranking FROM event WHERE session_id = ? ORDER BY seq",
+                          (session_id,))
+        return [None if r[0] is None else json.loads(r[0]) for r in rows]
+
+    def session(self, session_id: str) -> SessionInfo:
+        """One session's metadata.
+
+        Raises:
+            JournalError: no such session (the message names the latest ones).
+        """
+        found = self._sessions("WHERE s.id = ?", (session_id,))
+        if not found:
+            latest = [s.id for s in self._sessions("", ())[:3]]
+            hint = f"; latest: {', '.join(latest)}" if latest else ""
+            raise JournalError(f"no session {session_id} in the journal {self.path}{hint}")
+        return found[0]
+
+    def sessions(self, status: str | None = None, pack_id: str | None = None) -> list[SessionInfo]:
+        """Sessions, newest first; ``status`` is ``open``, ``closed`` or None for all."""
+        if status is not None and status not in STATUSES:
+            raise ValueError(f"status must be one of {STATUSES}, not {status!r}")
+        where, params = [], []
+        if status:
+            where.append("s.status = ?")
+            params.append(status)
+        if pack_id:
+            where.append("s.pack_id = ?")
+            params.append(pack_id)
+        clause = f"WHERE {' AND '.join(where)}" if where else ""
+        return self._sessions(clause, tuple(params))
+
+    def _sessions(self, clause: str, params: tuple[Any, ...]) -> list[SessionInfo]:
+        rows = self._read(
+            "SELECT s.id, s.pack_id, s.pack_version, s.content_hash, s.mode, s.who, s.started, "
+            "s.updated, s.status, s.outcome, s.cause, s.learned, "
+            "(SELECT count(*) FROM event e WHERE e.session_id = s.id), "
+            "(SELECT kind FROM event e WHERE e.session_id = s.id ORDER BY seq DESC LIMIT 1) "
+            f"FROM session s {clause} ORDER BY s.started DESC, s.rowid DESC", params)
+        return [SessionInfo(*r) for r in rows]
+
+    def backup(self, target: str | os.PathLike[str]) -> Path:
+        """Copy the whole journal, consistently, to ``target`` (SQLite's online backup)."""
+        dest = Path(target)
+        if dest.resolve() == self.path.resolve():
+            raise JournalError("the backup must go to another file than the journal itself")
+        try:
+            out = sqlite3.connect(dest)
+        except sqlite3.Error as exc:
+            raise JournalError(f"cannot write the backup {dest}: {exc}") from None
+        try:
+            self._conn.backup(out)
+        except sqlite3.Error as exc:
+            raise JournalError(f"cannot write the backup {dest}: {exc}") from None
+        finally:
+            out.close()
+        return dest
+
+
+def _end_fields(data: Mapping[str, Any]) -> tuple[str | None, str | None]:
+    outcome = data.get("result", data.get("outcome"))
+    cause = data.get("cause")
+    return (str(outcome) if outcome is not None else None,
+            str(cause) if cause is not None else None)

@@ -1,0 +1,98 @@
+"""What is known about one unit so far: the evidence the reasoner works on.
+
+An :class:`Evidence` is a plain, immutable value. The session builds it as a
+fold over its events (``diagnose.session``); the simulator and the knowledge
+tests build it step by step with the ``with_*`` methods, which return a new
+value and never change the old one.
+
+A *finding* is the answer to a check as outcome weights: a hard answer is
+``{"silent": 1.0}``; a reading near a band edge is soft evidence such as
+``{"ok": 0.6, "low": 0.4}`` (the weights sum to 1). "Unsure" is recorded but
+carries no evidence.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field, replace
+
+MODES = ("site", "phone")
+
+
+@dataclass(frozen=True)
+class Evidence:
+    """The state of one diagnosis.
+
+    Attributes:
+        complaints: complaint ids as reported, in order.
+        findings: check id -> outcome weights (summing to 1).
+        unsure: checks answered "unsure" (done, but no evidence).
+        skipped: checks that cannot be done now (not offered again).
+        repairs: (repair id, cured) in the order done.
+        nameplate: parameter id -> value as text ("24 V", "yes", "unknown").
+        mode: "site" or "phone".
+        acknowledged: caution ids acknowledged.
+        notes: free-text notes, in order.
+        identity: facts about the unit and the call (serial number, customer, ...).
+        end: the closing record, or None while the diagnosis is open.
+    """
+
+    complaints: tuple[str, ...] = ()
+    findings: Mapping[str, Mapping[str, float]] = field(default_factory=dict)
+    unsure: frozenset[str] = frozenset()
+    skipped: frozenset[str] = frozenset()
+    repairs: tuple[tuple[str, bool], ...] = ()
+    nameplate: Mapping[str, str] = field(default_factory=dict)
+    mode: str = "site"
+    acknowledged: frozenset[str] = frozenset()
+    notes: tuple[str, ...] = ()
+    identity: Mapping[str, str] = field(default_factory=dict)
+    end: Mapping[str, object] | None = None
+
+    # --- questions --------------------------------------------------------------------
+    @property
+    def done(self) -> frozenset[str]:
+        """Checks answered or answered "unsure": not offered again, count as done for ``needs``."""
+        return frozenset(self.findings) | self.unsure
+
+    @property
+    def repairs_done(self) -> frozenset[str]:
+        return frozenset(r for r, _ in self.repairs)
+
+    @property
+    def cured(self) -> bool:
+        """True when a repair cured the unit."""
+        return any(c for _, c in self.repairs)
+
+    # --- new values -------------------------------------------------------------------
+    def with_complaint(self, complaint: str) -> Evidence:
+        if complaint in self.complaints:
+            return self
+        return replace(self, complaints=self.complaints + (complaint,))
+
+    def with_finding(self, check: str, weights: Mapping[str, float]) -> Evidence:
+        """The answer to ``check`` (a later answer replaces an earlier one)."""
+        findings = dict(self.findings)
+        findings[check] = dict(weights)
+        return replace(self, findings=findings, unsure=self.unsure - {check},
+                       skipped=self.skipped - {check})
+
+    def with_outcome(self, check: str, outcome: str) -> Evidence:
+        return self.with_finding(check, {outcome: 1.0})
+
+    def with_unsure(self, check: str) -> Evidence:
+        findings = {k: v for k, v in self.findings.items() if k != check}
+        return replace(self, findings=findings, unsure=self.unsure | {check},
+                       skipped=self.skipped - {check})
+
+    def with_skip(self, check: str) -> Evidence:
+        return replace(self, skipped=self.skipped | {check})
+
+    def with_repair(self, repair: str, cured: bool) -> Evidence:
+        return replace(self, repairs=self.repairs + ((repair, bool(cured)),))
+
+    def with_nameplate(self, param: str, value: str) -> Evidence:
+        return replace(self, nameplate={**self.nameplate, param: value})
+
+    def with_mode(self, mode: str) -> Evidence:
+        return replace(self, mode=mode)

@@ -1,0 +1,831 @@
+"""The next action: the check or repair that lowers the expected minutes to a cure.
+
+Expected cost of repair (ECR). Each hypothesis ``h`` is served by one repair,
+the available repair with the best ``success / minutes`` among those that
+fix a cause of ``h``. A repair ``r`` then cures with probability
+``p_r = success_r · Σ_{h served by r} P(h)``. Doing the repairs in order of
+``p_r / c_r`` (minutes including unmet prerequisites) is optimal for a single
+fault (Kadane and Simon, 1977), and costs in expectation
+
+    ECR = Σ_i c_i · (1 − Σ_{j<i} p_j)  +  E · (1 − Σ_i p_i)
+
+where ``E`` (``Settings.escalation_minutes``) is what an escalation costs when
+no repair cures ("unknown", causes without a repair left, failed repairs).
+
+Expected cost of observation, one step ahead (myopic value of information):
+
+    ECO(k) = c_k + Σ_o P(o) · ECR(after o)
+
+``ECR(after o)`` re-sorts the repairs for the posterior after outcome ``o``.
+It is computed for every check and outcome at once: hypotheses that a check
+does not list all scale by the same factor, so only the repairs serving a
+listed hypothesis change place; they are merged into the unchanged order of
+the rest with prefix sums (vectorised over checks × outcomes × those
+repairs). The expected information of a check is the mutual information
+between its outcome and the hypothesis, ``H(P) − Σ_o P(o) H(P | o)`` in bits.
+
+Decision rule (``Settings``; tuned with ``diagnose simulate``):
+
+1. a repair cured the unit, or the session ended: done;
+2. "unknown" at or above ``threshold``: escalate;
+3. some available repair fixes causes whose probability is at or above
+   ``threshold``: do the best of those by p/c;
+4. the check with the least ECO, if it beats ECR (observing first is cheaper);
+5. else the best repair by p/c, if the probability of what it fixes is at
+   least ``act_floor``;
+6. else, while a check still gives ``min_bits`` or more, that check;
+7. else repair the most likely cause, or escalate when "unknown" leads or no
+   repair is left.
+
+A check or repair whose prerequisites (``needs``) are not done is proposed
+as its first missing prerequisite. By phone only ``where: phone`` checks and
+repairs are offered, and the end is a site visit with the parts to bring.
+
+References:
+    D. Heckerman, J. S. Breese, K. Rommelse, "Decision-theoretic
+    troubleshooting", Communications of the ACM 38(3):49-57, 1995.
+    J. B. Kadane, H. A. Simon, "Optimal strategies for a class of constrained
+    sequential problems", Annals of Statistics 5(2):237-255, 1977.
+    T. M. Cover, J. A. Thomas, *Elements of Information Theory*, 2nd ed.,
+    Wiley, 2006, 2.4 (mutual information).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from dataclasses import dataclass, field, replace
+from typing import Any
+
+import numpy as np
+
+from diagnose.errors import InputError
+from diagnose.kb.model import UNKNOWN_CAUSE, Check, Model
+from diagnose.reasoning.evidence import MODES, Evidence
+from diagnose.reasoning.posterior import Posterior, RankEntry, posterior
+from diagnose.reasoning.tables import Tables, tables_for
+
+EPS = 1e-12  # a probability at or below this counts as "no longer possible"
+_BATCH = 2_000_000  # largest (checks × outcomes × m × m) array of one look-ahead batch
+
+
+@dataclass(frozen=True)
+class Settings:
+    """The decision rule's knobs (see the module docstring)."""
+
+    threshold: float = 0.9
+    act_floor: float = 0.9
+    min_bits: float = 0.05
+    escalation_minutes: float = 480.0
+
+    def __post_init__(self) -> None:
+        if not 0 < self.threshold <= 1 or not 0 <= self.act_floor <= 1:
+            raise InputError("threshold", "expected probabilities in (0, 1]")
+        if not self.escalation_minutes > 0 or self.min_bits < 0:
+            raise InputError("settings", "escalation minutes must be positive, min_bits >= 0")
+
+
+DEFAULT = Settings()
+
+
+# --- value types ---------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Action:
+    """What to do next.
+
+    ``kind``: "check", "repair", "escalate" (the evidence fits nothing known, or
+    nothing is left), "visit" (phone mode: send a technician with ``parts``) or
+    "done". When a prerequisite is proposed, ``target`` names the check or
+    repair that needs it.
+    """
+
+    kind: str
+    id: str | None = None
+    title: str = ""
+    reason: str = ""
+    minutes: float = 0.0
+    p: float = 0.0
+    bits: float = 0.0
+    target: str | None = None
+    causes: tuple[str, ...] = ()
+    parts: tuple[str, ...] = ()
+    eco: float | None = None
+    ecr: float | None = None
+
+    @property
+    def bits_per_minute(self) -> float:
+        return self.bits / self.minutes if self.minutes > 0 else 0.0
+
+    def to_dict(self) -> dict[str, Any]:
+        out: dict[str, Any] = {"action": self.kind, "id": self.id, "title": self.title,
+                               "reason": self.reason, "minutes": round(self.minutes, 2)}
+        if self.kind == "check":
+            out["bits"] = round(self.bits, 4)
+            out["bits_per_minute"] = round(self.bits_per_minute, 4)
+        if self.target:
+            out["for"] = self.target
+        if self.causes:
+            out["causes"] = list(self.causes)
+            out["p"] = round(self.p, 6)
+        if self.parts:
+            out["parts"] = list(self.parts)
+        if self.eco is not None:
+            out["eco"] = round(self.eco, 2)
+        if self.ecr is not None:
+            out["ecr"] = round(self.ecr, 2)
+        return out
+
+    def __str__(self) -> str:
+        head = {"check": "Check", "repair": "Repair", "escalate": "Escalate",
+                "visit": "Site visit", "done": "Done"}[self.kind]
+        name = f" {self.id}" if self.id else ""
+        title = f" ({self.title})" if self.title and self.title != self.id else ""
+        why = f": {self.reason}" if self.reason else ""
+        return f"{head}{name}{title}{why}"
+
+    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
+        from rich.text import Text
+
+        line = Text("Next: ", style="bold")
+        line.append(str(self))
+        yield line
+        if self.kind == "check":
+            yield Text(f"  {self.minutes:.0f} min, expected information {self.bits:.2f} bits "
+                       f"({self.bits_per_minute:.3f} bits/min)", style="dim")
+        if self.parts:
+            yield Text("  bring: " + ", ".join(self.parts), style="dim")
+
+
+@dataclass(frozen=True)
+class CheckScore:
+    """A check as the planner sees it now. ``status`` is "" when it can be proposed."""
+
+    id: str
+    title: str
+    minutes: float  # including unmet prerequisites
+    bits: float = 0.0
+    eco: float | None = None
+    status: str = ""
+    needs: tuple[str, ...] = ()  # unmet prerequisites, in the order to do them
+
+    @property
+    def bits_per_minute(self) -> float:
+        return self.bits / self.minutes if self.minutes > 0 else 0.0
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"check": self.id, "minutes": round(self.minutes, 2), "bits": round(self.bits, 4),
+                "bits_per_minute": round(self.bits_per_minute, 4),
+                "eco": None if self.eco is None else round(self.eco, 2),
+                "status": self.status or "available", "needs": list(self.needs)}
+
+
+@dataclass(frozen=True)
+class RepairScore:
+    """A repair now: P(a cause it fixes is present), P(it cures), minutes and p/c."""
+
+    id: str
+    title: str
+    minutes: float
+    p_fix: float
+    p_cure: float
+    status: str = ""
+    needs: tuple[str, ...] = ()
+
+    @property
+    def ratio(self) -> float:
+        return self.p_cure / self.minutes if self.minutes > 0 else 0.0
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"repair": self.id, "minutes": round(self.minutes, 2), "p_fix": round(self.p_fix, 6),
+                "p_cure": round(self.p_cure, 6), "status": self.status or "available"}
+
+
+_CHECK_STATUS = ("", "done", "unsure", "skipped", "site only", "not for this unit",
+                 "preparation", "one outcome", "blocked")
+_REPAIR_STATUS = ("", "done", "site only", "blocked", "fixes nothing still possible")
+
+
+@dataclass(frozen=True, eq=False)
+class Plan:
+    """The next action with everything it was chosen from.
+
+    The scores are kept as arrays (check and repair order of the model's
+    tables); :meth:`checks` and :meth:`repairs` turn them into ranked rows.
+    ``check_eco`` is NaN for a check that cannot be proposed now.
+    """
+
+    action: Action
+    top: RankEntry
+    ecr: float
+    model: Model
+    check_ids: tuple[str, ...]
+    check_minutes: np.ndarray
+    check_bits: np.ndarray
+    check_eco: np.ndarray
+    check_code: np.ndarray
+    check_needs: dict[int, tuple[str, ...]]
+    check_blocked: dict[int, str]
+    repair_ids: tuple[str, ...]
+    repair_minutes: np.ndarray
+    p_fix: np.ndarray
+    p_cure: np.ndarray
+    repair_code: np.ndarray
+    repair_needs: dict[int, tuple[str, ...]]
+    repair_blocked: dict[int, str]
+
+    def checks(self, limit: int | None = None) -> tuple[CheckScore, ...]:
+        """Checks, those that can be proposed first, by ECO (least first)."""
+        eco = np.where(np.isnan(self.check_eco), np.inf, self.check_eco)
+        order = np.lexsort((eco, self.check_code != 0))[:limit]
+        out = []
+        for i in order:
+            code = int(self.check_code[i])
+            status = self.check_blocked.get(i, "") if code == 8 else _CHECK_STATUS[code]
+            cid = self.check_ids[i]
+            out.append(CheckScore(cid, self.model.checks[cid].title, float(self.check_minutes[i]),
+                                  float(self.check_bits[i]),
+                                  None if code else float(self.check_eco[i]), status,
+                                  self.check_needs.get(i, ())))
+        return tuple(out)
+
+    def repairs(self, limit: int | None = None) -> tuple[RepairScore, ...]:
+        """Repairs, those that can be proposed first, by p/c (highest first)."""
+        ratio = self.p_cure / self.repair_minutes
+        order = np.lexsort((-ratio, self.repair_code != 0))[:limit]
+        out = []
+        for i in order:
+            code = int(self.repair_code[i])
+            status = self.repair_blocked.get(i, "") if code == 3 else _REPAIR_STATUS[code]
+            rid = self.repair_ids[i]
+            out.append(RepairScore(rid, self.model.repairs[rid].title,
+                                   float(self.repair_minutes[i]), float(self.p_fix[i]),
+                                   float(self.p_cure[i]), status, self.repair_needs.get(i, ())))
+        return tuple(out)
+
+    def to_dict(self, limit: int | None = 20) -> dict[str, Any]:
+        return {"next": self.action.to_dict(), "ecr": round(self.ecr, 2),
+                "checks": [c.to_dict() for c in self.checks(limit)],
+                "repairs": [r.to_dict() for r in self.repairs(limit)]}
+
+
+@dataclass(frozen=True)
+class ChecksTable:
+    """Every check with its score now; available ones first, best ECO first."""
+
+    rows: tuple[CheckScore, ...]
+    ecr: float
+    mode: str = "site"
+    shown: int = 30
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    def to_list(self) -> list[dict[str, Any]]:
+        return [r.to_dict() for r in self.rows]
+
+    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
+        from rich.table import Table
+
+        t = Table(title=f"Checks ({self.mode}); repair now: {self.ecr:.0f} min expected",
+                  title_justify="left", box=None, pad_edge=False)
+        t.add_column("check", overflow="fold", max_width=30)
+        t.add_column("min", justify="right")
+        t.add_column("bits", justify="right")
+        t.add_column("bits/min", justify="right")
+        t.add_column("ECO", justify="right")
+        t.add_column("status", overflow="fold", max_width=18)
+        for r in self.rows[: self.shown]:
+            t.add_row(r.id, f"{r.minutes:.0f}", f"{r.bits:.2f}", f"{r.bits_per_minute:.3f}",
+                      "" if r.eco is None else f"{r.eco:.0f}", r.status or "")
+        yield t
+        if len(self.rows) > self.shown:
+            yield f"  ... and {len(self.rows) - self.shown} more"
+
+
+# --- availability ----------------------------------------------------------------------------
+
+def _squash(value: Any) -> str:
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    return str(value).strip().lower().replace("-", "_").replace(" ", "_")
+
+
+def nameplate_value(model: Model, evidence: Evidence, param: str) -> str | None:
+    """The nameplate value in use (the answer, else the pack default); None when unknown."""
+    value = evidence.nameplate.get(param)
+    if value is None:
+        p = model.parameters.get(param)
+        value = p.default if p is not None else None
+    if value is None or _squash(value) == "unknown":
+        return None
+    return str(value)
+
+
+def only_if_matches(model: Model, evidence: Evidence, check: Check) -> bool:
+    """Whether the nameplate allows ``check``; an unknown value does not rule it out."""
+    for param, wanted in (check.only_if or {}).items():
+        have = nameplate_value(model, evidence, param)
+        if have is not None and _squash(have) != _squash(wanted):
+            return False
+    return True
+
+
+def _satisfied(model: Model, evidence: Evidence, cid: str) -> bool:
+    """A prerequisite is met when done, or when it does not apply to this unit."""
+    if cid in evidence.done:
+        return True
+    check = model.checks.get(cid)
+    return check is not None and not only_if_matches(model, evidence, check)
+
+
+def missing_prerequisites(model: Model, evidence: Evidence, needs: tuple[str, ...],
+                          ) -> tuple[tuple[str, ...], str]:
+    """Unmet prerequisites of an item, deepest first, and why they cannot be done ("" if they can).
+
+    A prerequisite blocks when it was skipped, or is site-only in phone mode.
+    """
+    out: list[str] = []
+    seen: set[str] = set()
+    blocked = ""
+
+    def visit(cid: str) -> None:
+        nonlocal blocked
+        if cid in seen or _satisfied(model, evidence, cid):
+            return
+        seen.add(cid)
+        check = model.checks.get(cid)
+        if check is None:
+            blocked = blocked or f"needs unknown check {cid}"
+            return
+        if cid in evidence.skipped:
+            blocked = blocked or f"needs {cid} (skipped)"
+        elif evidence.mode == "phone" and not check.phone_ok:
+            blocked = blocked or f"needs {cid} (site only)"
+        for sub in check.needs:
+            visit(sub)
+        out.append(cid)
+
+    for cid in needs:
+        visit(cid)
+    return tuple(out), blocked
+
+
+def check_status(model: Model, evidence: Evidence, check: Check) -> str:
+    """Why ``check`` cannot be proposed now, or "" when it can."""
+    if check.id in evidence.findings:
+        return "done"
+    if check.id in evidence.unsure:
+        return "unsure"
+    if check.id in evidence.skipped:
+        return "skipped"
+    if evidence.mode == "phone" and not check.phone_ok:
+        return "site only"
+    if not only_if_matches(model, evidence, check):
+        return "not for this unit"
+    if check.preparation:
+        return "preparation"
+    if len(check.outcomes) < 2:
+        return "one outcome"
+    _, blocked = missing_prerequisites(model, evidence, check.needs)
+    return blocked
+
+
+# --- expected cost of repair ---------------------------------------------------------------
+
+def repair_order(p: np.ndarray, c: np.ndarray) -> np.ndarray:
+    """Indices of the repairs with p > 0 by p/c, highest first (Kadane and Simon, 1977)."""
+    live = np.flatnonzero(p > 0)
+    return live[np.argsort(-(p[live] / c[live]), kind="stable")]
+
+
+def sequence_cost(p: np.ndarray, c: np.ndarray, order: Any, escalation: float = 0.0) -> float:
+    """Expected minutes of doing the repairs in ``order`` until one cures, then escalating.
+
+    ``p[i]`` is the probability that repair ``i`` cures (disjoint events, Σ p ≤ 1).
+
+    >>> sequence_cost(np.array([0.5, 0.3]), np.array([10.0, 10.0]), [0, 1])
+    15.0
+    """
+    order = np.asarray(order, dtype=np.int64)
+    ps, cs = p[order], c[order]
+    reach = 1.0 - np.concatenate([[0.0], np.cumsum(ps)])[: len(ps)]
+    return float(cs @ reach + escalation * (1.0 - ps.sum()))
+
+
+def expected_cost_of_repair(p: np.ndarray, c: np.ndarray, escalation: float | None = None,
+                            ) -> float:
+    """ECR of the p/c order (Heckerman, Breese and Rommelse, 1995, eq. 2).
+
+    With ``escalation`` (E minutes), only the repairs worth trying enter the
+    sequence, those with ``p·E ≥ c`` (a prefix of the p/c order), and what
+    none of them cures costs E; without it, every repair with p > 0 is done.
+    """
+    order = repair_order(p, c)
+    if escalation is None:
+        return sequence_cost(p, c, order, 0.0)
+    order = order[p[order] * escalation >= c[order]]
+    return sequence_cost(p, c, order, escalation)
+
+
+def assign_repairs(tables: Tables, usable: np.ndarray, costs: np.ndarray) -> np.ndarray:
+    """For each hypothesis, the usable repair with the best success/minutes fixing it (−1: none)."""
+    keep = usable[tables.fix_repair]
+    fr, fh = tables.fix_repair[keep], tables.fix_hyp[keep]
+    out = np.full(tables.n_hyp, -1, dtype=np.int64)
+    if len(fr) == 0:
+        return out
+    score = tables.success[fr] / costs[fr]
+    order = np.lexsort((-score, fh))
+    fh_s = fh[order]
+    first = np.ones(len(fh_s), dtype=bool)
+    first[1:] = fh_s[1:] != fh_s[:-1]
+    out[fh_s[first]] = fr[order][first]
+    return out
+
+
+# --- look-ahead: information and ECO of every check, vectorised -------------------------------
+
+def _entropy_terms(x: np.ndarray) -> np.ndarray:
+    """x · log2(x), with 0 · log 0 = 0."""
+    out = np.zeros_like(x)
+    pos = x > 0
+    out[pos] = x[pos] * np.log2(x[pos])
+    return out
+
+
+def lookahead(tables: Tables, p: np.ndarray, cand: np.ndarray, check_cost: np.ndarray,
+              assign: np.ndarray, repair_cost: np.ndarray, escalation: float,
+              ) -> tuple[np.ndarray, np.ndarray, float]:
+    """Expected information (bits) and ECO of each candidate check, and ECR now.
+
+    ``cand`` indexes ``tables.check_ids``; ``check_cost`` is per candidate;
+    ``assign`` maps hypotheses to repairs (see :func:`assign_repairs`).
+    """
+    R = len(tables.repair_ids)
+    s = tables.success
+    c = np.where(repair_cost > 0, repair_cost, 1.0)
+    served = assign >= 0
+    mass = np.bincount(assign[served], weights=p[served], minlength=R)
+    prob = s * mass
+    order = repair_order(prob, c)
+    ps, cs = prob[order], c[order]
+    rhos = ps / cs
+    p_before = np.concatenate([[0.0], np.cumsum(ps)])
+    c_from = np.concatenate([np.cumsum(cs[::-1])[::-1], [0.0]])
+    g_cum = np.concatenate([[0.0], np.cumsum(ps * c_from[1:])])
+    n0 = int(np.searchsorted(-rhos, -1.0 / escalation, side="right"))
+    ecr_now = float((c_from[0] - c_from[n0]) - (g_cum[n0] - p_before[n0] * c_from[n0])
+                    + escalation * (1.0 - p_before[n0]))
+    rank = np.full(R, -1, dtype=np.int64)
+    rank[order] = np.arange(len(order))
+
+    K = len(cand)
+    if K == 0:
+        return np.zeros(0), np.zeros(0), ecr_now
+    remap = np.full(len(tables.check_ids), -1, dtype=np.int64)
+    remap[cand] = np.arange(K)
+    sel = remap[tables.ex_check] >= 0
+    ek = remap[tables.ex_check[sel]]
+    eh = tables.ex_hyp[sel]
+    el = tables.ex_rows[sel]
+    normal = tables.check_normal[cand]
+    O = normal.shape[1]
+    pe = p[eh]
+    p_exc = np.bincount(ek, weights=pe, minlength=K)
+    z = normal * (1.0 - p_exc)[:, None]
+    for o in range(O):
+        z[:, o] += np.bincount(ek, weights=pe * el[:, o], minlength=K)
+    z = np.clip(z, 0.0, None)
+    live = z > 0
+    safe_z = np.where(live, z, 1.0)
+    alpha = np.where(live, normal / safe_z, 0.0)
+
+    # information
+    pl = _entropy_terms(p)
+    s_non = pl.sum() - np.bincount(ek, weights=pl[eh], minlength=K)
+    m_non = np.clip(1.0 - p_exc, 0.0, None)
+    new_ex = pe[:, None] * el / safe_z[ek]
+    t_ex = np.zeros((K, O))
+    nl = _entropy_terms(new_ex)
+    for o in range(O):
+        t_ex[:, o] = np.bincount(ek, weights=nl[:, o], minlength=K)
+    h_post = -(alpha * s_non[:, None] + _entropy_terms(alpha) * m_non[:, None] + t_ex)
+    bits = np.clip(-pl.sum() - (z * h_post).sum(axis=1), 0.0, None)
+
+    # ECR after each outcome: the repairs serving a listed hypothesis move, the rest scale
+    er = assign[eh]
+    v = er >= 0
+    key = ek[v] * R + er[v]
+    uniq, inv = np.unique(key, return_inverse=True)
+    uk, ur = uniq // R, uniq % R
+    U = len(uniq)
+    ex_mass = np.bincount(inv, weights=pe[v], minlength=U)
+    new_mass = np.empty((U, O))
+    for o in range(O):
+        new_mass[:, o] = np.bincount(inv, weights=new_ex[v, o], minlength=U)
+    new_mass += alpha[uk] * np.clip(mass[ur] - ex_mass, 0.0, None)[:, None]
+    p_new = s[ur][:, None] * new_mass
+    counts = np.bincount(uk, minlength=K)
+    start = np.cumsum(counts) - counts
+    slot = np.arange(U) - start[uk]
+
+    ecr_after = np.empty((K, O))
+    # checks in batches of like width, so that the (checks × outcomes × m × m) arrays stay small
+    by_width = np.argsort(counts, kind="stable")
+    lo = 0
+    while lo < K:
+        hi = lo + 1
+        while hi < K:
+            width = max(int(counts[by_width[hi]]), 1)
+            if (hi + 1 - lo) * O * width * width > _BATCH:
+                break
+            hi += 1
+        batch = by_width[lo:hi]
+        ecr_after[batch] = _ecr_batch(
+            batch, K, max(int(counts[batch].max()), 1), uk, ur, slot, p_new, prob, c, rank, rhos,
+            p_before, c_from, g_cum, alpha[batch], escalation)
+        lo = hi
+    eco = check_cost + (z * ecr_after).sum(axis=1)
+    return bits, eco, ecr_now
+
+
+def _ecr_batch(batch: np.ndarray, n_checks: int, m: int, uk: np.ndarray, ur: np.ndarray,
+               slot: np.ndarray, p_new: np.ndarray, prob: np.ndarray, c: np.ndarray,
+               rank: np.ndarray, rhos: np.ndarray, p_before: np.ndarray, c_from: np.ndarray,
+               g_cum: np.ndarray, alpha: np.ndarray, escalation: float) -> np.ndarray:
+    """ECR after each outcome for the checks in ``batch`` (see :func:`lookahead`).
+
+    The repairs of the global p/c order that a check's outcome does not touch
+    keep their order and scale by ``alpha``; those worth trying (ratio at least
+    1/E) are a prefix of that order, cut at ``n_cut``. The touched repairs
+    (at most ``m`` per check) are taken out and merged back at their new place.
+    """
+    K = len(batch)
+    O = alpha.shape[1]
+    local = np.full(n_checks, -1, dtype=np.int64)
+    local[batch] = np.arange(K)
+    pick = np.flatnonzero(local[uk] >= 0) if len(uk) else np.zeros(0, np.int64)
+    kk, ss, rr = local[uk[pick]], slot[pick], ur[pick]
+    a_pn = np.zeros((K, O, m))
+    a_pn[kk, :, ss] = p_new[pick]
+    a_c = np.zeros((K, m))
+    a_c[kk, ss] = c[rr]
+    a_po = np.zeros((K, m))
+    a_po[kk, ss] = prob[rr]
+    a_rank = np.full((K, m), -1, dtype=np.int64)
+    a_rank[kk, ss] = rank[rr]
+
+    live = alpha > 0
+    safe_alpha = np.where(live, alpha, 1.0)
+    N = len(rhos)
+    n_cut = np.where(live, np.searchsorted(-rhos, -(1.0 / (safe_alpha * escalation)).ravel(),
+                                           side="right").reshape(alpha.shape), 0)
+
+    # the touched repairs by their place in the global order, with prefix sums, so that
+    # "Σ over touched repairs placed before x" is one lookup (a batched searchsorted)
+    key = np.where(a_rank >= 0, a_rank, N + 1)
+    by_rank = np.argsort(key, axis=1, kind="stable")
+    sr = np.take_along_axis(key, by_rank, axis=1)
+    sp = np.take_along_axis(a_po, by_rank, axis=1) * (sr <= N)
+    sc = np.take_along_axis(a_c, by_rank, axis=1) * (sr <= N)
+    srk = np.minimum(sr, N)
+    spc = sp * c_from[np.minimum(srk + 1, N)]
+    scp = sc * p_before[srk]
+
+    def cum(x: np.ndarray) -> np.ndarray:
+        return np.concatenate([np.zeros((K, 1)), np.cumsum(x, axis=1)], axis=1)
+
+    cp, cc, cpc, ccp = cum(sp), cum(sc), cum(spc), cum(scp)
+    ct = cum(sc * cp[:, :-1])  # Σ over touched pairs a before b of p_a c_b
+    stride = N + 2
+    flat = (sr + np.arange(K)[:, None] * stride).ravel()
+
+    def below(x: np.ndarray) -> np.ndarray:
+        """How many touched repairs of each check sit before global place ``x``."""
+        rows = np.arange(K).reshape((K,) + (1,) * (x.ndim - 1))
+        found = np.searchsorted(flat, (x + rows * stride).ravel(), side="left")
+        return found.reshape(x.shape) - rows * m
+
+    def at(table: np.ndarray, i: np.ndarray) -> np.ndarray:
+        rows = np.arange(K).reshape((K,) + (1,) * (i.ndim - 1))
+        return table[rows, i]
+
+    i_cut = below(n_cut)
+    g_b = (g_cum[n_cut] - p_before[n_cut] * c_from[n_cut]
+           - (at(cpc, i_cut) - c_from[n_cut] * at(cp, i_cut) + at(ccp, i_cut)) + at(ct, i_cut))
+    p_b = p_before[n_cut] - at(cp, i_cut)
+    c_b = c_from[0] - c_from[n_cut] - at(cc, i_cut)
+
+    rho = a_pn / np.where(a_c > 0, a_c, 1.0)[:, None, :]
+    valid = (a_pn > 0) & (rho >= 1.0 / escalation)
+    pn = np.where(valid, a_pn, 0.0)
+    ce = np.where(valid, a_c[:, None, :], 0.0)
+    rho = np.where(valid, rho, 0.0)
+    cut3 = n_cut[:, :, None]
+    pos = np.searchsorted(-rhos, -(rho / safe_alpha[:, :, None]).ravel(),
+                          side="left").reshape(rho.shape)
+    pos = np.minimum(pos, cut3)
+    i_pos = below(pos)
+    before_p = p_before[pos] - at(cp, i_pos)
+    after_c = c_from[pos] - c_from[cut3] - (at(cc, i_cut)[:, :, None] - at(cc, i_pos))
+    cross = (alpha[:, :, None] * ce * before_p + pn * after_c).sum(axis=2)
+    new_order = np.argsort(-rho, axis=2, kind="stable")
+    ps_new = np.take_along_axis(pn, new_order, axis=2)
+    cs_new = np.take_along_axis(ce, new_order, axis=2)
+    aa = (cs_new * (np.cumsum(ps_new, axis=2) - ps_new)).sum(axis=2)
+    c_seq = c_b + ce.sum(axis=2)
+    p_seq = alpha * p_b + pn.sum(axis=2)
+    pairs = alpha * g_b + cross + aa
+    return c_seq - pairs + escalation * (1.0 - p_seq)
+
+
+# --- the plan ------------------------------------------------------------------------------
+
+def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
+         settings: Settings = DEFAULT, post: Posterior | None = None) -> Plan:
+    """Rank the next actions and choose one (see the module docstring for the rule).
+
+    Raises:
+        InputError: an unknown mode, ids unknown to the model, a bad ``max_faults``.
+
+    >>> from diagnose.reasoning.synthetic import tiny_model
+    >>> m = tiny_model()
+    >>> plan(m, Evidence(complaints=("will_not_release",))).action.kind
+    'check'
+    """
+    if evidence.mode not in MODES:
+        raise InputError("mode", f"expected site or phone, got {evidence.mode!r}")
+    tables = tables_for(model, max_faults)
+    post = post if post is not None else posterior(model, evidence, max_faults=max_faults)
+    p = post.p
+    phone = evidence.mode == "phone"
+    pos = tables.check_pos
+
+    # checks: why each cannot be proposed (codes of _CHECK_STATUS), minutes with prerequisites
+    code = np.zeros(len(tables.check_ids), dtype=np.int8)
+    cmin = tables.check_minutes.copy()
+    cneeds, cblocked = _prerequisites(model, evidence, tables.checks_needing,
+                                      tables.check_needs, cmin, code, 8)
+    code[tables.check_one_outcome] = 7
+    code[tables.check_prep] = 6
+    for i in tables.checks_only_if:
+        if not only_if_matches(model, evidence, model.checks[tables.check_ids[i]]):
+            code[i] = 5
+    if phone:
+        code[~tables.check_phone] = 4
+    for ids, c in ((evidence.skipped, 3), (evidence.unsure, 2), (evidence.findings, 1)):
+        for cid in ids:
+            if cid in pos:
+                code[pos[cid]] = c
+
+    # repairs: usable ones, minutes with prerequisites, P(fixes a present cause)
+    R = len(tables.repair_ids)
+    rcode = np.zeros(R, dtype=np.int8)
+    rmin = tables.minutes.copy()
+    rneeds, rblocked = _prerequisites(model, evidence, tables.repairs_needing,
+                                      tables.repair_needs, rmin, rcode, 3)
+    p_fix = np.bincount(tables.fix_repair, weights=p[tables.fix_hyp], minlength=R)
+    rcode[(p_fix <= EPS) & (rcode == 0)] = 4
+    if phone:
+        rcode[~tables.repair_phone] = 2
+    for rid in evidence.repairs_done:
+        rcode[tables.repair_index[rid]] = 1
+    usable = rcode == 0
+
+    cand = np.flatnonzero(code == 0)
+    assign = assign_repairs(tables, usable, rmin)
+    bits_c, eco_c, ecr_now = lookahead(tables, p, cand, cmin[cand], assign, rmin,
+                                       settings.escalation_minutes)
+    bits = np.zeros(len(code))
+    eco = np.full(len(code), np.nan)
+    bits[cand], eco[cand] = bits_c, eco_c
+    result = Plan(Action("done"), post.ranking(limit=1).top, ecr_now, model, tables.check_ids,
+                  cmin, bits, eco, code, cneeds, cblocked, tables.repair_ids, rmin, p_fix,
+                  tables.success * p_fix, rcode, rneeds, rblocked)
+    action = _decide(model, evidence, post, settings, result)
+    return replace(result, action=action)
+
+
+def _prerequisites(model: Model, evidence: Evidence, which: tuple[int, ...],
+                   needs_of: tuple[tuple[str, ...], ...], minutes: np.ndarray, code: np.ndarray,
+                   blocked_code: int) -> tuple[dict[int, tuple[str, ...]], dict[int, str]]:
+    """Unmet prerequisites of items ``which``: adds their minutes, marks the blocked ones."""
+    unmet: dict[int, tuple[str, ...]] = {}
+    blocked_by: dict[int, str] = {}
+    for i in which:
+        needs, blocked = missing_prerequisites(model, evidence, needs_of[i])
+        if needs:
+            unmet[i] = needs
+            minutes[i] += sum(model.checks[n].minutes for n in needs)
+        if blocked:
+            blocked_by[i] = blocked
+            code[i] = blocked_code
+    return unmet, blocked_by
+
+
+def next_action(model: Model, evidence: Evidence, *, max_faults: int = 1,
+                settings: Settings = DEFAULT) -> Action:
+    """The proposed next action (see :func:`plan`)."""
+    return plan(model, evidence, max_faults=max_faults, settings=settings).action
+
+
+def checks_table(model: Model, evidence: Evidence, *, max_faults: int = 1,
+                 settings: Settings = DEFAULT) -> ChecksTable:
+    """Every check with minutes, expected information, ECO and why it is not offered."""
+    pl = plan(model, evidence, max_faults=max_faults, settings=settings)
+    return ChecksTable(pl.checks(), pl.ecr, evidence.mode)
+
+
+def _decide(model: Model, evidence: Evidence, post: Posterior, settings: Settings,
+            pl: Plan) -> Action:
+    thr = settings.threshold
+    if evidence.cured:
+        return Action("done", reason="a repair cured the unit")
+    if evidence.end is not None:
+        return Action("done", reason="the diagnosis is closed")
+    if post.contradiction or post.unknown >= thr:
+        return _escalate(post, "the evidence fits none of the known causes")
+    top = pl.top
+    known = top.cause != UNKNOWN_CAUSE
+    phone = evidence.mode == "phone"
+    live = pl.repair_code == 0
+    ratio = np.where(live, pl.p_cure / pl.repair_minutes, -np.inf)
+    for_top = live & np.array([known and top.cause in model.repairs[r].fixes
+                               for r in pl.repair_ids], dtype=bool)
+    if known and top.p >= thr:
+        if for_top.any():
+            best = int(np.argmax(np.where(for_top, ratio, -np.inf)))
+            return _repair_action(pl, best, f"{top.cause} is likely enough to act ({top.p:.2f})")
+        if phone:
+            return _visit(model, evidence, post, f"{top.cause} is likely ({top.p:.2f})")
+    informative = (pl.check_code == 0) & (pl.check_bits >= settings.min_bits)
+    if informative.any():
+        best_c = int(np.argmin(np.where(informative, pl.check_eco, np.inf)))
+        if pl.check_eco[best_c] < pl.ecr:
+            return _check_action(pl, best_c, "observing first saves minutes")
+        if known and top.p >= settings.act_floor and for_top.any():
+            best = int(np.argmax(np.where(for_top, ratio, -np.inf)))
+            return _repair_action(pl, best, "repairing now is cheaper")
+        return _check_action(pl, best_c, "not yet sure enough to repair")
+    if not known:
+        return _escalate(post, "none of the known causes fits best")
+    if phone:
+        return _visit(model, evidence, post, "nothing more to learn by phone")
+    worth = live & (pl.p_cure * settings.escalation_minutes >= pl.repair_minutes)
+    if worth.any():
+        pick = worth & for_top if (worth & for_top).any() else worth
+        best = int(np.argmax(np.where(pick, ratio, -np.inf)))
+        return _repair_action(pl, best, "no check left worth its minutes")
+    return _escalate(post, "no repair left worth its minutes")
+
+
+def _check_action(pl: Plan, i: int, reason: str) -> Action:
+    cid = pl.check_ids[i]
+    model = pl.model
+    needs = pl.check_needs.get(i, ())
+    minutes, bits, eco = float(pl.check_minutes[i]), float(pl.check_bits[i]), float(pl.check_eco[i])
+    if needs:
+        first = model.checks[needs[0]]
+        return Action("check", first.id, first.title, f"needed before {cid}", first.minutes,
+                      bits=bits, target=cid, eco=eco, ecr=pl.ecr)
+    return Action("check", cid, model.checks[cid].title, reason, minutes, bits=bits, eco=eco,
+                  ecr=pl.ecr)
+
+
+def _repair_action(pl: Plan, i: int, reason: str) -> Action:
+    rid = pl.repair_ids[i]
+    model = pl.model
+    r = model.repairs[rid]
+    causes = tuple(c for c in r.fixes if c in model.causes)
+    needs = pl.repair_needs.get(i, ())
+    minutes, p_fix = float(pl.repair_minutes[i]), float(pl.p_fix[i])
+    if needs:
+        first = model.checks[needs[0]]
+        return Action("check", first.id, first.title, f"needed before {rid}", first.minutes,
+                      p=p_fix, target=rid, causes=causes, parts=tuple(r.parts), ecr=pl.ecr)
+    return Action("repair", rid, r.title, reason, minutes, p=p_fix, causes=causes,
+                  parts=tuple(r.parts), ecr=pl.ecr)
+
+
+def _escalate(post: Posterior, reason: str) -> Action:
+    return Action("escalate", None, "Escalate to an application engineer", reason,
+                  p=post.unknown, causes=(UNKNOWN_CAUSE,))
+
+
+def _visit(model: Model, evidence: Evidence, post: Posterior, reason: str,
+           cover: float = 0.9, most: int = 3) -> Action:
+    """A site visit with the parts for the repairs of the likely causes (by phone)."""
+    causes: list[str] = []
+    total = 0.0
+    for e in post.ranking(limit=most + 1).entries:
+        if e.cause == UNKNOWN_CAUSE or total >= cover or len(causes) >= most:
+            continue
+        causes.append(e.cause)
+        total += e.p
+    parts: list[str] = []
+    done = evidence.repairs_done
+    for cause in causes:
+        options = [model.repairs[r] for r in model.repairs_for(cause) if r not in done]
+        if options:
+            best = max(options, key=lambda r: r.success / r.minutes)
+            parts += [x for x in best.parts if x not in parts]
+    return Action("visit", None, "Send a technician", reason, p=total, causes=tuple(causes),
+                  parts=tuple(parts))

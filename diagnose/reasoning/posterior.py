@@ -1,0 +1,260 @@
+"""The posterior over hypotheses: Bayes' rule, exact for the model, in log space.
+
+    log P(h | e) = log P(h) + Σ_items log P(item | h) − log Z
+
+over the hypotheses of :mod:`diagnose.reasoning.tables`. The items are the
+complaints reported, the check findings (soft evidence Σ_o w_o·P(o|h); "unsure"
+carries none) and the repairs done. ``Z`` normalises; working in logs keeps
+long sessions from underflowing.
+
+When every hypothesis is ruled out (a probability of exactly 0 somewhere in
+each), the evidence fits nothing: the posterior puts all mass on "unknown"
+and says so with ``contradiction``.
+
+References:
+    J. Pearl, *Probabilistic Reasoning in Intelligent Systems*, Morgan
+    Kaufmann, 1988, 2.2.2 (virtual evidence: likelihood Σ_o w_o P(o|h)).
+    D. Heckerman, J. S. Breese, K. Rommelse, "Decision-theoretic
+    troubleshooting", CACM 38(3), 1995.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterator
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from diagnose.errors import InputError
+from diagnose.kb.model import UNKNOWN_CAUSE, Model
+from diagnose.reasoning.evidence import Evidence
+from diagnose.reasoning.tables import Tables, tables_for
+
+
+@dataclass(frozen=True)
+class Item:
+    """One piece of evidence and its likelihood under every hypothesis."""
+
+    kind: str  # "complaint" | "finding" | "repair"
+    id: str  # complaint, check or repair id
+    value: str  # outcome (or "a:0.6, b:0.4"), "reported", "cured" / "not cured"
+    likelihood: np.ndarray  # (H,)
+
+    @property
+    def label(self) -> str:
+        if self.kind == "complaint":
+            return f"complaint {self.id}"
+        return f"{self.id} = {self.value}"
+
+
+def evidence_items(tables: Tables, evidence: Evidence) -> Iterator[Item]:
+    """The likelihood vector of each complaint, finding and repair in ``evidence``.
+
+    Raises:
+        InputError: an id the model does not know, or an outcome its check lacks.
+    """
+    model = tables.model
+    for k in evidence.complaints:
+        if k not in model.complaints:
+            raise InputError("complaint", f"unknown complaint {k!r}")
+        yield Item("complaint", k, "reported", tables.complaint(k))
+    for cid, weights in evidence.findings.items():
+        table = tables.checks.get(cid)
+        if table is None:
+            raise InputError("check", f"unknown check {cid!r}")
+        bad = [o for o in weights if o not in table.outcomes]
+        if bad:
+            raise InputError(cid, f"{bad[0]!r} is not an outcome; expected one of "
+                                  f"{', '.join(table.outcomes)}")
+        value = next(iter(weights)) if len(weights) == 1 else \
+            ", ".join(f"{o}:{w:.2f}" for o, w in weights.items())
+        yield Item("finding", cid, value, table.likelihood(weights, tables.n_hyp))
+    for rid, cured in evidence.repairs:
+        if rid not in tables.repair_index:
+            raise InputError("repair", f"unknown repair {rid!r}")
+        s = tables.success[tables.repair_index[rid]]
+        vec = np.zeros(tables.n_hyp) if cured else np.ones(tables.n_hyp)
+        vec[tables.repair_hypotheses(rid)] = s if cured else 1.0 - s
+        yield Item("repair", rid, "cured" if cured else "not cured", vec)
+
+
+def log_posterior(tables: Tables, evidence: Evidence) -> np.ndarray:
+    """Unnormalised log P(h | evidence) for every hypothesis (−inf where ruled out).
+
+    The log-likelihood vector of each hard piece of evidence is cached on the
+    tables, so an update costs one vector addition per piece.
+    """
+    out = tables.log_prior.copy()
+    get = tables.log_likelihood
+    for k in evidence.complaints:
+        vec = get("complaint", k, "reported")
+        if vec is None:
+            return _log_posterior(tables, evidence)
+        out += vec
+    for cid, weights in evidence.findings.items():
+        vec = get("finding", cid, next(iter(weights))) if len(weights) == 1 else None
+        if vec is None:
+            return _log_posterior(tables, evidence)
+        out += vec
+    for rid, cured in evidence.repairs:
+        vec = get("repair", rid, bool(cured))
+        if vec is None:
+            return _log_posterior(tables, evidence)
+        out += vec
+    return out
+
+
+def _log_posterior(tables: Tables, evidence: Evidence) -> np.ndarray:
+    """:func:`log_posterior` from the tables, filling the cache for hard evidence."""
+    out = tables.log_prior.copy()
+    with np.errstate(divide="ignore"):
+        for item in evidence_items(tables, evidence):
+            logs = np.log(item.likelihood)
+            if item.kind == "complaint":
+                tables.remember(item.kind, item.id, "reported", logs)
+            elif item.kind == "repair":
+                tables.remember(item.kind, item.id, item.value == "cured", logs)
+            elif len(evidence.findings[item.id]) == 1:
+                tables.remember(item.kind, item.id, item.value, logs)
+            out += logs
+    return out
+
+
+def normalise(logw: np.ndarray) -> tuple[np.ndarray, bool]:
+    """Probabilities from log weights; (p, contradiction). All −inf gives no mass at all."""
+    m = logw.max()
+    if not math.isfinite(m):
+        return np.zeros_like(logw), True
+    w = logw - m
+    np.exp(w, out=w)
+    w *= 1.0 / w.sum()
+    return w, False
+
+
+@dataclass(frozen=True, eq=False)
+class Posterior:
+    """P(h | evidence) over the hypotheses of ``tables``.
+
+    ``p`` sums to 1. ``contradiction`` is True when the evidence ruled out
+    every hypothesis; ``p`` then puts all mass on "unknown".
+    """
+
+    tables: Tables
+    p: np.ndarray
+    contradiction: bool = False
+
+    @property
+    def unknown(self) -> float:
+        return float(self.p[self.tables.unknown])
+
+    def causes(self) -> np.ndarray:
+        """P(cause present), per cause (sums to more than 1 − P(unknown) with pairs)."""
+        return self.tables.cause_marginals(self.p)
+
+    def top(self) -> tuple[str, float]:
+        """The most likely single entry of the ranking (a cause or "unknown") and its p."""
+        first = self.ranking(limit=1).entries[0]
+        return first.cause, first.p
+
+    def ranking(self, limit: int | None = None) -> Ranking:
+        """Causes (and "unknown") from most to least likely."""
+        t = self.tables
+        marg = self.causes()
+        values = np.concatenate([marg, [self.unknown]])
+        if limit is None or limit >= len(values):
+            order = np.argsort(-values, kind="stable")
+        elif limit == 1:
+            order = np.array([int(np.argmax(values))])
+        else:
+            part = np.argpartition(-values, limit - 1)[:limit]
+            order = part[np.lexsort((part, -values[part]))]
+        model = t.model
+        entries = []
+        for i in order:
+            cid = t.causes[i] if i < t.n_causes else UNKNOWN_CAUSE
+            title = model.causes[cid].title if cid in model.causes else "None of the known causes"
+            entries.append(RankEntry(cid, title, float(values[i])))
+        hyps: tuple[RankEntry, ...] = ()
+        if t.max_faults > 1:
+            horder = np.argsort(-self.p, kind="stable")[: (limit or 10)]
+            hyps = tuple(RankEntry(t.label(h), t.label(h).replace("+", " and "), float(self.p[h]))
+                         for h in horder)
+        return Ranking(tuple(entries), hyps, t.max_faults, self.contradiction, model.id)
+
+
+def posterior(model: Model, evidence: Evidence, *, max_faults: int = 1) -> Posterior:
+    """The exact posterior of the model given ``evidence``.
+
+    Raises:
+        InputError: unknown ids in the evidence, or a bad ``max_faults``.
+
+    >>> from diagnose.reasoning.synthetic import tiny_model
+    >>> from diagnose.reasoning.evidence import Evidence
+    >>> m = tiny_model()
+    >>> e = Evidence(complaints=("will_not_release",)).with_outcome("fuse", "blown")
+    >>> posterior(m, e).top()[0]
+    'fuse_blown'
+    """
+    tables = tables_for(model, max_faults)
+    p, bad = normalise(log_posterior(tables, evidence))
+    if bad:
+        p[tables.unknown] = 1.0
+    return Posterior(tables, p, bad)
+
+
+@dataclass(frozen=True)
+class RankEntry:
+    cause: str
+    title: str
+    p: float
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"cause": self.cause, "p": round(self.p, 6)}
+
+
+@dataclass(frozen=True)
+class Ranking:
+    """Causes from most to least likely; "unknown" is "none of the known causes".
+
+    With up to two faults the entries are the causes' marginal probabilities
+    (P(cause present)) and ``hypotheses`` lists the leading hypotheses.
+    """
+
+    entries: tuple[RankEntry, ...]
+    hypotheses: tuple[RankEntry, ...] = ()
+    max_faults: int = 1
+    contradiction: bool = False
+    pack: str = ""
+    shown: int = 8
+
+    @property
+    def top(self) -> RankEntry:
+        return self.entries[0]
+
+    def to_list(self) -> list[dict[str, Any]]:
+        return [e.to_dict() for e in self.entries]
+
+    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
+        from rich.table import Table
+
+        table = Table(title="Ranking" + (" (up to two faults)" if self.max_faults > 1 else ""),
+                      title_justify="left", expand=False, box=None, pad_edge=False)
+        table.add_column("#", justify="right", style="dim")
+        table.add_column("cause", overflow="fold", max_width=44)
+        table.add_column("p", justify="right")
+        table.add_column("", no_wrap=True)
+        for i, e in enumerate(self.entries[: self.shown], 1):
+            bar = "█" * round(e.p * 20)
+            name = e.title if e.cause == UNKNOWN_CAUSE else f"{e.cause}"
+            table.add_row(str(i), name, f"{e.p:.3f}", bar)
+        yield table
+        rest = len(self.entries) - self.shown
+        if rest > 0:
+            yield f"  ... and {rest} more"
+        if self.hypotheses:
+            yield "  leading hypotheses: " + "; ".join(
+                f"{h.cause} {h.p:.3f}" for h in self.hypotheses[:3])
+        if self.contradiction:
+            yield "  The evidence contradicts every known cause: escalate."

@@ -1,0 +1,385 @@
+"""Simulated service calls: how fast and how well each policy finds and cures the cause.
+
+Each run draws a true cause from the priors (known causes only: a run must be
+curable), then the complaint from the complaints whose fault tree that cause
+produces alone (uniformly; when none does, because of AND gates, from those
+whose tree holds it). Every check answers from the true cause's row of its
+effects (``normal`` for a cause it does not list; measurements give their
+verdict directly); with probability ``noise`` an answer is replaced by a
+different outcome, chosen uniformly. A repair that fixes the true cause cures
+with probability ``success``; any other repair does not. A run ends at the
+cure, or at an escalation, which adds ``escalation_minutes``.
+
+All draws (true causes, complaints, answers, cures) come from ``seed`` before
+any policy runs, so every policy meets the same cases and the same answers.
+
+Policies:
+
+* ``planner``: :func:`diagnose.reasoning.planner.next_action` at every step;
+* ``chart``: what a printed chart can do at best: the complaint's checks in
+  one fixed order, ranked by the prior mass of the causes each check can
+  reveal per minute (a static p/c order); at the first abnormal finding (an
+  outcome less likely under ``normal`` than under some cause) repair the most
+  likely revealed cause (prior × P(outcome | cause); revealed = the causes
+  that make the outcome more likely than ``normal``) and go on down the chart
+  if that did not cure; after the last check, repair the remaining causes of
+  the tree in static p/c order;
+* ``listing``: the chart rule with the checks in the pack's listing order
+  (for reference only);
+* ``random``: the chart rule with the checks in a random order (a floor).
+
+Reported per policy: mean checks, mean minutes to a cure (an escalation counts
+``escalation_minutes``), first-repair success (the first repair cured, over
+all runs), top-1 accuracy (the top of the posterior ranking, at the moment the
+first repair is chosen, is the true cause; over the runs that reach a repair),
+first-repair hits (the first repair fixes the true cause; same runs) and the
+share of runs cured (the rest were escalated). The
+information-theoretic lower bound on the number of checks is the entropy of
+the cause prior over log2 of the most outcomes any check has.
+
+References:
+    D. Heckerman, J. S. Breese, K. Rommelse, "Decision-theoretic
+    troubleshooting", CACM 38(3), 1995 (evaluation by simulated sessions).
+    C. E. Shannon, "A mathematical theory of communication", Bell System
+    Technical Journal 27, 1948 (entropy bound on questions to ask).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from diagnose.errors import InputError
+from diagnose.kb.model import Model
+from diagnose.reasoning.evidence import Evidence
+from diagnose.reasoning.planner import (
+    DEFAULT,
+    Settings,
+    missing_prerequisites,
+    next_action,
+    only_if_matches,
+)
+from diagnose.reasoning.posterior import posterior
+
+POLICIES = ("planner", "chart", "listing", "random")
+
+
+@dataclass(frozen=True, eq=False)
+class Draws:
+    """Everything random about a batch of runs, drawn once from the seed."""
+
+    causes: tuple[str, ...]
+    complaints: tuple[str, ...]
+    answer: np.ndarray  # (runs, checks, 3) uniforms: outcome, noise or not, which wrong one
+    cure: np.ndarray  # (runs, repairs) uniforms
+    order: np.ndarray  # (runs, checks) uniforms for the random policy
+
+
+def draw_cases(model: Model, runs: int, seed: int) -> Draws:
+    """True causes and complaints (see the module docstring) and every uniform a run may use."""
+    if runs < 1:
+        raise InputError("runs", f"expected at least 1, got {runs}")
+    rng = np.random.default_rng(seed)
+    ids = list(model.causes)
+    prior = np.array([model.causes[c].prior for c in ids], dtype=float)
+    picks = rng.choice(len(ids), size=runs, p=prior / prior.sum())
+    produced: dict[str, list[str]] = {}
+    for c in ids:
+        alone = [k for k in model.complaints if model.holds(k, frozenset({c}))]
+        produced[c] = alone or [k for k in model.complaints if c in model.tree_causes(k)]
+    pick_k = rng.random(runs)
+    causes, complaints = [], []
+    for i, j in enumerate(picks):
+        c = ids[int(j)]
+        options = produced[c]
+        if not options:
+            raise InputError("pack", f"cause {c} reaches no complaint")
+        causes.append(c)
+        complaints.append(options[int(pick_k[i] * len(options))])
+    return Draws(tuple(causes), tuple(complaints), rng.random((runs, len(model.checks), 3)),
+                 rng.random((runs, len(model.repairs))), rng.random((runs, len(model.checks))))
+
+
+@dataclass(frozen=True)
+class RunResult:
+    cause: str
+    complaint: str
+    checks: int
+    minutes: float
+    cured: bool
+    repaired: bool  # some repair was done
+    first_repair_cured: bool
+    top1: bool
+    first_hit: bool
+
+
+@dataclass(frozen=True)
+class PolicyReport:
+    """The averages of one policy over all runs."""
+
+    policy: str
+    runs: int
+    mean_checks: float
+    mean_minutes: float
+    first_repair_success: float
+    top1_accuracy: float
+    first_repair_hits: float
+    cured: float
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"policy": self.policy, "runs": self.runs,
+                "mean_checks": round(self.mean_checks, 4),
+                "mean_minutes": round(self.mean_minutes, 3),
+                "first_repair_success": round(self.first_repair_success, 4),
+                "top1_accuracy": round(self.top1_accuracy, 4),
+                "first_repair_hits": round(self.first_repair_hits, 4),
+                "cured": round(self.cured, 4)}
+
+
+@dataclass(frozen=True)
+class SimulationReport:
+    """Every policy's report on the same draws, and the entropy bound."""
+
+    pack: str
+    runs: int
+    seed: int
+    noise: float
+    entropy_bound: float
+    prior_entropy_bits: float
+    policies: dict[str, PolicyReport] = field(default_factory=dict)
+
+    @property
+    def main(self) -> PolicyReport:
+        """The planner's report when it ran, else the first policy's."""
+        return self.policies.get("planner") or next(iter(self.policies.values()))
+
+    def to_dict(self) -> dict[str, Any]:
+        out: dict[str, Any] = {"pack": self.pack, "runs": self.runs, "seed": self.seed,
+                               "noise": self.noise, **self.main.to_dict(),
+                               "entropy_bound": round(self.entropy_bound, 4),
+                               "prior_entropy_bits": round(self.prior_entropy_bits, 4)}
+        if len(self.policies) > 1:
+            out["policies"] = {k: v.to_dict() for k, v in self.policies.items()}
+        return out
+
+    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
+        from rich.table import Table
+
+        t = Table(title=f"{self.pack}: {self.runs} runs, seed {self.seed}, noise {self.noise}",
+                  title_justify="left", box=None, pad_edge=False)
+        t.add_column("", no_wrap=True)
+        for name in self.policies:
+            t.add_column(name, justify="right")
+        rows = (("mean checks", "mean_checks", "{:.2f}"),
+                ("mean minutes", "mean_minutes", "{:.1f}"),
+                ("first repair cures", "first_repair_success", "{:.3f}"),
+                ("top-1 at 1st repair", "top1_accuracy", "{:.3f}"),
+                ("1st repair on cause", "first_repair_hits", "{:.3f}"),
+                ("cured", "cured", "{:.3f}"))
+        for label, key, fmt in rows:
+            t.add_row(label, *(fmt.format(getattr(r, key)) for r in self.policies.values()))
+        yield t
+        yield (f"entropy bound: {self.entropy_bound:.2f} checks "
+               f"({self.prior_entropy_bits:.2f} bits of cause prior)")
+        if "planner" in self.policies and "chart" in self.policies:
+            ratio = self.policies["planner"].mean_minutes / max(
+                self.policies["chart"].mean_minutes, 1e-9)
+            yield f"planner minutes / chart minutes: {ratio:.3f}"
+
+
+class _Run:
+    """One simulated service call: answers checks and repairs from the draws."""
+
+    def __init__(self, model: Model, draws: Draws, i: int, noise: float,
+                 check_pos: dict[str, int], repair_pos: dict[str, int]) -> None:
+        self.model, self.draws, self.i, self.noise = model, draws, i, noise
+        self.cause = draws.causes[i]
+        self.evidence = Evidence(complaints=(draws.complaints[i],))
+        self.check_pos, self.repair_pos = check_pos, repair_pos
+        self.checks = 0
+        self.minutes = 0.0
+        self.cured = False
+        self.first: tuple[bool, bool, bool] | None = None  # cured, top1, hit
+
+    def answer(self, cid: str) -> str:
+        chk = self.model.checks[cid]
+        u = self.draws.answer[self.i, self.check_pos[cid]]
+        row = chk.effects.get(self.cause, chk.normal)
+        probs = np.array([row.get(o, 0.0) for o in chk.outcomes], dtype=float)
+        cum = np.cumsum(probs / probs.sum())
+        k = min(int(np.searchsorted(cum, u[0], side="right")), len(chk.outcomes) - 1)
+        if len(chk.outcomes) > 1 and u[1] < self.noise:
+            others = [j for j in range(len(chk.outcomes)) if j != k]
+            k = others[int(u[2] * len(others))]
+        outcome = chk.outcomes[k]
+        self.evidence = self.evidence.with_outcome(cid, outcome)
+        self.checks += 1
+        self.minutes += chk.minutes
+        return outcome
+
+    def repair(self, rid: str, max_faults: int = 1) -> bool:
+        r = self.model.repairs[rid]
+        hit = self.cause in r.fixes
+        cured = bool(hit and self.draws.cure[self.i, self.repair_pos[rid]] < r.success)
+        if self.first is None:
+            top = posterior(self.model, self.evidence, max_faults=max_faults).top()[0]
+            self.first = (cured, top == self.cause, hit)
+        self.evidence = self.evidence.with_repair(rid, cured)
+        self.minutes += r.minutes
+        self.cured = cured
+        return cured
+
+    def prerequisites(self, needs: tuple[str, ...]) -> None:
+        for cid in missing_prerequisites(self.model, self.evidence, needs)[0]:
+            self.answer(cid)
+
+    def result(self, escalation: float) -> RunResult:
+        first = self.first or (False, False, False)
+        minutes = self.minutes + (0.0 if self.cured else escalation)
+        return RunResult(self.cause, self.draws.complaints[self.i], self.checks, minutes,
+                         self.cured, self.first is not None, *first)
+
+
+def _planner(run: _Run, settings: Settings, max_faults: int, limit: int) -> None:
+    for _ in range(limit):
+        action = next_action(run.model, run.evidence, max_faults=max_faults, settings=settings)
+        if action.kind == "check" and action.id:
+            run.answer(action.id)
+        elif action.kind == "repair" and action.id:
+            if run.repair(action.id, max_faults):
+                return
+        else:
+            return
+
+
+def chart_order(model: Model, complaint: str, *, listing: bool = False) -> tuple[str, ...]:
+    """The complaint's checks (they list a cause of its tree), in static p/c order.
+
+    Score of a check: Σ prior of the tree's causes it can reveal (their row
+    makes some outcome more likely than ``normal``) / minutes with prerequisites.
+    """
+    tree = set(model.tree_causes(complaint))
+    empty = Evidence()
+    scored = []
+    for n, chk in enumerate(model.checks.values()):
+        if chk.preparation or not only_if_matches(model, empty, chk):
+            continue
+        revealed = [c for c in chk.effects if c in tree and any(
+            chk.effects[c].get(o, 0.0) > chk.normal.get(o, 0.0) + 1e-9 for o in chk.outcomes)]
+        if not revealed:
+            continue
+        minutes = chk.minutes + sum(model.checks[x].minutes for x in
+                                    missing_prerequisites(model, empty, chk.needs)[0])
+        mass = sum(model.causes[c].prior for c in revealed)
+        scored.append((n if listing else -mass / minutes, n, chk.id))
+    return tuple(cid for _, _, cid in sorted(scored))
+
+
+def _abnormal_causes(model: Model, cid: str, outcome: str, tree: set[str]) -> list[str]:
+    """Causes revealed by ``outcome`` of ``cid``, most likely first; [] for a normal outcome."""
+    chk = model.checks[cid]
+    base = chk.normal.get(outcome, 0.0)
+    revealed = [c for c in chk.effects if c in tree and chk.effects[c].get(outcome, 0.0) > base]
+    revealed.sort(key=lambda c: -model.causes[c].prior * chk.effects[c].get(outcome, 0.0))
+    return revealed
+
+
+def _best_repair(model: Model, cause: str, done: frozenset[str]) -> str | None:
+    options = [model.repairs[r] for r in model.repairs_for(cause) if r not in done]
+    if not options:
+        return None
+    return max(options, key=lambda r: r.success / r.minutes).id
+
+
+def _chart(run: _Run, order: tuple[str, ...]) -> None:
+    model = run.model
+    complaint = run.evidence.complaints[0]
+    tree = set(model.tree_causes(complaint))
+    for cid in order:
+        if cid in run.evidence.done:
+            continue
+        run.prerequisites(model.checks[cid].needs)
+        outcome = run.answer(cid)
+        for cause in _abnormal_causes(model, cid, outcome, tree):
+            rid = _best_repair(model, cause, run.evidence.repairs_done)
+            if rid is None:
+                continue
+            run.prerequisites(model.repairs[rid].needs)
+            if run.repair(rid):
+                return
+            break
+    rest = sorted(tree, key=lambda c: -model.causes[c].prior)
+    while True:
+        done = run.evidence.repairs_done
+        options = [(model.causes[c].prior * model.repairs[r].success / model.repairs[r].minutes, r)
+                   for c in rest for r in [_best_repair(model, c, done)] if r is not None]
+        if not options:
+            return
+        rid = max(options)[1]
+        run.prerequisites(model.repairs[rid].needs)
+        if run.repair(rid):
+            return
+
+
+def entropy_bound(model: Model) -> tuple[float, float]:
+    """(lower bound on checks, entropy of the cause prior in bits)."""
+    prior = np.array([c.prior for c in model.causes.values()], dtype=float)
+    prior = prior / prior.sum()
+    bits = float(-(prior[prior > 0] * np.log2(prior[prior > 0])).sum())
+    most = max((len(c.outcomes) for c in model.checks.values()), default=2)
+    return bits / math.log2(max(most, 2)), bits
+
+
+def simulate(model: Model, *, runs: int, seed: int, noise: float = 0.0,
+             policies: tuple[str, ...] = POLICIES, settings: Settings = DEFAULT,
+             max_faults: int = 1) -> SimulationReport:
+    """Run ``runs`` simulated calls with each policy on the same draws.
+
+    Raises:
+        InputError: unknown policy, ``noise`` outside [0, 1), runs < 1.
+    """
+    bad = [p for p in policies if p not in POLICIES]
+    if bad:
+        raise InputError("policy", f"unknown policy {bad[0]!r}; known: {', '.join(POLICIES)}")
+    if not 0.0 <= noise < 1.0:
+        raise InputError("noise", f"expected a probability below 1, got {noise}")
+    draws = draw_cases(model, runs, seed)
+    check_pos = {c: i for i, c in enumerate(model.checks)}
+    repair_pos = {r: i for i, r in enumerate(model.repairs)}
+    limit = len(model.checks) + len(model.repairs) + 5
+    charts: dict[str, tuple[str, ...]] = {}
+    listings: dict[str, tuple[str, ...]] = {}
+    reports: dict[str, PolicyReport] = {}
+    for policy in policies:
+        results = []
+        for i in range(runs):
+            run = _Run(model, draws, i, noise, check_pos, repair_pos)
+            k = draws.complaints[i]
+            if policy == "planner":
+                _planner(run, settings, max_faults, limit)
+            elif policy == "chart":
+                _chart(run, charts.setdefault(k, chart_order(model, k)))
+            elif policy == "listing":
+                _chart(run, listings.setdefault(k, chart_order(model, k, listing=True)))
+            else:
+                base = charts.setdefault(k, chart_order(model, k))
+                shuffle = np.argsort(draws.order[i, [check_pos[c] for c in base]])
+                _chart(run, tuple(base[j] for j in shuffle))
+            results.append(run.result(settings.escalation_minutes))
+        repaired = [r for r in results if r.repaired] or results[:1]
+        reports[policy] = PolicyReport(
+            policy, runs,
+            float(np.mean([r.checks for r in results])),
+            float(np.mean([r.minutes for r in results])),
+            float(np.mean([r.first_repair_cured for r in results])),
+            float(np.mean([r.top1 for r in repaired])) if any(r.repaired for r in results)
+            else 0.0,
+            float(np.mean([r.first_hit for r in repaired])) if any(r.repaired for r in results)
+            else 0.0,
+            float(np.mean([r.cured for r in results])))
+    bound, bits = entropy_bound(model)
+    return SimulationReport(model.id, runs, seed, noise, bound, bits, reports)

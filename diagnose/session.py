@@ -1,0 +1,646 @@
+"""One diagnosis as a list of events; its state is a pure fold over them.
+
+Every face (the shell, ``diagnose run``, the knowledge tests) goes through
+:class:`Session`. A method that changes the state validates first (bad input
+raises :class:`~diagnose.errors.InputError` and changes nothing), then makes
+one :class:`Event`, hands it to the sink (``write(session_id, event)``; the
+journal's SQLite store is one), and only then appends it. The state
+(:class:`~diagnose.reasoning.evidence.Evidence`) is :func:`fold` of the
+events, so :meth:`Session.undo` is an ``undo`` event that hides an earlier
+one, and :meth:`Session.replay` rebuilds a session from a journal.
+
+Event kinds and their ``data`` keys:
+
+=========== ===================================================================
+notice      pack, version, content_hash, packs, text, mode, max_faults (first)
+identity    free keys about the unit and the call (serial, customer, ...)
+nameplate   param, text (as typed), value (normalised: "24 V", "yes", "unknown")
+complaint   complaint
+answer      check, outcome
+reading     check, text (str or list), verdict, weights, summary, figures
+unsure      check
+skip        check
+ack         caution
+repair      repair, cured
+note        text
+mode        mode ("site" or "phone")
+end         result, cause, p, repair, parts, text
+undo        index (of the event undone), kind (of that event)
+=========== ===================================================================
+
+``notice``, ``ack``, ``end`` and ``undo`` cannot be undone; a safety
+acknowledgement stays on the record. No terminal I/O here.
+"""
+
+from __future__ import annotations
+
+import uuid
+from collections.abc import Callable, Iterable, Iterator, Mapping
+from dataclasses import dataclass, field, replace
+from datetime import datetime, timezone
+from typing import Any, Protocol
+
+from diagnose.errors import InputError
+from diagnose.kb.model import Case, Caution, Check, Model, Parameter, Step
+from diagnose.physics.verdict import Verdict
+from diagnose.reasoning.evidence import MODES, Evidence
+from diagnose.reasoning.explain import (
+    CheckExplanation,
+    RankingExplanation,
+    explain_check,
+    explain_ranking,
+)
+from diagnose.reasoning.planner import (
+    DEFAULT,
+    Action,
+    ChecksTable,
+    Plan,
+    Settings,
+    nameplate_value,
+    plan,
+)
+from diagnose.reasoning.posterior import Posterior, Ranking, posterior
+
+EVENT_KINDS = ("notice", "identity", "nameplate", "complaint", "answer", "reading", "unsure",
+               "skip", "ack", "repair", "note", "mode", "end", "undo")
+UNDOABLE = frozenset({"identity", "nameplate", "complaint", "answer", "reading", "unsure",
+                      "skip", "repair", "note", "mode"})
+END_RESULTS = ("resolved", "visit", "escalated", "abandoned")
+
+
+@dataclass(frozen=True)
+class Event:
+    """One thing that happened in a diagnosis. ``time`` is ISO 8601 (UTC)."""
+
+    kind: str
+    data: dict[str, Any]
+    time: str
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"kind": self.kind, "data": dict(self.data), "time": self.time}
+
+    @classmethod
+    def from_dict(cls, d: Mapping[str, Any]) -> Event:
+        return cls(str(d["kind"]), dict(d.get("data") or {}), str(d.get("time", "")))
+
+
+class Sink(Protocol):
+    """Where events go as they happen; ``write`` returns once the event is stored."""
+
+    def write(self, session_id: str, event: Event) -> None: ...
+
+
+class NullSink:
+    """Stores nothing."""
+
+    def write(self, session_id: str, event: Event) -> None:
+        return None
+
+
+class MemorySink:
+    """Keeps every event in memory, per session id (for tests and scripted runs)."""
+
+    def __init__(self) -> None:
+        self.events: dict[str, list[Event]] = {}
+
+    def write(self, session_id: str, event: Event) -> None:
+        self.events.setdefault(session_id, []).append(event)
+
+
+def _now() -> str:
+    return datetime.now(timezone.utc).isoformat(timespec="seconds")
+
+
+# --- the fold ------------------------------------------------------------------------------
+
+def effective_events(events: Iterable[Event]) -> list[Event]:
+    """The events that still count: ``undo`` events and the events they undid are dropped."""
+    listed = list(events)
+    undone = {int(e.data["index"]) for e in listed if e.kind == "undo" and "index" in e.data}
+    return [e for i, e in enumerate(listed) if i not in undone and e.kind != "undo"]
+
+
+def apply(evidence: Evidence, event: Event) -> Evidence:
+    """The evidence after one event (unknown kinds change nothing)."""
+    d = event.data
+    k = event.kind
+    if k == "notice":
+        return replace(evidence, mode=str(d.get("mode", evidence.mode)))
+    if k == "identity":
+        return replace(evidence, identity={**evidence.identity,
+                                           **{str(a): str(b) for a, b in d.items()}})
+    if k == "nameplate":
+        return evidence.with_nameplate(d["param"], str(d["value"]))
+    if k == "complaint":
+        return evidence.with_complaint(d["complaint"])
+    if k == "answer":
+        return evidence.with_outcome(d["check"], d["outcome"])
+    if k == "reading":
+        weights = d.get("weights") or {d["verdict"]: 1.0}
+        return evidence.with_finding(d["check"], {str(o): float(w) for o, w in weights.items()})
+    if k == "unsure":
+        return evidence.with_unsure(d["check"])
+    if k == "skip":
+        return evidence.with_skip(d["check"])
+    if k == "ack":
+        return replace(evidence, acknowledged=evidence.acknowledged | {d["caution"]})
+    if k == "repair":
+        return evidence.with_repair(d["repair"], bool(d["cured"]))
+    if k == "note":
+        return replace(evidence, notes=evidence.notes + (str(d.get("text", "")),))
+    if k == "mode":
+        return evidence.with_mode(d["mode"])
+    if k == "end":
+        return replace(evidence, end=dict(d))
+    return evidence
+
+
+def fold(events: Iterable[Event]) -> Evidence:
+    """The state of a diagnosis: its effective events applied in order to empty evidence."""
+    evidence = Evidence()
+    for event in effective_events(events):
+        evidence = apply(evidence, event)
+    return evidence
+
+
+# --- findings ------------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Finding:
+    """The result of answering a check: the outcome (weights for soft evidence) and the figures."""
+
+    check: str
+    outcome: str | None  # None for "unsure"
+    weights: dict[str, float] = field(default_factory=dict)
+    text: Any = None
+    verdict: Verdict | None = None
+
+    @property
+    def soft(self) -> bool:
+        return len(self.weights) > 1
+
+    def to_dict(self) -> dict[str, Any]:
+        out: dict[str, Any] = {"check": self.check, "outcome": self.outcome,
+                               "weights": dict(self.weights)}
+        if self.text is not None:
+            out["text"] = self.text
+        if self.verdict is not None:
+            out["verdict"] = self.verdict.to_dict()
+        return out
+
+    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
+        if self.outcome is None:
+            yield f"{self.check}: unsure (no evidence)"
+            return
+        what = ", ".join(f"{o} {w:.2f}" for o, w in self.weights.items()) if self.soft \
+            else self.outcome
+        yield f"{self.check}: {what}" + (" (near a band edge)" if self.soft else "")
+        if self.verdict is not None:
+            if self.verdict.summary:
+                yield f"  {self.verdict.summary}"
+            for f in self.verdict.figures.values():
+                yield f"  {f.label}: {f.value:.4g} {f.unit}".rstrip()
+
+
+def _squash(text: str) -> str:
+    return "".join(ch for ch in text.strip().lower() if ch not in " _-")
+
+
+def _text(value: Any) -> str:
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    return str(value).strip()
+
+
+# --- the session -----------------------------------------------------------------------------
+
+class Session:
+    """One diagnosis of one unit with one pack.
+
+    Args:
+        model: the compiled pack.
+        mode: "site" (default) or "phone".
+        max_faults: 1 (one cause, default) or 2 (up to two causes at once).
+        sink: receives every event before the method returns (default: NullSink).
+        session_id: default a new random hex id.
+        clock: returns the ISO time of an event (default: now, UTC).
+        settings: the planner's decision rule.
+
+    Raises:
+        InputError: a bad mode or max_faults.
+    """
+
+    def __init__(self, model: Model, *, mode: str = "site", max_faults: int = 1,
+                 sink: Sink | None = None, session_id: str | None = None,
+                 clock: Callable[[], str] | None = None, settings: Settings = DEFAULT,
+                 _events: list[Event] | None = None) -> None:
+        if mode not in MODES:
+            raise InputError("mode", f"expected site or phone, got {mode!r}")
+        if max_faults not in (1, 2):
+            raise InputError("max_faults", f"expected 1 or 2, got {max_faults}")
+        self.model = model
+        self.max_faults = max_faults
+        self.sink: Sink = sink if sink is not None else NullSink()
+        self.session_id = session_id or uuid.uuid4().hex
+        self.settings = settings
+        self._clock = clock or _now
+        self._events: list[Event] = []
+        self._evidence = Evidence(mode=mode)
+        self._cache: dict[str, Any] = {}
+        if _events is None:
+            self._record("notice", {
+                "pack": model.id, "version": model.version, "content_hash": model.content_hash,
+                "packs": list(model.packs), "text": model.notice, "mode": mode,
+                "max_faults": max_faults})
+        else:
+            self._events = list(_events)
+            self._evidence = fold(self._events)
+
+    # --- state ---------------------------------------------------------------------------
+    @property
+    def events(self) -> tuple[Event, ...]:
+        """Every event, undone ones and ``undo`` events included (what the sink received)."""
+        return tuple(self._events)
+
+    @property
+    def evidence(self) -> Evidence:
+        return self._evidence
+
+    @property
+    def mode(self) -> str:
+        return self._evidence.mode
+
+    @property
+    def ended(self) -> bool:
+        return self._evidence.end is not None
+
+    @property
+    def notice(self) -> str:
+        return self.model.notice
+
+    @property
+    def pack_changed(self) -> bool:
+        """True when the session was recorded with other knowledge (its content hash differs)."""
+        first = self._events[0] if self._events else None
+        if first is None or first.kind != "notice":
+            return False
+        return str(first.data.get("content_hash", "")) != self.model.content_hash
+
+    def _record(self, kind: str, data: dict[str, Any]) -> Event:
+        event = Event(kind, data, self._clock())
+        evidence = fold(self._events + [event]) if kind == "undo" else apply(self._evidence, event)
+        self.sink.write(self.session_id, event)  # committed before the state changes
+        self._events.append(event)
+        self._evidence = evidence
+        self._cache.clear()
+        return event
+
+    def _open(self) -> None:
+        if self.ended:
+            raise InputError("session", "the diagnosis is closed; start a new one")
+
+    def _check(self, check_id: str) -> Check:
+        chk = self.model.checks.get(check_id)
+        if chk is None:
+            raise InputError("check", f"unknown check {check_id!r}")
+        return chk
+
+    # --- recording -------------------------------------------------------------------------
+    def set_identity(self, **fields: Any) -> Event:
+        """Facts about the unit and the call: serial number, customer, site, ..."""
+        return self._record("identity", {k: _text(v) for k, v in fields.items()})
+
+    def set_nameplate(self, param_id: str, text: Any) -> str:
+        """Record a nameplate value; returns it normalised ("24 V", "yes", "unknown").
+
+        Raises:
+            InputError: unknown parameter, a wrong unit, out of range, not a choice,
+                or "unknown" where the pack does not allow it.
+        """
+        self._open()
+        param = self.model.parameters.get(param_id)
+        if param is None:
+            known = ", ".join(self.model.parameters) or "none"
+            raise InputError("nameplate", f"unknown parameter {param_id!r}; known: {known}")
+        value = normalise_parameter(param, text)
+        self._record("nameplate", {"param": param_id, "text": _text(text), "value": value})
+        return value
+
+    def add_complaint(self, complaint_id: str) -> Event:
+        """Record the complaint (the symptom reported)."""
+        self._open()
+        if complaint_id not in self.model.complaints:
+            known = ", ".join(self.model.complaints)
+            raise InputError("complaint", f"unknown complaint {complaint_id!r}; known: {known}")
+        return self._record("complaint", {"complaint": complaint_id})
+
+    def answer(self, check_id: str, text: Any) -> Finding:
+        """Answer a check: an outcome id, or for a measurement a reading (with unit) or readings.
+
+        A reading is evaluated at once (inputs from the pack, ``$param`` from the
+        nameplate); near a band edge the meter's accuracy makes it soft evidence.
+        "unsure" is the same as :meth:`unsure`.
+
+        Raises:
+            InputError: unknown check, not an outcome, a reading the evaluator
+                refuses, a nameplate value the evaluator needs is not known.
+        """
+        self._open()
+        chk = self._check(check_id)
+        if isinstance(text, str) and _squash(text) == "unsure":
+            return self.unsure(check_id)
+        outcome = _match_outcome(chk, text)
+        if outcome is not None:
+            self._record("answer", {"check": check_id, "outcome": outcome})
+            return Finding(check_id, outcome, {outcome: 1.0}, _text(text))
+        if chk.measurement is None:
+            raise InputError(check_id, f"{text!r} is not an outcome; expected one of "
+                                       f"{', '.join(chk.outcomes)} (or unsure)")
+        verdict = self._evaluate(chk, text)
+        weights = dict(verdict.weights) if verdict.weights else {verdict.verdict: 1.0}
+        bad = [o for o in weights if o not in chk.outcomes]
+        if bad:
+            raise InputError(check_id, f"the verdict {bad[0]!r} is not an outcome of this check")
+        shown = [_text(t) for t in text] if isinstance(text, (list, tuple)) else _text(text)
+        self._record("reading", {
+            "check": check_id, "text": shown, "verdict": verdict.verdict, "weights": weights,
+            "summary": verdict.summary,
+            "figures": {k: f.to_dict() for k, f in verdict.figures.items()}})
+        return Finding(check_id, verdict.verdict, weights, shown, verdict)
+
+    def _evaluate(self, chk: Check, text: Any) -> Verdict:
+        """Run the check's evaluator on a reading (soft near a band edge when accuracy is set)."""
+        from diagnose.physics import units
+        from diagnose.physics.inputs import split_readings
+        from diagnose.physics.registry import EVALUATORS, evaluate
+        from diagnose.physics.soft import soft_verdict
+
+        m = chk.measurement
+        assert m is not None
+        spec = EVALUATORS.get(m.evaluator)
+        if spec is None:
+            raise InputError(chk.id, f"unknown evaluator {m.evaluator!r}")
+        field_name = m.reading or spec.reading
+        if not field_name:
+            raise InputError(chk.id, f"evaluator {m.evaluator} takes no reading")
+        values: dict[str, Any] = {}
+        for name, raw in m.inputs.items():
+            if isinstance(raw, str) and raw.startswith("$"):
+                pid = raw[1:]
+                value = nameplate_value(self.model, self._evidence, pid)
+                if value is None:
+                    inp = spec.input(name)
+                    if inp is not None and inp.required and inp.default is None:
+                        prompt = self.model.parameters[pid].prompt \
+                            if pid in self.model.parameters else pid
+                        raise InputError(chk.id, f"needs the nameplate value {pid} ({prompt}); "
+                                                 "set it first")
+                    continue
+                values[name] = value
+            else:
+                values[name] = raw
+
+        def with_unit(x: Any) -> Any:
+            if not m.unit or units.is_open(x) or isinstance(x, bool):
+                return x
+            if isinstance(x, (int, float)) or (isinstance(x, str) and units.unit_of(x) is None
+                                                and not units.is_unit(x)):
+                return f"{x} {m.unit}"
+            return x
+
+        inp = spec.input(field_name)
+        if inp is not None and inp.many:
+            values[field_name] = [with_unit(x) for x in split_readings(text, field_name)]
+        elif isinstance(text, (list, tuple)):
+            raise InputError(chk.id, "expected one reading, got a list")
+        else:
+            values[field_name] = with_unit(text)
+        if m.accuracy > 0:
+            return soft_verdict(m.evaluator, values, m.accuracy, reading=field_name)
+        return evaluate(m.evaluator, values)
+
+    def unsure(self, check_id: str) -> Finding:
+        """The check was done but the answer is not clear: no evidence, not offered again."""
+        self._open()
+        self._check(check_id)
+        self._record("unsure", {"check": check_id})
+        return Finding(check_id, None)
+
+    def skip(self, check_id: str) -> Event:
+        """The check cannot be done now: not offered again (until undone or answered)."""
+        self._open()
+        self._check(check_id)
+        return self._record("skip", {"check": check_id})
+
+    def acknowledge(self, caution_id: str) -> Event:
+        """Record that a caution was read and acknowledged (cannot be undone)."""
+        if caution_id not in self.model.cautions:
+            raise InputError("caution", f"unknown caution {caution_id!r}")
+        return self._record("ack", {"caution": caution_id})
+
+    def repair(self, repair_id: str, cured: bool) -> Event:
+        """Record a repair done and whether it cured the complaint."""
+        self._open()
+        if repair_id not in self.model.repairs:
+            raise InputError("repair", f"unknown repair {repair_id!r}")
+        if not isinstance(cured, bool):
+            raise InputError("cured", f"expected true or false, got {cured!r}")
+        return self._record("repair", {"repair": repair_id, "cured": cured})
+
+    def note(self, text: str) -> Event:
+        """A free-text note for the repair log (allowed after the end too)."""
+        if not str(text).strip():
+            raise InputError("note", "empty note")
+        return self._record("note", {"text": str(text).strip()})
+
+    def set_mode(self, mode: str) -> Event:
+        """Switch between "site" and "phone"."""
+        self._open()
+        if mode not in MODES:
+            raise InputError("mode", f"expected site or phone, got {mode!r}")
+        return self._record("mode", {"mode": mode})
+
+    def end(self, result: str | None = None, *, text: str = "") -> Event:
+        """Close the diagnosis with ``result`` (default: what the evidence says).
+
+        ``result``: "resolved" (a repair cured), "visit" (phone: send a technician
+        with ``parts``), "escalated", or "abandoned".
+        """
+        self._open()
+        action = self.next_action()
+        if result is None:
+            result = ("resolved" if self._evidence.cured else
+                      {"visit": "visit", "escalate": "escalated"}.get(action.kind, "abandoned"))
+        if result not in END_RESULTS:
+            raise InputError("result", f"expected one of {', '.join(END_RESULTS)}, got {result!r}")
+        top = self.ranking().top
+        cured = [r for r, c in self._evidence.repairs if c]
+        return self._record("end", {
+            "result": result, "cause": top.cause, "p": round(top.p, 6),
+            "repair": cured[-1] if cured else None,
+            "parts": list(action.parts) if action.kind == "visit" else [], "text": str(text)})
+
+    def undo(self) -> Event | None:
+        """Undo the last event that can be undone; returns it (None when there is none)."""
+        undone = {int(e.data["index"]) for e in self._events if e.kind == "undo"}
+        for i in range(len(self._events) - 1, -1, -1):
+            e = self._events[i]
+            if e.kind == "end" and i not in undone:
+                return None  # nothing before the end can be changed any more
+            if e.kind in UNDOABLE and i not in undone:
+                self._record("undo", {"index": i, "kind": e.kind})
+                return e
+        return None
+
+    def apply_step(self, step: Step | Mapping[str, Any]) -> Finding | Event:
+        """Play one scripted step (the format of a pack's test cases and of ``--answers``).
+
+        ``{check: id, answer: value}``, ``{check: id, answer: unsure}``,
+        ``{check: id, skip: true}`` or ``{repair: id, cured: bool}``.
+        """
+        s = step if isinstance(step, Step) else _step(step)
+        if s.check is not None:
+            if s.skip:
+                return self.skip(s.check)
+            if s.answer is None:
+                raise InputError(s.check, "a step needs `answer` or `skip: true`")
+            return self.answer(s.check, s.answer)
+        if s.repair is not None:
+            return self.repair(s.repair, bool(s.cured))
+        raise InputError("step", "a step needs `check` or `repair`")
+
+    # --- reasoning ---------------------------------------------------------------------------
+    def posterior(self) -> Posterior:
+        if "post" not in self._cache:
+            self._cache["post"] = posterior(self.model, self._evidence,
+                                            max_faults=self.max_faults)
+        return self._cache["post"]
+
+    def plan(self) -> Plan:
+        """The next action with the scores of every check and repair."""
+        if "plan" not in self._cache:
+            self._cache["plan"] = plan(self.model, self._evidence, max_faults=self.max_faults,
+                                       settings=self.settings, post=self.posterior())
+        return self._cache["plan"]
+
+    def ranking(self) -> Ranking:
+        """All causes and "unknown", most likely first."""
+        return self.posterior().ranking()
+
+    def next_action(self) -> Action:
+        return self.plan().action
+
+    def checks_table(self) -> ChecksTable:
+        """Every check with minutes, expected bits, ECO, and why it is not offered."""
+        pl = self.plan()
+        return ChecksTable(pl.checks(), pl.ecr, self.mode)
+
+    def explain_ranking(self, leading: int = 3) -> RankingExplanation:
+        return explain_ranking(self.model, self._evidence, max_faults=self.max_faults,
+                               leading=leading)
+
+    def explain_check(self, check_id: str) -> CheckExplanation:
+        return explain_check(self.model, self._evidence, check_id, max_faults=self.max_faults,
+                             settings=self.settings)
+
+    def pending_cautions(self, item_id: str) -> tuple[Caution, ...]:
+        """DANGER/WARNING cautions of a check or repair not yet acknowledged."""
+        item: Any = self.model.checks.get(item_id) or self.model.repairs.get(item_id)
+        if item is None:
+            raise InputError("item", f"no check or repair {item_id!r}")
+        out = []
+        for cid in item.cautions:
+            c = self.model.cautions.get(cid)
+            if c is not None and c.needs_acknowledgement and cid not in self._evidence.acknowledged:
+                out.append(c)
+        return tuple(out)
+
+    # --- resume ------------------------------------------------------------------------------
+    @classmethod
+    def replay(cls, model: Model, events: Iterable[Event | Mapping[str, Any]], *,
+               sink: Sink | None = None, session_id: str | None = None,
+               clock: Callable[[], str] | None = None, settings: Settings = DEFAULT) -> Session:
+        """Rebuild a session from its events (for resume); new events go to ``sink``.
+
+        Raises:
+            InputError: the events were recorded with another pack, or are malformed.
+        """
+        evs = [e if isinstance(e, Event) else Event.from_dict(e) for e in events]
+        mode, max_faults = "site", 1
+        if evs and evs[0].kind == "notice":
+            d = evs[0].data
+            if d.get("pack") not in (None, model.id):
+                raise InputError("session", f"recorded with pack {d.get('pack')}, not {model.id}")
+            mode, max_faults = str(d.get("mode", mode)), int(d.get("max_faults", max_faults))
+        session = cls(model, mode=mode, max_faults=max_faults, sink=sink,
+                      session_id=session_id, clock=clock, settings=settings, _events=evs)
+        return session
+
+
+def normalise_parameter(param: Parameter, text: Any) -> str:
+    """A nameplate answer checked against its parameter: unit, range, choices, "unknown".
+
+    Raises:
+        InputError: with the parameter id as field and a one-line reason.
+    """
+    raw = _text(text) if not isinstance(text, (int, float)) or isinstance(text, bool) else text
+    if isinstance(raw, str):
+        if not raw:
+            raise InputError(param.id, "empty answer")
+        if _squash(raw) == "unknown":
+            if param.unknown_allowed:
+                return "unknown"
+            raise InputError(param.id, "this value is needed; 'unknown' is not allowed here")
+    if param.choices:
+        for choice in param.choices:
+            if _squash(str(choice)) == _squash(str(raw)):
+                return choice
+        raise InputError(param.id, f"expected one of: {', '.join(param.choices)}")
+    if param.unit or param.min is not None or param.max is not None:
+        from diagnose.physics.units import parse_quantity
+
+        value = parse_quantity(raw, param.unit, param.id, negative=True)
+        lo, hi = param.min, param.max
+        if (lo is not None and value < lo) or (hi is not None and value > hi):
+            span = f"{'' if lo is None else f'{lo:g}'}..{'' if hi is None else f'{hi:g}'}"
+            raise InputError(param.id, f"{_text(raw)} is outside {span} {param.unit}".rstrip())
+        return f"{value:.6g} {param.unit}".rstrip()
+    return str(raw)
+
+
+def _match_outcome(chk: Check, text: Any) -> str | None:
+    if not isinstance(text, (str, bool)):
+        return None
+    key = _squash(_text(text))
+    for o in chk.outcomes:
+        if _squash(o) == key:
+            return o
+    return None
+
+
+def _step(d: Mapping[str, Any]) -> Step:
+    if not isinstance(d, Mapping):
+        raise InputError("step", f"expected a mapping, got {d!r}")
+    extra = set(d) - {"check", "answer", "skip", "repair", "cured"}
+    if extra:
+        raise InputError("step", f"unknown key {min(extra)!r}")
+    if "repair" in d and not isinstance(d.get("cured"), bool):
+        raise InputError(str(d["repair"]), "a repair step needs `cured: true` or `cured: false`")
+    return Step(check=d.get("check"), answer=d.get("answer"), repair=d.get("repair"),
+                cured=d.get("cured"), skip=bool(d.get("skip", False)))
+
+
+def play_case(model: Model, case: Case, *, sink: Sink | None = None) -> Session:
+    """A session that played a knowledge test case: nameplate, complaints, then its steps.
+
+    Raises:
+        InputError: a step the model or the physics refuses.
+    """
+    session = Session(model, mode=case.mode, max_faults=case.max_faults, sink=sink)
+    for param, value in case.nameplate.items():
+        session.set_nameplate(param, value)
+    for k in case.complaints:
+        session.add_complaint(k)
+    for step in case.steps:
+        session.apply_step(step)
+    return session

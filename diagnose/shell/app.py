@@ -1,0 +1,1054 @@
+"""The diagnosis shell: the loop that walks a person from the notice to the cure.
+
+The flow: the pack's safety notice (recorded once per session), the
+nameplate, optional site/machine/axis/serial, the complaint(s), then turn
+after turn the ranking, the proposed check or repair as a card (cautions
+first; DANGER and WARNING need an acknowledgement before the instructions),
+and the answer; at the end the cured cause or the escalation and where the
+repair log is.
+
+Everything goes through :class:`diagnose.session.Session`, the same API the
+scripted run uses, so both write the same events. The shell gets its
+``reader`` (a terminal prompt or lines of text, see ``reader``) and its rich
+``Console`` from the caller, so tests give a pipe and a string buffer.
+
+A shell that never dies: bad input gets one line of explanation and the
+same question again, with nothing lost; Ctrl-C clears the line; Ctrl-D
+asks whether to save and leave; an error inside a command is one line.
+"""
+
+from __future__ import annotations
+
+import argparse
+import difflib
+import os
+import re
+import sys
+from collections.abc import Callable, Sequence
+from typing import TYPE_CHECKING, Any
+
+from diagnose.errors import DiagnoseError, InputError, JournalError
+from diagnose.shell import commands
+from diagnose.shell.complete import Choice, CompletionState, choose
+from diagnose.shell.render import (
+    CautionView,
+    CheckCard,
+    EndView,
+    HelpView,
+    NoticeView,
+    RankingView,
+    RankRow,
+    RepairCard,
+    percent,
+    why_text,
+)
+
+if TYPE_CHECKING:
+    from diagnose.kb.model import Check, Model, Repair
+    from diagnose.reasoning.planner import Action
+    from diagnose.session import Session
+
+IDENTITY_FIELDS = (("site", "Site or customer"), ("machine", "Machine"), ("axis", "Axis"),
+                   ("serial", "Brake serial number"))
+ACK_WORDS = frozenset({"ack", "acknowledge", "acknowledged", "ok", "yes", "y"})
+YES = frozenset({"yes", "y", "cured", "true"})
+NO = frozenset({"no", "n", "not cured", "false"})
+#: What a reading starts with: a number (one of several), or a word for an open circuit.
+_READING = re.compile(r"^\s*([+-]?(\d|\.\d)|ol\b|o\.l\.?|inf|\+inf|infinity|open|∞)", re.IGNORECASE)
+STEP_KINDS = frozenset({"answer", "reading", "unsure", "skip", "repair"})
+_MAX_FAILURES = 5  # unexpected errors in a row without new input before the shell gives up
+
+
+class Leave(Exception):
+    """Raised by `quit` (and Ctrl-D): leave the shell, the session stays resumable."""
+
+
+class _Restart(Exception):
+    """The state changed under the current question (undo, do, repair, mode): start the turn anew."""
+
+
+class Shell:
+    """One diagnosis session driven interactively.
+
+    Args:
+        session: the session (new, or replayed from the journal to resume).
+        console: a rich Console for everything shown.
+        reader: where answers come from (``ask(message, state, default) -> str``).
+        journal_path: where the events go, for the "saved" and "repair log" lines.
+        resumed: True when the session was replayed from the journal.
+    """
+
+    def __init__(self, session: Session, console: Any, reader: Any, *,
+                 journal_path: str | None = None, resumed: bool = False) -> None:
+        self.session = session
+        self.model: Model = session.model
+        self.console = console
+        self.reader = reader
+        self.journal_path = journal_path
+        self.resumed = resumed
+        self._identity_done = resumed and bool(session.evidence.complaints or
+                                               session.evidence.identity)
+        self._more_complaints_done = resumed and bool(session.evidence.complaints)
+        self._forced: tuple[str, str] | None = None  # ("check"|"repair", id) chosen by the person
+        self._turn_forced: tuple[str, str] | None = None  # what this turn was chosen to be
+        self._current: tuple[str, str] | None = None  # what the current question is about
+        self._closing_offered = False
+
+    # --- the loop ------------------------------------------------------------------------
+    def run(self) -> int:
+        """Run the flow until the end of the diagnosis or `quit`; returns an exit status."""
+        if self.resumed:
+            self.say(f"Resuming session {self.session.session_id} ({self.model.title}, "
+                     f"{self.session.mode} mode, {self.steps()} step(s) so far).", style="bold")
+            if self.session.pack_changed:
+                self.warn("the pack has changed since this session was recorded; "
+                          "the ranking uses the pack as it is now")
+        else:
+            self.console.print(NoticeView(self.session.notice or _FALLBACK_NOTICE))
+            self.say(f"Session {self.session.session_id}: {self.model.title} "
+                     f"({self.model.id} {self.model.version}), {self.session.mode} mode. "
+                     "Type help for the commands.")
+        failures = 0
+        while True:
+            try:
+                if self._step():
+                    return 0
+                failures = 0
+            except _Restart:
+                failures = 0
+                continue
+            except Leave:
+                self._goodbye()
+                return 0
+            except KeyboardInterrupt:
+                self.say("(interrupted; the question is asked again)")
+            except JournalError as exc:
+                failures += 1
+                self.failure(f"journal: {exc}")
+            except DiagnoseError as exc:
+                failures += 1
+                self.failure(str(exc))
+            except Exception as exc:  # noqa: BLE001 - the shell never dies: one line, go on
+                failures += 1
+                self.failure(f"internal error ({type(exc).__name__}: {exc}); "
+                             "the session so far is saved")
+            if failures >= _MAX_FAILURES:
+                self.failure("too many errors in a row; leaving (the session is saved)")
+                self._goodbye()
+                return 1
+
+    def _step(self) -> bool:
+        """One stage of the flow; True when the diagnosis is over."""
+        s = self.session
+        ev = s.evidence
+        if s.ended:
+            self._show_end_of_closed()
+            return True
+        missing = [p for p in self.model.parameters if p not in ev.nameplate]
+        if missing:
+            if len(missing) == len(self.model.parameters):
+                self.heading("Unit identification: the nameplate")
+                self.say("Enter keeps the value in brackets; `defaults` keeps it for every "
+                         "value still to come; `unknown` where allowed.", style="dim")
+            self.ask_parameter(missing[0])
+            return False
+        if not self._identity_done:
+            self.ask_identity()
+            return False
+        if not ev.complaints:
+            self.ask_complaint(first=True)
+            return False
+        if not self._more_complaints_done:
+            self.ask_complaint(first=False)
+            return False
+        return self.turn()
+
+    # --- output helpers ------------------------------------------------------------------
+    def say(self, text: str, style: str | None = None, *, wrap: bool = True) -> None:
+        """Plain text (no markup), wrapped at the console width unless ``wrap`` is False."""
+        self.console.print(text, style=style, markup=False, highlight=False, soft_wrap=not wrap)
+
+    def heading(self, text: str) -> None:
+        from rich.rule import Rule
+
+        self.console.print(Rule(text, align="left", style="dim"))
+
+    def error(self, text: str) -> None:
+        """One line that says why the input was not taken."""
+        self.say(f"Not accepted: {text}", style="red", wrap=False)
+
+    def failure(self, text: str) -> None:
+        """One line about a failure that is not the person's input."""
+        self.say(f"Error: {text}", style="bold red", wrap=False)
+
+    def warn(self, text: str) -> None:
+        self.say(f"Note: {text}", style="yellow")
+
+    # --- asking ----------------------------------------------------------------------------
+    def ask(self, message: str, parse: Callable[[str], Any], *,
+            answers: Sequence[Choice] = (), empty: str | None = None,
+            default: str = "") -> Any:
+        """Ask until ``parse`` accepts the line; commands run in between.
+
+        ``empty``: the one-line explanation for an empty line (None: an empty line
+        is passed to ``parse``). ``parse`` raises InputError to refuse.
+        """
+        state = CompletionState(answers=tuple(answers), commands=self.command_choices(),
+                                arguments=self.argument_choices())
+        answer_ids = {a.lower() for a, _ in answers}
+        while True:
+            try:
+                line = self.reader.ask(message, state, default)
+            except KeyboardInterrupt:
+                continue
+            except EOFError:
+                self.on_end_of_input()
+                continue
+            text = line.strip()
+            if not text:
+                if empty is not None:
+                    self.error(empty)
+                    continue
+            else:
+                word, _, rest = text.partition(" ")
+                cmd = commands.find(word)
+                if cmd is not None and text.lower() not in answer_ids:
+                    self.run_command(cmd, rest)
+                    continue
+            try:
+                return parse(text)
+            except InputError as exc:
+                self.error(_message(exc))
+
+    def run_command(self, cmd: commands.Command, arg: str) -> None:
+        try:
+            cmd(self, arg)
+        except (_Restart, Leave):
+            raise
+        except InputError as exc:
+            self.error(_message(exc))
+        except DiagnoseError as exc:
+            self.error(str(exc))
+
+    def command_choices(self) -> tuple[Choice, ...]:
+        return tuple((c.name, c.help) for c in commands.COMMANDS.values())
+
+    def argument_choices(self) -> dict[str, tuple[Choice, ...]]:
+        from diagnose.physics.registry import EVALUATORS
+
+        phone = self.session.mode == "phone"
+        checks = tuple((c.id, c.title) for c in self.model.checks.values()
+                       if not phone or c.phone_ok)
+        repairs = tuple((r.id, r.title) for r in self.model.repairs.values()
+                        if not phone or r.where == "phone")
+        params = tuple((p.id, p.prompt) for p in self.model.parameters.values())
+        return {"do": checks, "why": checks, "repair": repairs, "nameplate": params,
+                "mode": (("site", "a technician at the unit"), ("phone", "guiding a caller")),
+                "help": self.command_choices(), "ranking": (("all", "every cause"),),
+                "calc": tuple((e.name, e.title) for e in EVALUATORS.values())}
+
+    def on_end_of_input(self) -> None:
+        """Ctrl-D (or the end of a script): ask whether to save and leave."""
+        self.say("")
+        try:
+            line = self.reader.ask("Save and leave? (yes / no to stay / abandon to close "
+                                   "the diagnosis unsolved) ", CompletionState(
+                                       answers=(("yes", "leave; resume later"),
+                                                ("no", "stay"),
+                                                ("abandon", "close without a result"))))
+        except (EOFError, KeyboardInterrupt):
+            raise Leave from None
+        word = line.strip().lower()
+        if word in ("no", "n", "stay"):
+            return
+        if word == "abandon":
+            self.session.end("abandoned", text="abandoned from the shell")
+            self.say("The diagnosis is closed as abandoned.")
+            raise Leave
+        raise Leave
+
+    # --- stages ------------------------------------------------------------------------------
+    def ask_parameter(self, pid: str) -> None:
+        """One nameplate value, checked as typed; Enter keeps the default, `defaults` all of them."""
+        p = self.model.parameters[pid]
+        hints = []
+        if p.choices:
+            hints.append("/".join(p.choices))
+        elif p.unit:
+            span = ""
+            if p.min is not None or p.max is not None:
+                lo = "" if p.min is None else f"{p.min:g}"
+                hi = "" if p.max is None else f"{p.max:g}"
+                span = f", {lo}..{hi}"
+            hints.append(f"{unit_text(p.unit)}{span}")
+        if p.unknown_allowed:
+            hints.append("or unknown")
+        hint = f" ({'; '.join(hints)})" if hints else ""
+        default = f" [{unit_text(str(p.default))}]" if p.default else ""
+        answers: list[Choice] = [(c, "") for c in p.choices]
+        if p.unknown_allowed:
+            answers.append(("unknown", "not on the nameplate"))
+        answers.append(("defaults", "keep the default of this value and of all still to come"))
+
+        def parse(text: str) -> list[tuple[str, str]]:
+            if text.lower() == "defaults":
+                return self._keep_defaults()
+            if not text:
+                if p.default is None:
+                    raise InputError(pid, "an answer is needed (there is no default)")
+                text = str(p.default)
+            return [(pid, self.session.set_nameplate(pid, text))]
+
+        for param, value in self.ask(f"{p.prompt}{hint}{default}: ", parse, answers=answers):
+            self.say(f"  {param} = {unit_text(value)}", style="dim")
+
+    def _keep_defaults(self) -> list[tuple[str, str]]:
+        """Set every nameplate value still open that has a default; those without are asked."""
+        done = []
+        for pid, param in self.model.parameters.items():
+            if pid not in self.session.evidence.nameplate and param.default is not None:
+                done.append((pid, self.session.set_nameplate(pid, str(param.default))))
+        if not done:
+            raise InputError("defaults", "no value still to come has a default")
+        return done
+
+    def ask_identity(self) -> None:
+        """Optional facts for the log; Enter skips each."""
+        self.heading("For the repair log (optional: Enter skips)")
+        fields: dict[str, str] = {}
+        for key, label in IDENTITY_FIELDS:
+            text = self.ask(f"{label}: ", lambda t: t)
+            if text:
+                fields[key] = text
+        if fields:
+            self.session.set_identity(**fields)
+        self._identity_done = True
+
+    def complaint_choices(self, *, both: bool = False) -> list[Choice]:
+        """Complaints not yet reported: (id, title), the caller's wording in phone mode.
+
+        ``both``: the title and the caller's wording together, so that either matches.
+        """
+        phone = self.session.mode == "phone"
+        done = set(self.session.evidence.complaints)
+        out = []
+        for k in self.model.complaints.values():
+            if k.id in done:
+                continue
+            shown = (k.caller_title or k.title) if phone else k.title
+            out.append((k.id, f"{k.title} / {k.caller_title}" if both and k.caller_title
+                        else shown))
+        return out
+
+    def ask_complaint(self, *, first: bool) -> None:
+        choices = self.complaint_choices()
+        if first:
+            from rich.table import Table
+
+            self.heading("The complaint")
+            table = Table(show_header=False, box=None, pad_edge=False, padding=(0, 1))
+            table.add_column("n", justify="right", no_wrap=True)
+            table.add_column("complaint", overflow="fold", ratio=1)
+            table.add_column("id", style="dim", overflow="fold", max_width=28)
+            for i, (cid, title) in enumerate(choices, 1):
+                table.add_row(f"{i})", title, cid)
+            self.console.print(table)
+        if not first and not choices:
+            self._more_complaints_done = True
+            return
+
+        def parse(text: str) -> str | None:
+            if not text:
+                if first:
+                    raise InputError("complaint", "type a number or words of the complaint "
+                                     "(Tab completes)")
+                return None
+            return self._pick(text, self.complaint_choices(both=True), "complaint")
+
+        msg = ("Complaint (number or words of it): " if first else
+               "Another complaint? (number or words; Enter to go on): ")
+        cid = self.ask(msg, parse, answers=choices)
+        if cid is None:
+            self._more_complaints_done = True
+            return
+        self.session.add_complaint(cid)
+        self.say(f"  complaint: {self.model.complaints[cid].title}", style="dim")
+
+    def _pick(self, text: str, choices: Sequence[Choice], what: str) -> str:
+        """The id of ``choices`` that ``text`` names: a number, an id, or words of the title."""
+        t = text.strip()
+        if t.isdigit():
+            n = int(t)
+            if 1 <= n <= len(choices):
+                return choices[n - 1][0]
+            raise InputError(what, f"there is no number {n}; choose 1 to {len(choices)}")
+        found = choose(t, choices)
+        if len(found) > 1:  # prefer the one that has every typed word whole
+            whole = [c for c in found if _has_words(t, c[1])]
+            found = whole if len(whole) == 1 else found
+        if len(found) == 1:
+            return found[0][0]
+        if len(found) > 1:
+            listed = ", ".join(c for c, _ in found[:5])
+            raise InputError(what, f"{t!r} fits several: {listed}; type more of it")
+        close = difflib.get_close_matches(t, [c for c, _ in choices], n=1)
+        hint = f"; did you mean {close[0]}?" if close else ""
+        raise InputError(what, f"no {what} matches {t!r}{hint}")
+
+    # --- the turn ---------------------------------------------------------------------------
+    def turn(self) -> bool:
+        """Ranking, the next check or repair, and its answer. True when the diagnosis ended."""
+        s = self.session
+        forced, self._forced = self._forced, None
+        self._turn_forced = forced
+        if forced is not None:
+            kind, item = forced
+            action = None
+        elif s.evidence.cured:  # the end is known without asking the planner
+            from diagnose.reasoning.planner import Action
+
+            action = Action("done", reason="a repair cured the unit")
+            kind, item = "done", ""
+        else:
+            action = s.next_action()
+            kind, item = action.kind, action.id or ""
+        if kind in ("done", "escalate", "visit"):
+            return self.finish(action)
+        self.console.print("")
+        self.console.print(self.ranking_view())
+        if kind == "check":
+            self.check_turn(item, action)
+        elif kind == "repair":
+            self.repair_turn(item, action)
+        return False
+
+    def ranking_view(self, top: int = 5) -> RankingView:
+        from diagnose.kb.model import UNKNOWN_CAUSE
+
+        rows: list[RankRow] = []
+        unknown = None
+        for e in self.session.ranking().entries:
+            row = RankRow(e.cause, e.title, e.p)
+            if e.cause == UNKNOWN_CAUSE:
+                unknown = row
+            else:
+                rows.append(row)
+        return RankingView(tuple(rows), unknown, top=top)
+
+    def cautions(self, ids: Sequence[str]) -> tuple[CautionView, ...]:
+        order = {"DANGER": 0, "WARNING": 1, "CAUTION": 2, "NOTICE": 3}
+        found = [self.model.cautions[c] for c in ids if c in self.model.cautions]
+        found.sort(key=lambda c: order.get(c.level, 9))
+        return tuple(CautionView(c.level, c.text) for c in found)
+
+    def check_card(self, chk: Check, action: Action | None, *, shown: bool) -> CheckCard:
+        phone = self.session.mode == "phone"
+        why = self._why_check(chk, action)
+        outcomes = tuple((o, chk.outcome_titles.get(o, "")) for o in chk.outcomes)
+        instructions = (chk.caller or chk.ask) if phone else chk.ask
+        return CheckCard(chk.id, chk.title, chk.minutes, tuple(chk.tools),
+                         self.cautions(chk.cautions), why, instructions if shown else None,
+                         outcomes, unit_text(chk.measurement.unit) if chk.measurement else "",
+                         "Ask the caller" if phone else "Check", many=_many(chk))
+
+    def _why_check(self, chk: Check, action: Action | None) -> str:
+        if action is not None and action.kind == "check" and action.id == chk.id:
+            if action.target:
+                target = self.model.checks.get(action.target) or self.model.repairs.get(
+                    action.target)
+                name = target.title if target is not None else action.target
+                return f"it must be done first, before: {name}"
+            reason = action.reason
+            base = why_text(action.bits, action.minutes)
+            return f"{reason}: {base}" if reason else base
+        try:
+            x = self.session.explain_check(chk.id)
+        except DiagnoseError:
+            return "you chose it"
+        return f"you chose it; {why_text(x.bits, x.minutes)}"
+
+    def acknowledge(self, item_id: str) -> bool:
+        """Ask for the acknowledgement of pending DANGER/WARNING cautions; False when skipped."""
+        pending = self.session.pending_cautions(item_id)
+        if not pending:
+            return True
+        levels = " and ".join(sorted({c.level for c in pending},
+                                     key=lambda lv: ("DANGER", "WARNING").index(lv)))
+        is_check = item_id in self.model.checks
+
+        def parse(text: str) -> bool:
+            word = text.lower()
+            if word in ACK_WORDS:
+                return True
+            if word == "skip" and is_check:
+                return False
+            raise InputError("acknowledge", "type ack to confirm you have read the "
+                             f"{levels} above" + (", or skip" if is_check else ""))
+
+        ok = self.ask(f"Type ack to confirm you have read the {levels} above"
+                      f"{' (or skip)' if is_check else ''}: ", parse,
+                      answers=(("ack", "I have read the cautions"),) + (
+                          (("skip", "cannot be done now"),) if is_check else ()),
+                      empty=f"type ack to confirm you have read the {levels} above")
+        if not ok:
+            return False
+        for c in pending:
+            self.session.acknowledge(c.id)
+        self.say(f"  acknowledged: {', '.join(c.id for c in pending)}", style="dim")
+        return True
+
+    def present(self, item_id: str, card: Callable[[bool], Any]) -> bool:
+        """Show the card of a check or repair; instructions only once its cautions are acknowledged.
+
+        ``card(shown)`` makes the card with (True) or without (False) its
+        instructions. Returns False when the person chose to skip the check instead.
+        """
+        if not self.session.pending_cautions(item_id):
+            self.console.print(card(True))
+            return True
+        self.console.print(card(False))
+        if not self.acknowledge(item_id):
+            return False
+        self.console.print(card(True).instructions_view())
+        return True
+
+    def check_turn(self, check_id: str, action: Action | None) -> None:
+        s = self.session
+        chk = self.model.checks[check_id]
+        self._current = ("check", check_id)
+        if not self.present(check_id, lambda shown: self.check_card(chk, action, shown=shown)):
+            s.skip(check_id)
+            self.say(f"  skipped {check_id}: another check is proposed", style="dim")
+            return
+        measured = chk.measurement is not None
+        outcomes: list[Choice] = [(o, chk.outcome_titles.get(o, "")) for o in chk.outcomes]
+        answers = outcomes + [("unsure", "done, but the answer is not clear"),
+                              ("skip", "cannot be done now: propose another")]
+
+        def parse(text: str) -> Any:
+            low = text.lower()
+            if low == "skip":
+                s.skip(check_id)
+                return None
+            if low == "unsure":
+                return s.unsure(check_id)
+            if not measured:
+                if low.isdigit():
+                    n = int(low)
+                    if not 1 <= n <= len(outcomes):
+                        raise InputError(check_id, f"there is no answer {n}; "
+                                         f"choose 1 to {len(outcomes)}")
+                    return s.answer(check_id, outcomes[n - 1][0])
+                found = answer_matches(text, outcomes)
+                if len(found) == 1:
+                    return s.answer(check_id, found[0])
+                listed = ", ".join(o for o, _ in outcomes)
+                raise InputError(check_id, f"{text!r} is not an answer ({listed}, unsure "
+                                 "or skip) nor a command (help lists them)")
+            named = [o for o, _ in outcomes if o.lower() == low]
+            if named:  # a verdict typed by name ("ok", "open")
+                return s.answer(check_id, named[0])
+            if not _READING.match(text):
+                raise InputError(check_id, f"{text!r} is not a reading (a number with its unit, "
+                                 f"such as 3.2 {chk.measurement.unit}, or OL for open), nor a "
+                                 "command (help lists them)")
+            try:
+                return s.answer(check_id, text)
+            except InputError as exc:
+                more = ("; type: nameplate PARAM VALUE" if "nameplate value" in exc.message
+                        else "")
+                raise InputError(exc.field, f"{exc.message}{more} (or unsure, skip, help)"
+                                 ) from None
+
+        if measured:
+            assert chk.measurement is not None
+            msg = f"Reading ({chk.measurement.unit} if no unit is given), unsure or skip: "
+        else:
+            msg = f"Answer ({'/'.join(chk.outcomes)}, unsure, skip): "
+        finding = self.ask(msg, parse, answers=answers,
+                           empty="type the answer, unsure or skip (Tab completes; help "
+                           "lists the commands)")
+        self._current = None
+        if finding is None:
+            self.say(f"  skipped {check_id}: another check is proposed", style="dim")
+            return
+        self.show_finding(chk, finding)
+
+    def show_finding(self, chk: Check, finding: Any) -> None:
+        from rich.text import Text
+
+        if finding.outcome is None:
+            self.say(f"  {chk.id}: unsure (recorded; no evidence either way)", style="dim")
+            return
+        if finding.verdict is not None:
+            self.console.print(finding.verdict)
+            if finding.soft:
+                self.say("  near a band edge: counted as "
+                         + ", ".join(f"{o} {w:.0%}" for o, w in finding.weights.items()))
+            return
+        wording = chk.outcome_titles.get(finding.outcome, "")
+        line = Text(f"  {chk.title}: ", style="bold")
+        line.append(finding.outcome + (f" ({wording})" if wording else ""))
+        self.console.print(line)
+
+    def repair_card(self, rep: Repair, action: Action | None, *, shown: bool) -> RepairCard:
+        fixes = tuple(self.model.causes[c].title for c in rep.fixes if c in self.model.causes)
+        why = ""
+        if action is not None and action.kind == "repair" and action.id == rep.id:
+            why = f"{action.reason} (P that it fixes the cause: {percent(action.p)})"
+        else:
+            why = "you chose it"
+        confirm = ""
+        if rep.confirm and rep.confirm in self.model.checks:
+            confirm = f"confirm with: {self.model.checks[rep.confirm].title}"
+        return RepairCard(rep.id, rep.title, rep.minutes, tuple(rep.parts),
+                          self.cautions(rep.cautions), fixes, why,
+                          rep.ask if shown else None, confirm)
+
+    def repair_turn(self, repair_id: str, action: Action | None) -> None:
+        s = self.session
+        rep = self.model.repairs[repair_id]
+        self._current = ("repair", repair_id)
+        self.present(repair_id, lambda shown: self.repair_card(rep, action, shown=shown))
+
+        def parse(text: str) -> bool:
+            low = " ".join(text.lower().split())
+            if low in YES:
+                return True
+            if low in NO:
+                return False
+            raise InputError("cured", "answer yes or no (or choose another step with "
+                             "do CHECK or repair REPAIR)")
+
+        cured = self.ask("Repair done. Is the complaint cured? (yes/no): ", parse,
+                         answers=(("yes", "cured"), ("no", "not cured")),
+                         empty="answer yes or no")
+        s.repair(repair_id, cured)
+        self._current = None
+        if cured:
+            self.say(f"  {rep.title}: cured.", style="green")
+        else:
+            self.say(f"  {rep.title}: not cured; the ranking is updated.", style="yellow")
+
+    # --- the end -----------------------------------------------------------------------------
+    def finish(self, action: Action | None) -> bool:
+        """Show the result and close the diagnosis; True when it is closed."""
+        s = self.session
+        assert action is not None
+        self.console.print("")
+        self.console.print(self.ranking_view())
+        view = self.end_view(action)
+        self.console.print(view)
+        if action.kind != "done":
+            def parse(text: str) -> bool:
+                if text.lower() in YES:
+                    return True
+                raise InputError("close", "type yes to close the diagnosis with this result, "
+                                 "or a command such as do CHECK, repair REPAIR or undo")
+
+            self.ask("Close the diagnosis with this result? (yes, or a command): ", parse,
+                     answers=(("yes", "close the diagnosis"),),
+                     empty="type yes to close, or a command (help lists them)")
+        s.end()
+        self.say(f"Session {s.session_id} is closed.", style="bold")
+        return True
+
+    def end_view(self, action: Action) -> EndView:
+        s = self.session
+        ev = s.evidence
+        top = s.ranking().top
+        title = self.model.causes[top.cause].title if top.cause in self.model.causes else top.title
+        if action.kind == "done" and ev.cured:
+            cured = [r for r, c in ev.repairs if c]
+            rep = self.model.repairs.get(cured[-1]) if cured else None
+            return EndView("cured", f"Cured. Cause: {title} ({percent(top.p)}).",
+                           (f"Repair that cured it: {rep.title}" if rep else "",),
+                           log=self.log_hint())
+        if action.kind == "visit":
+            causes = "; ".join(self.model.causes[c].title for c in action.causes
+                               if c in self.model.causes)
+            return EndView("visit", "Recommendation: send a technician to the site.",
+                           (f"Most likely: {causes}." if causes else "", _sentence(action.reason)),
+                           tuple(action.parts), self.log_hint())
+        if action.kind == "escalate":
+            return EndView("unknown", "None of the known causes fits: escalate to an "
+                           "application engineer or the manufacturer.",
+                           (_sentence(action.reason),
+                            f"Leading known cause: {title} ({percent(top.p)})."),
+                           log=self.log_hint())
+        return EndView("stopped", _sentence(action.reason) or "Nothing more to do.",
+                       log=self.log_hint())
+
+    def _show_end_of_closed(self) -> None:
+        end = self.session.evidence.end or {}
+        self.say(f"This diagnosis is closed ({end.get('result', 'closed')}). "
+                 f"Repair log: {self.log_hint()}")
+
+    def log_hint(self) -> str:
+        """Where the repair log is: the report command and the journal file."""
+        sid = self.session.session_id
+        if self.journal_path:
+            return f"diagnose report {sid} (journal {self.journal_path})"
+        return "none: no journal in use, the events were not stored"
+
+    def _goodbye(self) -> None:
+        s = self.session
+        if s.ended:
+            return
+        if self.journal_path:
+            self.say(f"Saved. Resume with: diagnose resume {s.session_id}", style="bold")
+        else:
+            self.say("Left without a journal: nothing was stored.", style="bold")
+
+    # --- what the commands call ------------------------------------------------------------
+    def steps(self) -> int:
+        from diagnose.session import effective_events
+
+        return sum(1 for e in effective_events(self.session.events) if e.kind in STEP_KINDS)
+
+    def toolbar(self) -> str:
+        """pack | mode | session | steps | top cause: the bottom toolbar's text."""
+        s = self.session
+        cause, share = "-", ""
+        try:
+            if s.evidence.complaints:
+                top = s.ranking().top
+                cause, share = top.cause, f" {percent(top.p)}"
+        except Exception:  # noqa: BLE001 - drawn on every key, it must never fail
+            cause, share = "-", ""
+        head = f" {self.model.id} | {s.mode} | session {s.session_id} | step {self.steps()} | top: "
+        room = _width() - len(head) - len(share) - 1
+        if len(cause) > room:  # shorten the cause's id, keep its probability
+            cause = cause[: max(room - 1, 1)] + "…"
+        return f"{head}{cause}{share} "
+
+    def show_help(self, topic: str) -> None:
+        if topic:
+            cmd = commands.find(topic)
+            if cmd is None:
+                raise InputError("help", f"no command {topic!r}; commands: "
+                                 f"{', '.join(commands.COMMANDS)}")
+            self.console.print(HelpView(((cmd.usage, cmd.help),)))
+            return
+        rows = tuple((c.usage, c.help) for c in commands.COMMANDS.values())
+        self.console.print(HelpView(rows, (
+            ("To answer a check: type an outcome (or its number), a reading with its unit "
+            "(3.2 ohm, 23.5V, OL), unsure, or skip. Tab completes; Ctrl-C clears the line; "
+            "Ctrl-D asks whether to save and leave."),)))
+
+    def show_why(self, arg: str) -> None:
+        s = self.session
+        if arg:
+            cid = self._pick(arg, [(c.id, c.title) for c in self.model.checks.values()], "check")
+            self.console.print(s.explain_check(cid))
+            return
+        self.console.print(s.explain_ranking())
+        if self._current and self._current[0] == "check":
+            self.console.print(s.explain_check(self._current[1]))
+
+    def show_ranking(self, everything: bool = False) -> None:
+        n = len(self.model.causes) if everything else 8
+        self.console.print(self.ranking_view(top=n))
+
+    def show_checks(self) -> None:
+        self.console.print(self.session.checks_table())
+
+    def choose_check(self, arg: str) -> None:
+        s = self.session
+        if not s.evidence.complaints:
+            raise InputError("check", "first say what the complaint is")
+        phone = s.mode == "phone"
+        cid = self._pick(arg, [(c.id, c.title) for c in self.model.checks.values()], "check")
+        chk = self.model.checks[cid]
+        if phone and not chk.phone_ok:
+            raise InputError("check", f"{cid} is done on site only; by phone only checks "
+                             "safe for a caller are offered")
+        from diagnose.reasoning.planner import only_if_matches
+
+        if not only_if_matches(self.model, s.evidence, chk):
+            raise InputError("check", f"{cid} does not apply to this unit (nameplate)")
+        if cid in s.evidence.findings:
+            self.warn(f"{cid} was answered before; a new answer replaces the old one")
+        self._forced = ("check", cid)
+        raise _Restart
+
+    def choose_repair(self, arg: str) -> None:
+        s = self.session
+        if not s.evidence.complaints:
+            raise InputError("repair", "first say what the complaint is")
+        rid = self._pick(arg, [(r.id, r.title) for r in self.model.repairs.values()], "repair")
+        rep = self.model.repairs[rid]
+        if s.mode == "phone" and rep.where != "phone":
+            raise InputError("repair", f"{rid} is done on site only; in phone mode the end is "
+                             "a site visit with the parts to bring")
+        self._forced = ("repair", rid)
+        raise _Restart
+
+    def undo(self) -> None:
+        event = self.session.undo()
+        if event is None:
+            raise InputError("undo", "nothing to undo")
+        what = {"nameplate": "nameplate value", "complaint": "complaint", "answer": "answer",
+                "reading": "reading", "unsure": "unsure answer", "skip": "skip",
+                "repair": "repair", "note": "note", "mode": "mode change",
+                "identity": "identity"}.get(event.kind, event.kind)
+        detail = event.data.get("check") or event.data.get("repair") or event.data.get(
+            "param") or event.data.get("complaint") or event.data.get("text") or ""
+        self.say(f"  undone: {what} {detail}".rstrip(), style="yellow")
+        if event.kind == "complaint" and not self.session.evidence.complaints:
+            self._more_complaints_done = False
+        raise _Restart
+
+    def nameplate(self, arg: str) -> None:
+        """Show the nameplate, or set ``PARAM VALUE`` (checked like the first time)."""
+        s = self.session
+        if not arg:
+            from rich.table import Table
+
+            table = Table(show_header=False, box=None, pad_edge=False, title="Nameplate",
+                          title_justify="left", title_style="bold")
+            table.add_column("parameter", no_wrap=True)
+            table.add_column("value", overflow="fold")
+            for pid, p in self.model.parameters.items():
+                value = s.evidence.nameplate.get(pid)
+                shown = unit_text(value) if value is not None else (
+                    f"{unit_text(str(p.default))} (default)" if p.default else "not set")
+                table.add_row(pid, shown)
+            self.console.print(table)
+            return
+        pid, _, text = arg.partition(" ")
+        if not text.strip():
+            raise InputError("nameplate", "type: nameplate PARAM VALUE")
+        pid = self._pick(pid, [(p.id, p.prompt) for p in self.model.parameters.values()],
+                         "parameter")
+        value = s.set_nameplate(pid, text.strip())
+        self.say(f"  {pid} = {unit_text(value)}", style="dim")
+        if self._current is not None:  # show the card again: it may depend on the value
+            self._forced = self._turn_forced
+            raise _Restart
+
+    def add_note(self, text: str) -> None:
+        self.session.note(text)
+        self.say("  noted.", style="dim")
+
+    def calc(self, arg: str) -> None:
+        from diagnose.shell.calc import run_calc
+
+        self.console.print(run_calc(arg))
+
+    def set_mode(self, mode: str) -> None:
+        s = self.session
+        if mode not in ("site", "phone"):
+            raise InputError("mode", f"expected phone or site, got {mode!r}")
+        if mode == s.mode:
+            self.say(f"  already in {mode} mode.", style="dim")
+            return
+        s.set_mode(mode)
+        self.say(f"  now in {mode} mode.", style="bold")
+        raise _Restart
+
+    def save(self) -> None:
+        sid = self.session.session_id
+        if self.journal_path:
+            self.say(f"  Saved: every answer is in the journal as it is given. Resume with: "
+                     f"diagnose resume {sid}")
+        else:
+            self.say("  No journal in use: nothing can be saved.")
+
+    def leave(self) -> None:
+        raise Leave
+
+
+_FALLBACK_NOTICE = ("This tool is an aid. It does not replace the judgement of a qualified "
+                    "person. Isolate and lock out power before hands-on work, and follow local "
+                    "codes and licensed practice.")
+
+
+def answer_matches(text: str, outcomes: Sequence[Choice]) -> list[str]:
+    """The outcomes ``text`` names: its id or its wording in full, else a unique start of an id.
+
+    Stricter than completion: an answer changes the ranking, so "no" must not
+    be taken for "none of these".
+
+    >>> answer_matches("no click", [("click", "a clear click"), ("silent", "no click")])
+    ['silent']
+    >>> answer_matches("sil", [("click", "a clear click"), ("silent", "no click")])
+    ['silent']
+    >>> answer_matches("no", [("brake_fault", "a brake fault"), ("other", "none")])
+    []
+    """
+    def squash(t: str) -> str:
+        return " ".join(t.lower().replace("_", " ").replace("-", " ").split())
+
+    key = squash(text)
+    exact = [o for o, wording in outcomes if key in (squash(o), squash(wording))]
+    if exact:
+        return exact
+    if len(key) < 2:
+        return []
+    return [o for o, _ in outcomes if squash(o).startswith(key)]
+
+
+def _many(chk: Check) -> bool:
+    """Whether the check's measurement takes several readings (an air gap at three points)."""
+    from diagnose.physics.registry import EVALUATORS
+
+    m = chk.measurement
+    spec = EVALUATORS.get(m.evaluator) if m is not None else None
+    if m is None or spec is None:
+        return False
+    inp = spec.input(m.reading or spec.reading or "")
+    return bool(inp is not None and inp.many)
+
+
+def unit_text(text: str) -> str:
+    """A unit (or a value with its unit) as people write it.
+
+    >>> unit_text("0.5 mm**2"), unit_text("10 N*m"), unit_text("20 degC")
+    ('0.5 mm²', '10 N·m', '20 °C')
+    """
+    return (text.replace("**2", "²").replace("**3", "³").replace("*", "·")
+            .replace("degC", "°C").replace("degF", "°F"))
+
+
+def _has_words(typed: str, text: str) -> bool:
+    """Whether every word typed is a whole word of ``text`` (case-insensitive).
+
+    >>> _has_words("release", "Brake will not release"), _has_words("release", "releases late")
+    (True, False)
+    """
+    words = set(re.findall(r"\w+", text.lower()))
+    return all(w in words for w in re.findall(r"\w+", typed.lower()))
+
+
+def _width() -> int:
+    """The terminal's width in columns (80 when unknown)."""
+    import shutil
+
+    return shutil.get_terminal_size((80, 24)).columns
+
+
+def _sentence(text: str) -> str:
+    """ "nothing more to learn" -> "Nothing more to learn." ("" stays "")."""
+    text = text.strip()
+    if not text:
+        return ""
+    return text[0].upper() + text[1:] + ("" if text.endswith(".") else ".")
+
+
+def _message(exc: InputError) -> str:
+    return f"{exc.field}: {exc.message}" if exc.field else exc.message
+
+
+# --- entry points ---------------------------------------------------------------------------
+
+def _console() -> Any:
+    from rich.console import Console
+
+    return Console(highlight=False)
+
+
+def _reader(console: Any, holder: list[Shell]) -> Any:
+    """A terminal prompt when stdin is a terminal, else lines from stdin."""
+    from diagnose.shell.reader import LineReader, PromptReader, file_history
+
+    if not sys.stdin.isatty():
+        return LineReader(sys.stdin, console)
+    from prompt_toolkit import PromptSession
+    from prompt_toolkit.output import ColorDepth
+
+    depth = ColorDepth.MONOCHROME if os.environ.get("NO_COLOR") else None
+    session: Any = PromptSession(history=file_history(), color_depth=depth)
+    return PromptReader(session, toolbar=lambda: holder[0].toolbar() if holder else "")
+
+
+def _journal(args: argparse.Namespace) -> tuple[Any, str | None]:
+    """The journal as the session's sink (and its path), or (None, None) while there is none."""
+    try:
+        from diagnose.journal.paths import journal_path
+        from diagnose.journal.store import Journal
+    except ModuleNotFoundError:
+        return None, None
+    path = journal_path(getattr(args, "journal", None))
+    return Journal(path), str(path)
+
+
+def _overlay(args: argparse.Namespace, pack_id: str) -> Any:
+    """The learned-priors overlay the pack was loaded with, for the journal's record."""
+    try:
+        from diagnose.commands.kb import _learned
+    except ImportError:
+        return None
+    return _learned(args, pack_id)
+
+
+def main(args: argparse.Namespace, *, console: Any = None, reader: Any = None) -> int:
+    """`diagnose start` and bare `diagnose`: a new session in the shell.
+
+    Raises:
+        InputError: no such pack or a bad mode; KnowledgeError: the pack is broken;
+        JournalError: the journal cannot be written.
+    """
+    from diagnose.commands.kb import load
+    from diagnose.kb.locate import DEFAULT_PACK
+
+    ref = getattr(args, "pack", None) or DEFAULT_PACK
+    mode = getattr(args, "mode", None) or "site"
+    console = console or _console()
+    if console.is_terminal:  # reading and checking a pack takes a moment
+        console.print(f"Loading the pack {ref} ...", style="dim", markup=False)
+    model = load(args, ref)
+    journal, path = _journal(args)
+    try:
+        if journal is not None:
+            from diagnose.journal.recorder import start_session
+
+            session = start_session(journal, model, mode=mode,
+                                    overlay=_overlay(args, model.id))
+        else:
+            from diagnose.session import MemorySink, Session
+
+            session = Session(model, mode=mode, sink=MemorySink())
+        return _run(session, console, reader, path, resumed=False)
+    finally:
+        if journal is not None:
+            journal.close()
+
+
+def resume(args: argparse.Namespace, session_id: str, *, console: Any = None,
+           reader: Any = None) -> int:
+    """Continue session ``session_id`` from the journal in the shell (for `diagnose resume ID`).
+
+    The pack is loaded by the id the session recorded, or from ``args.pack`` when
+    given (``args.packs`` and the learned overlay apply as for `start`); the events
+    are replayed and new ones are appended to the same session.
+
+    Raises:
+        JournalError: no journal, no such session, or the session is closed;
+        InputError: the session was recorded with another pack.
+    """
+    from diagnose.commands.kb import load
+    from diagnose.journal.recorder import resume_session
+
+    journal, path = _journal(args)
+    if journal is None:
+        raise JournalError("there is no journal store in this installation")
+    console = console or _console()
+    try:
+        info = journal.session(session_id)
+        # The pack by the id the session recorded, or the folder the caller names (a pack
+        # given by folder at the start is not on the search path); replay checks the id.
+        model = load(args, getattr(args, "pack", None) or info.pack_id)
+        session = resume_session(journal, session_id, model)
+        return _run(session, console, reader, path, resumed=True)
+    finally:
+        journal.close()
+
+
+def _run(session: Session, console: Any, reader: Any, path: str | None, *,
+         resumed: bool) -> int:
+    holder: list[Shell] = []
+    shell = Shell(session, console, reader or _reader(console, holder), journal_path=path,
+                  resumed=resumed)
+    holder.append(shell)
+    return shell.run()

@@ -1,0 +1,77 @@
+"""`calc` inside the shell: the physics calculators of `diagnose calc`, with the same options.
+
+``calc coil --rated-voltage 24V --rated-power 20W --ohms 3.2`` gives the
+verdict with its figures. The options are those of `diagnose calc NAME`
+(generated from the evaluator registry), so the two never disagree.
+"""
+
+from __future__ import annotations
+
+import argparse
+import shlex
+from typing import Any, NoReturn
+
+from diagnose.errors import InputError
+
+
+class _Refused(argparse.ArgumentParser):
+    """An ArgumentParser that raises InputError instead of printing and exiting."""
+
+    def error(self, message: str) -> NoReturn:  # type: ignore[override]
+        raise InputError("calc", message)
+
+    def exit(self, status: int = 0, message: str | None = None) -> NoReturn:  # type: ignore[override]
+        raise InputError("calc", message or "see: calc NAME --help")
+
+
+def _parsers() -> tuple[argparse.ArgumentParser, dict[str, argparse.ArgumentParser]]:
+    from diagnose.commands import calc as calc_command
+
+    root = _Refused(prog="", add_help=False)
+    sub = root.add_subparsers(dest="group", parser_class=_Refused)
+    calc_command.register(sub)
+    calc_parser = sub.choices["calc"]
+    names: dict[str, argparse.ArgumentParser] = {}
+    for action in calc_parser._actions:  # the evaluators' sub-parsers, for their help text
+        if isinstance(action, argparse._SubParsersAction):
+            names = dict(action.choices)
+    return root, names
+
+
+def run_calc(line: str) -> Any:
+    """A renderable: the verdict of ``line`` (``NAME --input VALUE ...``) or the help asked for.
+
+    Raises:
+        InputError: unknown calculator, bad options, a value the physics refuses.
+    """
+    from rich.text import Text
+
+    from diagnose.physics.registry import EVALUATORS
+
+    try:
+        tokens = shlex.split(line)
+    except ValueError as exc:
+        raise InputError("calc", str(exc)) from None
+    if not tokens:
+        listing = "\n".join(f"  {s.name:<12} {s.title}" for s in EVALUATORS.values())
+        return Text("calc NAME --INPUT VALUE ...   (calc NAME alone lists its inputs)\n"
+                    + listing)
+    root, names = _parsers()
+    name = tokens[0]
+    if name not in EVALUATORS:
+        raise InputError("calc", f"no calculator {name!r}; known: {', '.join(EVALUATORS)}")
+    if len(tokens) == 1 or any(t in ("-h", "--help", "help") for t in tokens[1:]):
+        return Text(names[name].format_help().replace("usage:  calc", "usage: calc"))
+    args = root.parse_args(["calc", *tokens])
+    args.calc_json = False
+    # `diagnose calc` prints the verdict itself; keep its output and show it here, so that
+    # the shell and the command line compute and show a calculation the same way.
+    from contextlib import redirect_stdout
+    from io import StringIO
+
+    from diagnose.commands.calc import run
+
+    buffer = StringIO()
+    with redirect_stdout(buffer):
+        run(args)
+    return Text(buffer.getvalue().rstrip("\n"))

@@ -1,0 +1,362 @@
+"""The journal store: sessions and events, schema versions, damaged and read-only files."""
+
+from __future__ import annotations
+
+import ctypes
+import hashlib
+import json
+import os
+import sqlite3
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from diagnose.cli import main
+from diagnose.errors import JournalError
+from diagnose.journal import store as store_mod
+from diagnose.journal.paths import journal_path, overlay_path
+from diagnose.journal.store import APPLICATION_ID, SCHEMA_VERSION, Journal
+
+FIXTURES = Path(__file__).parent / "fixtures"
+MINI = FIXTURES / "mini"
+
+
+def mini_model(learned=None):
+    from diagnose.kb.loader import load_model
+
+    return load_model(str(MINI), learned=learned)
+
+
+def minute_clock(start="2025-01-14T09:00:00+00:00", step=5):
+    """Event times ``step`` minutes apart, from ``start``: reports with known minutes."""
+    from datetime import datetime, timedelta
+
+    t0 = datetime.fromisoformat(start)
+    count = iter(range(10_000))
+    return lambda: (t0 + timedelta(minutes=step * next(count))).isoformat()
+
+
+def play(journal, model, steps, *, complaint="will_not_release", end=True, who=None,
+         notes=(), identity=None, clock=None, nameplate=None):
+    """A diagnosis through the session API into ``journal``: cautions acknowledged as needed."""
+    from diagnose.journal.recorder import start_session
+
+    s = start_session(journal, model, who=who, clock=clock or minute_clock())
+    if identity:
+        s.set_identity(**identity)
+    for param, value in (nameplate or {"rated_voltage": "24 V", "rated_power": "20 W"}).items():
+        s.set_nameplate(param, value)
+    s.add_complaint(complaint)
+    for step in steps:
+        for c in s.pending_cautions(step.get("check") or step.get("repair")):
+            s.acknowledge(c.id)
+        s.apply_step(step)
+    for text in notes:
+        s.note(text)
+    if end:
+        s.end()
+    return s
+
+
+def _event(kind, **data):
+    return {"kind": kind, "data": data, "time": "2025-01-14T09:00:00+01:00"}
+
+
+def _digest(path: Path) -> str:
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+@pytest.fixture()
+def jpath(tmp_path):
+    return tmp_path / "data" / "journal.sqlite3"
+
+
+@pytest.fixture()
+def filled(jpath):
+    """A journal with one open and one closed session."""
+    with Journal(jpath) as j:
+        a = j.new_session("mini-brake", "1.0.0", "h1", "site", who="ana",
+                          started="2025-01-14T09:00:00+01:00")
+        j.write(a, _event("complaint", complaint="will_not_release"))
+        b = j.new_session("mini-brake", "1.0.0", "h1", "phone",
+                          started="2025-01-14T10:00:00+01:00")
+        j.write(b, _event("note", text="called back"))
+        j.write(b, _event("end", result="escalated"))
+    return jpath
+
+
+# --- where it lives ---------------------------------------------------------------------
+
+
+def test_path_order(monkeypatch, tmp_path):
+    monkeypatch.setenv("DIAGNOSE_JOURNAL", str(tmp_path / "env.sqlite3"))
+    assert journal_path(str(tmp_path / "opt.sqlite3")) == tmp_path / "opt.sqlite3"
+    assert journal_path() == tmp_path / "env.sqlite3"
+    monkeypatch.delenv("DIAGNOSE_JOURNAL")
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "xdg"))
+    if sys.platform.startswith("linux"):
+        assert journal_path() == tmp_path / "xdg" / "diagnose" / "journal.sqlite3"
+        monkeypatch.setenv("XDG_DATA_HOME", "relative/not/allowed")
+        assert journal_path() == Path.home() / ".local/share/diagnose/journal.sqlite3"
+    assert overlay_path(tmp_path / "j.sqlite3", "p") == tmp_path / "learned" / "p.json"
+
+
+# --- sessions and events ------------------------------------------------------------------
+
+
+def test_new_file_is_wal_with_version(jpath):
+    with Journal(jpath) as j:
+        assert j.schema_version == SCHEMA_VERSION
+    conn = sqlite3.connect(jpath)
+    assert conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+    assert conn.execute("PRAGMA application_id").fetchone()[0] == APPLICATION_ID
+    conn.close()
+
+
+def test_ids_are_date_and_counter(jpath):
+    with Journal(jpath) as j:
+        ids = [j.new_session("p", "1", "h", "site", started="2025-01-14T09:00:00+01:00")
+               for _ in range(3)]
+        other = j.new_session("p", "1", "h", "site", started="2025-02-01T09:00:00+01:00")
+    assert ids == ["250114-1", "250114-2", "250114-3"]
+    assert other == "250201-1"
+
+
+def test_events_round_trip_in_order(jpath):
+    class Ev:  # any object with kind, data and time will do
+        def __init__(self, kind, data, time):
+            self.kind, self.data, self.time = kind, data, time
+
+    with Journal(jpath) as j:
+        sid = j.new_session("p", "1", "h", "site")
+        sent = [Ev("nameplate", {"values": {"rated_voltage": "24 V"}}, "2025-01-14T09:00:00Z"),
+                Ev("reading", {"check": "coil_resistance", "value": "28.8 ohm",
+                               "verdict": {"verdict": "ok", "figures": {}}},
+                   "2025-01-14T09:01:00Z"),
+                Ev("note", {"text": "ünïcode <b>"}, "2025-01-14T09:02:00Z")]
+        assert [j.write(sid, e) for e in sent] == [1, 2, 3]
+        got = j.load_events(sid)
+    assert [(e.kind, e.data, e.time) for e in got] == [(e.kind, e.data, e.time) for e in sent]
+
+
+def test_sessions_filter_and_close(filled):
+    with Journal(filled, readonly=True) as j:
+        every = j.sessions()
+        assert [s.id for s in every] == ["250114-2", "250114-1"]  # newest first
+        assert [s.id for s in j.sessions("open")] == ["250114-1"]
+        closed = j.sessions("closed")[0]
+        assert (closed.outcome, closed.events, closed.last_kind) == ("escalated", 2, "end")
+        assert j.session("250114-1").who == "ana"
+    with Journal(filled) as j:
+        j.close_session("250114-1", "cured", cause="coil_open")
+        assert j.session("250114-1").cause == "coil_open"
+        j.write("250114-1", _event("note", text="a note after the end is kept"))
+        with pytest.raises(JournalError, match="closed already"):
+            j.write("250114-1", _event("end", result="resolved"))
+        with pytest.raises(JournalError, match="no session 999"):
+            j.load_events("999")
+
+
+def test_readonly_never_creates(tmp_path):
+    with pytest.raises(JournalError, match="no journal"):
+        Journal(tmp_path / "none.sqlite3", readonly=True)
+    assert not (tmp_path / "none.sqlite3").exists()
+
+
+def test_backup_is_a_full_copy(filled, tmp_path):
+    with Journal(filled, readonly=True) as j:
+        j.backup(tmp_path / "copy.sqlite3")
+    with Journal(tmp_path / "copy.sqlite3", readonly=True) as j:
+        assert len(j.sessions()) == 2
+
+
+def test_migration_keeps_a_copy(filled, monkeypatch):
+    extra = ("ALTER TABLE session ADD COLUMN place TEXT",)
+    monkeypatch.setattr(store_mod, "_MIGRATIONS", store_mod._MIGRATIONS + (extra,))
+    monkeypatch.setattr(store_mod, "SCHEMA_VERSION", SCHEMA_VERSION + 1)
+    before = _digest(filled)
+    with Journal(filled) as j:
+        assert j.schema_version == SCHEMA_VERSION + 1
+        assert len(j.sessions()) == 2
+    copy = filled.with_name(f"journal.sqlite3.schema{SCHEMA_VERSION}.bak")
+    with Journal(copy, readonly=True) as j:  # the kept copy is the old journal, readable
+        assert len(j.sessions()) == 2
+    assert _digest(filled) != before
+
+
+# --- files that must be left alone ----------------------------------------------------------
+
+
+def _corrupt_pages(path: Path) -> None:
+    """Overwrite everything after the first page with junk: header fine, body broken."""
+    with Journal(path) as j:  # enough rows for several pages
+        sid = j.new_session("p", "1", "h", "site")
+        for i in range(200):
+            j.write(sid, _event("note", text="x" * 200 + str(i)))
+    conn = sqlite3.connect(path)
+    conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+    conn.close()
+    raw = bytearray(path.read_bytes())
+    for i in range(4096, len(raw), 7):
+        raw[i] = 0xA5
+    path.write_bytes(bytes(raw))
+
+
+def _newer(path: Path) -> None:
+    with Journal(path) as j:
+        j.new_session("p", "1", "h", "site")
+    conn = sqlite3.connect(path)
+    conn.execute(f"PRAGMA user_version = {SCHEMA_VERSION + 5}")
+    conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+    conn.close()
+
+
+def _foreign(path: Path) -> None:
+    conn = sqlite3.connect(path)
+    conn.execute("CREATE TABLE photos (id INTEGER)")
+    conn.commit()
+    conn.close()
+
+
+@pytest.mark.parametrize("spoil, message", [
+    (lambda p: p.write_bytes(b"this is a text file, not a journal\n" * 20), "damaged"),
+    (lambda p: p.write_bytes(b"SQLite format 3\x00" + b"\x00" * 40), "damaged"),
+    (_corrupt_pages, "damaged"),
+    (_newer, "newer diagnose"),
+    (_foreign, "another program"),
+], ids=["text", "truncated", "bad-pages", "newer", "foreign"])
+def test_bad_file_is_refused_and_kept(jpath, spoil, message, capsys):
+    jpath.parent.mkdir(parents=True)
+    spoil(jpath)
+    before = _digest(jpath)
+    with pytest.raises(JournalError, match=message):
+        Journal(jpath)
+    with pytest.raises(JournalError, match=message), Journal(jpath, readonly=True) as j:
+        j.sessions()  # corrupt pages may show only when read
+    for argv in (["sessions"], ["report", "250114-1"], ["stats"]):
+        assert main(["--journal", str(jpath), *argv]) == 1
+        err = capsys.readouterr().err
+        assert err.count("\n") == 1 and message in err and "Traceback" not in err
+    assert _digest(jpath) == before
+
+
+def _read_only_child() -> None:
+    """In the child: no write where the file mode forbids it, even as root."""
+    if os.geteuid() == 0:
+        libc = ctypes.CDLL(None, use_errno=True)
+        for cap in (1, 2, 3):  # CAP_DAC_OVERRIDE, CAP_DAC_READ_SEARCH, CAP_FOWNER
+            if libc.prctl(24, cap, 0, 0, 0) != 0:  # PR_CAPBSET_DROP
+                os._exit(77)
+
+
+_WRITER = """
+import sys
+from diagnose.errors import JournalError
+from diagnose.journal.store import Journal
+try:
+    with Journal(sys.argv[1]) as j:
+        j.new_session("p", "1", "h", "site")
+except JournalError as exc:
+    print(exc)
+    sys.exit(1)
+"""
+
+
+def _run_restricted(code: str, *args: str) -> subprocess.CompletedProcess[str]:
+    return subprocess.run([sys.executable, "-c", code, *args], capture_output=True, text=True,
+                          preexec_fn=_read_only_child, timeout=30, check=False)
+
+
+@pytest.mark.skipif(not hasattr(os, "geteuid"), reason="POSIX file modes")
+def test_read_only_location(filled, tmp_path):
+    folder = filled.parent
+    # Make a -wal-free file first so that only the main file is left.
+    conn = sqlite3.connect(filled)
+    conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+    conn.close()
+    before = _digest(filled)
+    os.chmod(filled, 0o444)
+    os.chmod(folder, 0o555)
+    try:
+        res = _run_restricted(_WRITER, str(filled))
+        if res.returncode == 77:
+            pytest.skip("cannot drop the root override here")
+        assert res.returncode == 1, res.stderr
+        assert "read-only" in res.stdout and "--journal" in res.stdout
+        fresh = _run_restricted(_WRITER, str(folder / "sub" / "new.sqlite3"))
+        assert fresh.returncode == 1 and "cannot create the folder" in fresh.stdout
+        # Reading still works from a read-only place.
+        reader = _run_restricted(
+            "import sys; from diagnose.journal.store import Journal;"
+            "print(len(Journal(sys.argv[1], readonly=True).sessions()))", str(filled))
+        assert reader.stdout.strip() == "2", reader.stderr
+    finally:
+        os.chmod(folder, 0o755)
+        os.chmod(filled, 0o644)
+    assert _digest(filled) == before
+
+
+# --- two writers ------------------------------------------------------------------------------
+
+_BUSY = """
+import sys
+from diagnose.journal.store import Journal
+path, who, n = sys.argv[1], sys.argv[2], int(sys.argv[3])
+with Journal(path) as j:
+    sid = j.new_session("p", "1", "h", "site", who=who)
+    for i in range(n):
+        j.write(sid, {"kind": "note", "data": {"text": f"{who} {i}"}, "time": "2025-01-14T09:00:00Z"})
+print(sid)
+"""
+
+
+def test_two_writers_lose_nothing(jpath):
+    n = 150
+    procs = [subprocess.Popen([sys.executable, "-c", _BUSY, str(jpath), who, str(n)],
+                              stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+             for who in ("ana", "ben")]
+    outs = [p.communicate(timeout=60) for p in procs]
+    assert [p.returncode for p in procs] == [0, 0], outs
+    ids = {o[0].strip() for o in outs}
+    assert len(ids) == 2  # no id handed out twice
+    with Journal(jpath, readonly=True) as j:
+        for s in j.sessions():
+            texts = [e.data["text"] for e in j.load_events(s.id)]
+            assert texts == [f"{s.who} {i}" for i in range(n)]
+
+
+def test_events_are_json_text(jpath):
+    with Journal(jpath) as j:
+        sid = j.new_session("p", "1", "h", "site")
+        j.write(sid, _event("reading", check="c", figures={"ohms": 28.8}, done={"a"}))
+    conn = sqlite3.connect(jpath)
+    data = conn.execute("SELECT data FROM event").fetchone()[0]
+    conn.close()
+    assert json.loads(data) == {"check": "c", "figures": {"ohms": 28.8}, "done": ["a"]}
+
+
+# --- the commands ------------------------------------------------------------------------------
+
+
+def test_cli_sessions_resume_backup(filled, tmp_path, capsys):
+    base = ["--journal", str(filled)]
+    assert main([*base, "sessions", "--json"]) == 0
+    assert [s["id"] for s in json.loads(capsys.readouterr().out)] == ["250114-2", "250114-1"]
+    assert main([*base, "sessions", "--open", "--json"]) == 0
+    assert [s["id"] for s in json.loads(capsys.readouterr().out)] == ["250114-1"]
+    assert main([*base, "sessions", "--closed"]) == 0
+    out = capsys.readouterr().out
+    assert "250114-2" in out and "escalated" in out and "250114-1" not in out
+    assert main([*base, "resume", "250114-2"]) == 1
+    assert "closed" in capsys.readouterr().err
+    assert main([*base, "resume", "nope"]) == 1
+    assert "no session nope" in capsys.readouterr().err
+    assert main([*base, "backup", str(tmp_path / "copy.sqlite3")]) == 0
+    with Journal(tmp_path / "copy.sqlite3", readonly=True) as j:
+        assert len(j.sessions()) == 2
+    empty = ["--journal", str(tmp_path / "none.sqlite3")]
+    assert main([*empty, "sessions"]) == 0
+    assert "no sessions" in capsys.readouterr().out
+    assert not (tmp_path / "none.sqlite3").exists()

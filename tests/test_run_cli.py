@@ -1,0 +1,101 @@
+"""`diagnose run PACK --answers FILE`: a scripted session, as text or JSON."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+from diagnose.cli import main
+
+ROOT = Path(__file__).parent.parent
+MINI = str(ROOT / "tests" / "fixtures" / "mini")
+SPRING = ROOT / "knowledge" / "spring-applied-brake"
+
+ANSWERS = """\
+nameplate: {rated_voltage: 24 V, rated_power: 20 W}
+complaints: [will_not_release]
+steps:
+  - {check: listen_click, answer: silent}
+  - {check: fuse_state, answer: unsure}
+  - {check: coil_resistance, answer: OL}
+  - {repair: replace_coil, cured: true}
+"""
+
+
+def run(capsys, *argv):
+    code = main(list(argv))
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+@pytest.fixture
+def answers(tmp_path):
+    path = tmp_path / "answers.yaml"
+    path.write_text(ANSWERS)
+    return str(path)
+
+
+def test_json_has_ranking_next_and_steps(capsys, answers):
+    code, out, _ = run(capsys, "run", MINI, "--answers", answers, "--json")
+    assert code == 0
+    data = json.loads(out)
+    ranking = data["ranking"]
+    assert ranking[0] == {"cause": "coil_open", "p": pytest.approx(1.0, abs=1e-6)}
+    assert {r["cause"] for r in ranking} >= {"unknown", "fuse_blown"}
+    assert [r["p"] for r in ranking] == sorted((r["p"] for r in ranking), reverse=True)
+    assert data["next"]["action"] == "done"
+    assert len(data["steps"]) == 4
+    assert data["steps"][2]["finding"]["outcome"] == "open"
+    assert data["steps"][1]["finding"]["outcome"] is None  # unsure
+    assert data["steps"][2]["next"]["action"] == "repair"
+
+
+def test_text_output_fits_80_columns(capsys, answers):
+    code, out, _ = run(capsys, "run", MINI, "--answers", answers)
+    assert code == 0
+    assert "step 3: coil_resistance: OL" in out and "Next:" in out
+    assert all(len(line) <= 80 for line in out.splitlines())
+
+
+def test_json_answers_file_and_phone_mode(capsys, tmp_path):
+    path = tmp_path / "answers.json"
+    path.write_text(json.dumps({"complaints": ["will_not_release"],
+                                "steps": [{"check": "listen_click", "answer": "silent"}]}))
+    code, out, _ = run(capsys, "run", MINI, "--answers", str(path), "--json", "--mode", "phone",
+                       "--max-faults", "2")
+    data = json.loads(out)
+    assert code == 0 and data["mode"] == "phone" and data["max_faults"] == 2
+    assert data["next"]["action"] in ("visit", "check") and "hypotheses" in data
+
+
+@pytest.mark.parametrize("text,needle", [
+    ("steps:\n  - {check: listen_click, answer: loud}\n", "step 1"),
+    ("steps:\n  - {check: coil_resistance, answer: 12 kg}\n", "step 1"),
+    ("complaints: [smoke]\n", "smoke"),
+    ("stepz: []\n", "stepz"),
+    ("steps: [\n", "answers"),
+])
+def test_bad_answers_are_one_line_and_exit_2(capsys, tmp_path, text, needle):
+    path = tmp_path / "bad.yaml"
+    path.write_text(text)
+    code, _, err = run(capsys, "run", MINI, "--answers", str(path))
+    assert code == 2 and needle in err and len(err.strip().splitlines()) == 1
+    assert "Traceback" not in err
+
+
+def test_missing_answers_file(capsys, tmp_path):
+    code, _, err = run(capsys, "run", MINI, "--answers", str(tmp_path / "none.yaml"))
+    assert code == 2 and "cannot read" in err
+
+
+@pytest.mark.skipif(not SPRING.is_dir(), reason="the spring-applied-brake pack is not there")
+@pytest.mark.parametrize("example", sorted((ROOT / "examples").glob("*.yaml")),
+                         ids=lambda p: p.stem)
+def test_shipped_examples_run_on_the_spring_applied_brake_pack(capsys, example):
+    code, out, err = run(capsys, "run", str(SPRING), "--answers", str(example), "--json")
+    assert code == 0, err
+    data = json.loads(out)
+    assert data["ranking"] and data["next"]["action"] in ("done", "visit", "repair", "check")
+    assert len(data["steps"]) >= 3

@@ -1,0 +1,289 @@
+"""The session API: events, the fold, undo, replay, validation without state change."""
+
+from __future__ import annotations
+
+import io
+from pathlib import Path
+
+import pytest
+
+from diagnose.errors import InputError
+from diagnose.kb.model import UNKNOWN_CAUSE
+from diagnose.reasoning.synthetic import tiny_model
+from diagnose.session import (
+    UNDOABLE,
+    Event,
+    MemorySink,
+    NullSink,
+    Session,
+    fold,
+    normalise_parameter,
+)
+
+FIXTURES = Path(__file__).parent / "fixtures"
+
+
+def fixed_clock():
+    return "2026-01-01T00:00:00+00:00"
+
+
+@pytest.fixture
+def mini():
+    from diagnose.kb.loader import load_model
+
+    return load_model(str(FIXTURES / "mini"))
+
+
+def test_a_new_session_records_the_notice_first():
+    sink = MemorySink()
+    s = Session(tiny_model(), sink=sink, session_id="s1", clock=fixed_clock)
+    assert [e.kind for e in sink.events["s1"]] == ["notice"]
+    assert sink.events["s1"][0].data["pack"] == "tiny-brake"
+    assert s.events[0].time == "2026-01-01T00:00:00+00:00"
+
+
+def test_each_method_writes_one_event_before_it_returns():
+    sink = MemorySink()
+    s = Session(tiny_model(), sink=sink, session_id="s1", clock=fixed_clock)
+    s.add_complaint("will_not_release")
+    s.answer("listen_click", "silent")
+    s.unsure("coil_ohms")
+    s.skip("continuity")
+    s.acknowledge("lockout")
+    s.repair("replace_fuse", False)
+    s.note("customer says it worked yesterday")
+    s.set_mode("phone")
+    s.set_identity(serial="A123")
+    kinds = [e.kind for e in sink.events["s1"]]
+    assert kinds == ["notice", "complaint", "answer", "unsure", "skip", "ack", "repair", "note",
+                     "mode", "identity"]
+    assert list(s.events) == sink.events["s1"]
+
+
+def test_state_is_a_pure_fold_of_the_events():
+    s = Session(tiny_model(), clock=fixed_clock)
+    s.add_complaint("will_not_release")
+    s.answer("fuse", "blown")
+    s.skip("gap")
+    s.set_nameplate("gravity_load", "no")
+    assert fold(s.events) == s.evidence
+    ev = s.evidence
+    assert ev.complaints == ("will_not_release",) and ev.findings == {"fuse": {"blown": 1.0}}
+    assert ev.skipped == {"gap"} and ev.nameplate == {"gravity_load": "no"}
+
+
+def test_bad_input_raises_and_changes_nothing():
+    sink = MemorySink()
+    s = Session(tiny_model(), sink=sink, session_id="s")
+    before = (s.events, s.evidence)
+    for call in (lambda: s.answer("fuse", "melted"), lambda: s.answer("nope", "x"),
+                 lambda: s.add_complaint("smoke"), lambda: s.repair("nope", True),
+                 lambda: s.set_nameplate("gravity_load", "maybe"),
+                 lambda: s.set_nameplate("nope", "1"), lambda: s.acknowledge("nope"),
+                 lambda: s.set_mode("moon"), lambda: s.note("  ")):
+        with pytest.raises(InputError):
+            call()
+    assert (s.events, s.evidence) == before and len(sink.events["s"]) == 1
+
+
+def test_a_failing_sink_leaves_the_state_unchanged():
+    class Broken:
+        fail = False
+
+        def write(self, session_id, event):
+            if self.fail:
+                raise OSError("disk full")
+
+    sink = Broken()
+    s = Session(tiny_model(), sink=sink)
+    sink.fail = True
+    with pytest.raises(OSError):
+        s.add_complaint("will_not_release")
+    assert s.evidence.complaints == () and len(s.events) == 1
+
+
+def test_undo_drops_the_last_undoable_event_and_refolds():
+    sink = MemorySink()
+    s = Session(tiny_model(), sink=sink, session_id="s")
+    s.add_complaint("will_not_release")
+    s.answer("fuse", "blown")
+    s.acknowledge("lockout")  # a safety record: not undone
+    undone = s.undo()
+    assert undone is not None and undone.kind == "answer"
+    assert s.evidence.findings == {} and "lockout" in s.evidence.acknowledged
+    assert s.undo().kind == "complaint"
+    assert s.undo() is None  # only the notice and the acknowledgement are left
+    assert [e.kind for e in sink.events["s"]][-2:] == ["undo", "undo"]
+    assert {"nameplate", "answer", "reading", "repair"} <= UNDOABLE
+
+
+def test_replay_rebuilds_the_same_state_and_keeps_recording():
+    sink = MemorySink()
+    s = Session(tiny_model(), max_faults=2, mode="phone", sink=sink, session_id="s")
+    s.add_complaint("will_not_release")
+    s.answer("listen_click", "silent")
+    s.undo()
+    s.answer("listen_click", "click")
+    dicts = [e.to_dict() for e in s.events]
+    again = Session.replay(tiny_model(), dicts, sink=sink, session_id="s")
+    assert again.evidence == s.evidence and again.max_faults == 2 and again.mode == "phone"
+    assert again.ranking().to_list() == s.ranking().to_list()
+    again.note("resumed")
+    assert sink.events["s"][-1].kind == "note" and len(sink.events["s"]) == len(dicts) + 1
+
+
+def test_replay_refuses_events_of_another_pack():
+    events = [Event("notice", {"pack": "other"}, "")]
+    with pytest.raises(InputError):
+        Session.replay(tiny_model(), events)
+
+
+def test_end_records_the_result_and_closes_the_session():
+    s = Session(tiny_model())
+    s.add_complaint("will_not_release")
+    s.answer("fuse", "blown")
+    s.repair("replace_fuse", True)
+    end = s.end()
+    assert end.data["result"] == "resolved" and end.data["repair"] == "replace_fuse"
+    assert s.ended and s.next_action().kind == "done"
+    with pytest.raises(InputError):
+        s.answer("gap", "ok")
+    s.note("a note after the end is fine")
+    assert s.undo().kind == "note"
+    assert s.undo() is None  # nothing before the end changes any more
+
+
+def test_phone_session_ends_with_a_visit_and_the_parts():
+    s = Session(tiny_model(), mode="phone")
+    s.add_complaint("will_not_release")
+    s.answer("listen_click", "silent")
+    assert s.next_action().kind == "visit"
+    end = s.end()
+    assert end.data["result"] == "visit" and end.data["parts"]
+
+
+def test_nameplate_values_are_checked_for_unit_range_choice_and_unknown(mini):
+    s = Session(mini)
+    assert s.set_nameplate("rated_voltage", "24V") == "24 V"
+    assert s.set_nameplate("rated_voltage", "0.024 kV") == "24 V"
+    assert s.set_nameplate("rated_power", "unknown") == "unknown"
+    with pytest.raises(InputError, match="outside"):
+        s.set_nameplate("rated_voltage", "400 V")  # max 250 V in the fixture pack
+    with pytest.raises(InputError):
+        s.set_nameplate("rated_voltage", "24 mm")
+    with pytest.raises(InputError, match="unknown"):
+        s.set_nameplate("rated_voltage", "unknown")
+    p = tiny_model().parameters["gravity_load"]
+    assert normalise_parameter(p, "YES") == "yes" and normalise_parameter(p, True) == "yes"
+
+
+def test_a_reading_is_evaluated_at_once_with_nameplate_inputs(mini):
+    s = Session(mini)
+    s.set_nameplate("rated_voltage", "24 V")
+    s.set_nameplate("rated_power", "20 W")
+    s.add_complaint("will_not_release")
+    f = s.answer("coil_resistance", "OL")
+    assert f.outcome == "open" and f.verdict is not None and f.verdict.verdict == "open"
+    ev = s.events[-1]
+    assert ev.kind == "reading" and ev.data["verdict"] == "open" and ev.data["text"] == "OL"
+    # R20 = V^2 / P = 24^2 / 20 = 28.8 ohm (Ohm's law, DOMAIN.md "The physics")
+    ok = s.answer("coil_resistance", "28.8")
+    assert ok.outcome == "ok"
+    assert s.ranking().top.cause != "coil_open"
+
+
+def test_a_bad_reading_changes_nothing(mini):
+    s = Session(mini)
+    n = len(s.events)
+    with pytest.raises(InputError):
+        s.answer("coil_resistance", "12 kg")
+    with pytest.raises(InputError):
+        s.answer("coil_resistance", ["1 ohm", "2 ohm"])
+    assert len(s.events) == n
+
+
+def test_soft_reading_near_a_band_edge_weighs_both_outcomes(mini):
+    from dataclasses import replace
+
+    chk = mini.checks["coil_resistance"]
+    soft = replace(chk, measurement=replace(chk.measurement, accuracy=0.05))
+    model = replace(mini, checks={**mini.checks, "coil_resistance": soft})
+    s = Session(model)
+    s.set_nameplate("rated_voltage", "24 V")
+    s.set_nameplate("rated_power", "20 W")
+    # 28.8 ohm expected, 10 % tolerance: 26.0 ohm is ~9.7 % low, within 5 % of the edge
+    f = s.answer("coil_resistance", "26.0")
+    assert f.soft and set(f.weights) == {"ok", "low"}
+    assert sum(f.weights.values()) == pytest.approx(1.0)
+    assert s.evidence.findings["coil_resistance"] == f.weights
+
+
+def test_missing_nameplate_input_is_a_clear_error(mini):
+    from dataclasses import replace
+
+    chk = mini.checks["coil_resistance"]
+    m = replace(chk.measurement, inputs={"rated_voltage": "$rated_voltage"})
+    model = replace(mini, checks={**mini.checks, "coil_resistance": replace(chk, measurement=m)},
+                    parameters={**mini.parameters, "rated_voltage": replace(
+                        mini.parameters["rated_voltage"], default=None, unknown_allowed=True)})
+    s = Session(model)
+    s.set_nameplate("rated_voltage", "unknown")
+    with pytest.raises(InputError, match="set it first"):
+        s.answer("coil_resistance", "20")
+
+
+def test_steps_in_the_test_case_format():
+    s = Session(tiny_model())
+    s.add_complaint("will_not_release")
+    s.apply_step({"check": "listen_click", "answer": "silent"})
+    s.apply_step({"check": "gap", "skip": True})
+    s.apply_step({"check": "coil_ohms", "answer": "unsure"})
+    s.apply_step({"repair": "replace_fuse", "cured": False})
+    assert [e.kind for e in s.events[2:]] == ["answer", "skip", "unsure", "repair"]
+    for bad in ({"check": "fuse"}, {"repair": "replace_fuse"}, {"bogus": 1}, "text"):
+        with pytest.raises(InputError):
+            s.apply_step(bad)
+
+
+def test_evidence_that_fits_nothing_puts_unknown_on_top_or_escalates():
+    from dataclasses import replace
+
+    base = tiny_model()
+    model = replace(base, checks={k: replace(c, unknown=c.normal) for k, c in base.checks.items()})
+    s = Session(model)
+    s.add_complaint("will_not_release")
+    while s.next_action().kind == "check":  # every answer the normal one
+        chk = model.checks[s.next_action().id]
+        s.answer(chk.id, max(chk.normal, key=chk.normal.get))
+    assert s.ranking().top.cause == UNKNOWN_CAUSE
+    assert s.next_action().kind == "escalate"
+
+
+def test_reasoning_views_render_in_80_columns():
+    from rich.console import Console
+
+    s = Session(tiny_model())
+    s.add_complaint("will_not_release")
+    s.answer("listen_click", "silent")
+    out = io.StringIO()
+    con = Console(file=out, width=80, color_system=None)
+    for thing in (s.ranking(), s.next_action(), s.checks_table(), s.explain_ranking(),
+                  s.explain_check("fuse")):
+        con.print(thing)
+    text = out.getvalue()
+    assert all(len(line) <= 80 for line in text.splitlines())
+    assert "fuse" in text and "bits" in text
+
+
+def test_pending_cautions_lists_unacknowledged_dangers():
+    s = Session(tiny_model())
+    assert [c.id for c in s.pending_cautions("fuse")] == ["lockout"]
+    s.acknowledge("lockout")
+    assert s.pending_cautions("fuse") == ()
+
+
+def test_null_sink_and_defaults():
+    s = Session(tiny_model())
+    assert isinstance(s.sink, NullSink) and len(s.session_id) == 32
+    with pytest.raises(InputError):
+        Session(tiny_model(), max_faults=3)
