@@ -12,15 +12,18 @@ one, and :meth:`Session.replay` rebuilds a session from a journal.
 Event kinds and their ``data`` keys:
 
 =========== ===================================================================
-notice      pack, version, content_hash, packs, text, mode, max_faults (first)
+notice      pack, version, content_hash, packs, text, mode, max_faults, path
+            (first; ``path``: the pack's folder, absolute; not in older journals)
 identity    free keys about the unit and the call (serial, customer, ...)
 nameplate   param, text (as typed), value (normalised: "24 V", "yes", "unknown")
 complaint   complaint
 answer      check, outcome
 reading     check, text (str or list), verdict, weights, summary, figures
 unsure      check
-skip        check
-ack         caution
+skip        check (the check cannot be done now)
+skip_repair repair (the repair cannot be done now: no part on the van, no access)
+ack         caution, item (the check or repair whose card it was acknowledged
+            for; not in older journals)
 repair      repair, cured
 note        text
 mode        mode ("site" or "phone")
@@ -29,13 +32,19 @@ undo        index (of the event undone), kind (of that event)
 =========== ===================================================================
 
 ``notice``, ``ack``, ``end`` and ``undo`` cannot be undone; a safety
-acknowledgement stays on the record. No terminal I/O here.
+acknowledgement stays on the record. A DANGER or WARNING caution is
+acknowledged per card: an ``ack`` covers the card its ``item`` names and no
+other. An ``ack`` without ``item`` (older journals) is kept on the record but
+covers no card, so a resumed session asks for it again before the next card
+that carries the caution (the safe reading). Nothing is recorded after the
+``end``. No terminal I/O here.
 """
 
 from __future__ import annotations
 
+import os
 import uuid
-from collections.abc import Callable, Iterable, Iterator, Mapping
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from datetime import datetime, timezone
 from typing import Any, Protocol
@@ -62,9 +71,9 @@ from diagnose.reasoning.planner import (
 from diagnose.reasoning.posterior import Posterior, Ranking, posterior
 
 EVENT_KINDS = ("notice", "identity", "nameplate", "complaint", "answer", "reading", "unsure",
-               "skip", "ack", "repair", "note", "mode", "end", "undo")
+               "skip", "skip_repair", "ack", "repair", "note", "mode", "end", "undo")
 UNDOABLE = frozenset({"identity", "nameplate", "complaint", "answer", "reading", "unsure",
-                      "skip", "repair", "note", "mode"})
+                      "skip", "skip_repair", "repair", "note", "mode"})
 END_RESULTS = ("resolved", "visit", "escalated", "abandoned")
 
 
@@ -142,8 +151,11 @@ def apply(evidence: Evidence, event: Event) -> Evidence:
         return evidence.with_unsure(d["check"])
     if k == "skip":
         return evidence.with_skip(d["check"])
+    if k == "skip_repair":
+        return evidence.with_skipped_repair(d["repair"])
     if k == "ack":
-        return replace(evidence, acknowledged=evidence.acknowledged | {d["caution"]})
+        item = d.get("item")
+        return evidence.with_acknowledgement(d["caution"], str(item) if item else None)
     if k == "repair":
         return evidence.with_repair(d["repair"], bool(d["cured"]))
     if k == "note":
@@ -251,7 +263,8 @@ class Session:
             self._record("notice", {
                 "pack": model.id, "version": model.version, "content_hash": model.content_hash,
                 "packs": list(model.packs), "text": model.notice, "mode": mode,
-                "max_faults": max_faults})
+                "max_faults": max_faults,
+                "path": os.path.abspath(model.path) if model.path else ""})
         else:
             self._events = list(_events)
             self._evidence = fold(self._events)
@@ -432,11 +445,36 @@ class Session:
         self._check(check_id)
         return self._record("skip", {"check": check_id})
 
-    def acknowledge(self, caution_id: str) -> Event:
-        """Record that a caution was read and acknowledged (cannot be undone)."""
+    def skip_repair(self, repair_id: str) -> Event:
+        """The repair cannot be done now (no part on the van, no access): not proposed again.
+
+        ``undo`` takes it back; doing the repair after all counts as usual.
+        """
+        self._open()
+        if repair_id not in self.model.repairs:
+            raise InputError("repair", f"unknown repair {repair_id!r}")
+        return self._record("skip_repair", {"repair": repair_id})
+
+    def acknowledge(self, caution_id: str, item_id: str | None = None) -> Event:
+        """Record that a caution was read and acknowledged on the card of ``item_id``.
+
+        An acknowledgement covers the check or repair ``item_id`` only (see
+        :meth:`pending_cautions`); without ``item_id`` it is recorded but covers no
+        card. It cannot be undone.
+
+        Raises:
+            InputError: an unknown caution, or an item that is not a check or
+                repair carrying that caution.
+        """
         if caution_id not in self.model.cautions:
             raise InputError("caution", f"unknown caution {caution_id!r}")
-        return self._record("ack", {"caution": caution_id})
+        data: dict[str, Any] = {"caution": caution_id}
+        if item_id is not None:
+            item = self._item(item_id)
+            if caution_id not in item.cautions:
+                raise InputError("caution", f"{item_id} does not carry the caution {caution_id}")
+            data["item"] = item_id
+        return self._record("ack", data)
 
     def repair(self, repair_id: str, cured: bool) -> Event:
         """Record a repair done and whether it cured the complaint."""
@@ -448,7 +486,13 @@ class Session:
         return self._record("repair", {"repair": repair_id, "cured": cured})
 
     def note(self, text: str) -> Event:
-        """A free-text note for the repair log (allowed after the end too)."""
+        """A free-text note for the repair log (not after the end: the log is closed).
+
+        Raises:
+            InputError: an empty note, or the diagnosis is closed.
+        """
+        if self.ended:
+            raise InputError("note", "the diagnosis is closed; a note can no longer be added")
         if not str(text).strip():
             raise InputError("note", "empty note")
         return self._record("note", {"text": str(text).strip()})
@@ -460,25 +504,36 @@ class Session:
             raise InputError("mode", f"expected site or phone, got {mode!r}")
         return self._record("mode", {"mode": mode})
 
-    def end(self, result: str | None = None, *, text: str = "") -> Event:
+    def end(self, result: str | None = None, *, text: str = "",
+            parts: Sequence[str] = ()) -> Event:
         """Close the diagnosis with ``result`` (default: what the evidence says).
 
         ``result``: "resolved" (a repair cured), "visit" (phone: send a technician
-        with ``parts``), "escalated", or "abandoned".
+        with ``parts``), "escalated", or "abandoned". Given a result, or once a
+        repair cured, the planner is not asked (a cure is closed even when
+        planning fails); without one, the planner's action decides, and a visit
+        takes its parts unless ``parts`` are given.
+
+        Raises:
+            InputError: the diagnosis is closed already, or an unknown result.
         """
         self._open()
-        action = self.next_action()
-        if result is None:
-            result = ("resolved" if self._evidence.cured else
-                      {"visit": "visit", "escalate": "escalated"}.get(action.kind, "abandoned"))
-        if result not in END_RESULTS:
+        if result is not None and result not in END_RESULTS:
             raise InputError("result", f"expected one of {', '.join(END_RESULTS)}, got {result!r}")
+        parts = [str(p) for p in parts]
+        if result is None and self._evidence.cured:
+            result = "resolved"
+        elif result is None:
+            action = self.next_action()
+            result = {"visit": "visit", "escalate": "escalated"}.get(action.kind, "abandoned")
+            if action.kind == "visit" and not parts:
+                parts = list(action.parts)
         top = self.ranking().top
         cured = [r for r, c in self._evidence.repairs if c]
         return self._record("end", {
             "result": result, "cause": top.cause, "p": round(top.p, 6),
             "repair": cured[-1] if cured else None,
-            "parts": list(action.parts) if action.kind == "visit" else [], "text": str(text)})
+            "parts": parts if result == "visit" else [], "text": str(text)})
 
     def undo(self) -> Event | None:
         """Undo the last event that can be undone; returns it (None when there is none)."""
@@ -496,7 +551,8 @@ class Session:
         """Play one scripted step (the format of a pack's test cases and of ``--answers``).
 
         ``{check: id, answer: value}``, ``{check: id, answer: unsure}``,
-        ``{check: id, skip: true}`` or ``{repair: id, cured: bool}``.
+        ``{check: id, skip: true}``, ``{repair: id, cured: bool}`` or
+        ``{repair: id, skip: true}`` (the repair cannot be done now).
         """
         s = step if isinstance(step, Step) else _step(step)
         if s.check is not None:
@@ -506,6 +562,8 @@ class Session:
                 raise InputError(s.check, "a step needs `answer` or `skip: true`")
             return self.answer(s.check, s.answer)
         if s.repair is not None:
+            if s.skip:
+                return self.skip_repair(s.repair)
             return self.repair(s.repair, bool(s.cured))
         raise InputError("step", "a step needs `check` or `repair`")
 
@@ -544,16 +602,25 @@ class Session:
                              settings=self.settings)
 
     def pending_cautions(self, item_id: str) -> tuple[Caution, ...]:
-        """DANGER/WARNING cautions of a check or repair not yet acknowledged."""
-        item: Any = self.model.checks.get(item_id) or self.model.repairs.get(item_id)
-        if item is None:
-            raise InputError("item", f"no check or repair {item_id!r}")
+        """DANGER/WARNING cautions of a check or repair not yet acknowledged for that card.
+
+        Each card asks for its own acknowledgement: one given for another check
+        or repair, or one without an item (older journals), does not count.
+        """
+        item = self._item(item_id)
+        done = self._evidence.acknowledged_for
         out = []
         for cid in item.cautions:
             c = self.model.cautions.get(cid)
-            if c is not None and c.needs_acknowledgement and cid not in self._evidence.acknowledged:
+            if c is not None and c.needs_acknowledgement and (item_id, cid) not in done:
                 out.append(c)
         return tuple(out)
+
+    def _item(self, item_id: str) -> Any:
+        item: Any = self.model.checks.get(item_id) or self.model.repairs.get(item_id)
+        if item is None:
+            raise InputError("item", f"no check or repair {item_id!r}")
+        return item
 
     # --- resume ------------------------------------------------------------------------------
     @classmethod
@@ -624,8 +691,12 @@ def _step(d: Mapping[str, Any]) -> Step:
     extra = set(d) - {"check", "answer", "skip", "repair", "cured"}
     if extra:
         raise InputError("step", f"unknown key {min(extra)!r}")
-    if "repair" in d and not isinstance(d.get("cured"), bool):
-        raise InputError(str(d["repair"]), "a repair step needs `cured: true` or `cured: false`")
+    if "repair" in d and d.get("skip") is True:
+        if "cured" in d:
+            raise InputError(str(d["repair"]), "a skipped repair has no `cured`")
+    elif "repair" in d and not isinstance(d.get("cured"), bool):
+        raise InputError(str(d["repair"]), "a repair step needs `cured: true` or `cured: false` "
+                                           "(or `skip: true`: it cannot be done now)")
     return Step(check=d.get("check"), answer=d.get("answer"), repair=d.get("repair"),
                 cured=d.get("cured"), skip=bool(d.get("skip", False)))
 

@@ -29,13 +29,15 @@ from diagnose.journal.store import Journal
 
 # The checks and the repair are chosen with `do` and `repair`, so that the script does not
 # depend on what the planner proposes.
+# A DANGER caution is acknowledged on each card that carries it: the check's and the repair's.
 LINES = ["24 V", "20 W", "", "", "", "SN-7", "will_not_release", "do coil_resistance", "ack",
          "OL", "do listen_click", "silent", "note lead <b>burnt</b> near the gland",
-         "repair replace_coil", "yes"]
-# After: the nameplate, the complaint, the caution acknowledged, a reading, a note.
-KILL_AFTER = [2, 7, 9, 10, 13]
-# A choice made with `do` is not an event: after a resume it is made again.
-AGAIN = {9: ["do coil_resistance"]}
+         "repair replace_coil", "ack", "yes"]
+# After: the nameplate, the complaint, the caution acknowledged, a reading, a note, the
+# repair card's acknowledgement.
+KILL_AFTER = [2, 7, 9, 10, 13, 15]
+# A choice made with `do` or `repair` is not an event: after a resume it is made again.
+AGAIN = {9: ["do coil_resistance"], 15: ["repair replace_coil"]}
 
 pytestmark = pytest.mark.skipif(not Path("/proc/self/syscall").exists(),
                                 reason="needs Linux /proc to see a process wait for input")
@@ -127,10 +129,12 @@ def reference(tmp_path_factory):
     shell.finish(LINES)
     sid, events = _events(jpath)
     # Every line that makes an event made it (how the shell closes is its own business).
-    assert [k for k, _ in events][:10] == ["notice", "nameplate", "nameplate", "identity",
+    assert [k for k, _ in events][:11] == ["notice", "nameplate", "nameplate", "identity",
                                            "complaint", "ack", "reading", "answer", "note",
-                                           "repair"], shell.screen.decode()
-    assert events[9][1] == {"repair": "replace_coil", "cured": True}
+                                           "ack", "repair"], shell.screen.decode()
+    assert [d.get("item") for k, d in events if k == "ack"] == ["coil_resistance",
+                                                                 "replace_coil"]
+    assert events[10][1] == {"repair": "replace_coil", "cured": True}
     return events, _report(jpath, sid)
 
 

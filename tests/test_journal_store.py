@@ -50,8 +50,9 @@ def play(journal, model, steps, *, complaint="will_not_release", end=True, who=N
         s.set_nameplate(param, value)
     s.add_complaint(complaint)
     for step in steps:
-        for c in s.pending_cautions(step.get("check") or step.get("repair")):
-            s.acknowledge(c.id)
+        item = step.get("check") or step.get("repair")
+        for c in s.pending_cautions(item):
+            s.acknowledge(c.id, item)  # per card, as the shell asks
         s.apply_step(step)
     for text in notes:
         s.note(text)

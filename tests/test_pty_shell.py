@@ -1,10 +1,12 @@
 """End to end: a whole diagnosis typed into the installed shell in a real pseudo-terminal.
 
 The fixture pack ``tests/fixtures/shell-brake`` keeps the ids stable. The
-run: start, nameplate (with one refused value), site, complaint, three
-checks (a coil resistance reading with its unit behind a DANGER
-acknowledgement, two outcomes), a repair that does not cure, `save` and
-`quit`; then `diagnose resume ID` continues it in a new terminal: another check, a
+run: start, the safety notice read while the pack loads (Enter), nameplate
+(with one refused value), site, complaint, three checks (a coil resistance
+reading with its unit behind a DANGER acknowledgement, two outcomes, the
+second DANGER card acknowledged again), a repair that does not cure, `save`
+and `quit`; then `diagnose resume ID` (without ``--packs``: the session
+recorded the pack's folder) continues it in a new terminal: another check, a
 repair that cures, and the end with the cured cause and the repair log.
 """
 
@@ -96,6 +98,8 @@ def test_a_whole_diagnosis_in_a_terminal(tmp_path):
     s = spawn(["-m", "diagnose", "start", str(PACK)], tmp_path)
     s.wait("Safety notice")
     s.wait("lock out power before hands-on work")
+    s.wait("Press Enter once you have read the safety notice")
+    s.type("")
     s.wait("Rated coil voltage on the nameplate")
     s.type("24 kg")
     s.wait("Not accepted: rated_voltage: expected a voltage (for example 24 V), got '24 kg'")
@@ -144,6 +148,8 @@ def test_a_whole_diagnosis_in_a_terminal(tmp_path):
     s.wait("| step 2 |")
     s.type("do fuse_state")
     s.wait("Check: Test the brake fuse for continuity")
+    s.wait("Type ack to confirm you have read the DANGER above")  # again: another card
+    s.type("ack")
     s.wait("Answer (intact/blown, unsure, skip)")
     s.type("intact")
     s.wait("Test the brake fuse for continuity: intact")
@@ -153,7 +159,9 @@ def test_a_whole_diagnosis_in_a_terminal(tmp_path):
     s.type("repair replace_disc")
     s.wait("Repair: Replace the friction disc and set the gap")
     s.wait("Parts: friction disc")
-    s.wait("Is the complaint cured? (yes/no)")
+    s.wait("Type ack to confirm you have read the DANGER above")
+    s.type("ack")
+    s.wait("Is the complaint cured? (yes/no, skip)")
     s.type("no")
     s.wait("not cured; the ranking is updated")
     s.wait("| step 4 |")
@@ -167,7 +175,7 @@ def test_a_whole_diagnosis_in_a_terminal(tmp_path):
     assert s.close() == 0
 
     # `diagnose resume ID` (the journal's command) hands the session back to the shell
-    r = spawn(["-m", "diagnose", "--packs", str(PACK.parent), "resume", sid], tmp_path)
+    r = spawn(["-m", "diagnose", "resume", sid], tmp_path)
     r.wait(f"Resuming session {sid}")
     r.wait("| step 4 |")
     # another check, then the repair that cures
@@ -179,7 +187,9 @@ def test_a_whole_diagnosis_in_a_terminal(tmp_path):
     r.wait("| step 5 |")
     r.type("repair replace_coil")
     r.wait("Repair: Replace the magnet body with its coil")
-    r.wait("Is the complaint cured? (yes/no)")
+    r.wait("Type ack to confirm you have read the DANGER above")
+    r.type("ack")
+    r.wait("Is the complaint cured? (yes/no, skip)")
     r.type("yes")
     r.wait("cured.")
     r.wait("Cured. Cause: Coil with shorted turns")
@@ -191,6 +201,8 @@ def test_a_whole_diagnosis_in_a_terminal(tmp_path):
 
 def test_ctrl_c_clears_and_ctrl_d_asks_before_leaving(tmp_path):
     s = spawn(["-m", "diagnose", "start", str(PACK)], tmp_path)
+    s.wait("Press Enter once you have read the safety notice")
+    s.type("")
     s.wait("Rated coil voltage on the nameplate")
     s.child.send("garbage")
     s.child.sendcontrol("c")
@@ -206,3 +218,20 @@ def test_ctrl_c_clears_and_ctrl_d_asks_before_leaving(tmp_path):
     s.type("yes")
     s.wait("Resume with: diagnose resume")
     assert s.close() == 0
+
+
+def test_ctrl_d_at_the_notice_leaves_before_anything_is_recorded(tmp_path):
+    s = spawn(["-m", "diagnose", "start", str(PACK)], tmp_path)
+    s.wait("Safety notice")
+    s.wait("Press Enter once you have read the safety notice")
+    s.child.sendcontrol("d")
+    s.wait("Left before the diagnosis started: nothing was recorded.")
+    assert s.close() == 0
+    assert not (tmp_path / "journal.sqlite3").exists() or _sessions(tmp_path) == 0
+
+
+def _sessions(tmp_path: Path) -> int:
+    from diagnose.journal.store import Journal
+
+    with Journal(str(tmp_path / "journal.sqlite3"), readonly=True) as j:
+        return len(j.sessions())

@@ -5,6 +5,7 @@ from __future__ import annotations
 import itertools
 import math
 from dataclasses import replace
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -186,6 +187,67 @@ def test_phone_mode_offers_phone_checks_only_and_ends_with_a_visit():
     assert b.kind == "visit" and b.parts  # the parts to bring
     table = {r.id: r.status for r in checks_table(m, after).rows}
     assert table["fuse"] == "site only"
+
+
+#: Words of work on site that a help-desk agent must not read out to a caller.
+SITE_WORDS = ("not yet sure enough to repair", "saves minutes", "repairing now",
+              "likely enough to act", "worth its minutes")
+
+
+def test_phone_reasons_say_what_the_question_is_for():
+    m = tiny_model()
+    ev = replace(WNR, mode="phone")
+    a = next_action(m, ev)
+    assert a.kind == "check" and a.reason.startswith("to find out by phone whether a site visit is needed")
+    assert "site visit" in a.reason and "tells more about" in a.reason
+    assert not any(w in a.reason for w in SITE_WORDS)
+    assert next_action(m, WNR).reason in ("observing first saves minutes",
+                                          "not yet sure enough to repair")  # site unchanged
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_no_phone_action_speaks_of_work_on_site(seed):
+    m = synthetic_model(30, seed=seed)
+    rng = np.random.default_rng(seed)
+    ev = Evidence(complaints=(next(iter(m.complaints)),), mode="phone")
+    for _ in range(12):
+        a = next_action(m, ev)
+        assert not any(w in a.reason for w in SITE_WORDS), a
+        if a.kind != "check":
+            break
+        chk = m.checks[a.id]
+        ev = ev.with_outcome(a.id, chk.outcomes[int(rng.integers(len(chk.outcomes)))])
+    assert a.kind in ("check", "visit", "escalate", "repair")
+
+
+def test_phone_escalation_recommends_a_site_visit():
+    m = tiny_model(unknown_prior=995)
+    a = next_action(m, replace(WNR, mode="phone"))
+    assert a.kind == "escalate" and "site visit" in a.reason
+
+
+def test_a_skipped_repair_is_not_proposed_and_shows_why():
+    m = tiny_model()
+    ev = WNR.with_outcome("listen_click", "silent").with_outcome("fuse", "blown")
+    assert next_action(m, ev).id == "replace_fuse"
+    skipped = ev.with_skipped_repair("replace_fuse")
+    assert next_action(m, skipped).id != "replace_fuse"
+    scores = {r.id: r for r in plan(m, skipped).repairs()}
+    assert scores["replace_fuse"].status == "skipped"
+    assert skipped.with_repair("replace_fuse", False).repairs_skipped == frozenset()
+
+
+def test_phone_wording_reaches_diagnose_run(capsys, tmp_path):
+    from diagnose.cli import main
+
+    path = tmp_path / "answers.yaml"
+    path.write_text("complaints: [will_not_release]\n"
+                    "steps:\n  - {check: listen_click, answer: click}\n")
+    mini = str(Path(__file__).parent / "fixtures" / "mini")
+    assert main(["run", mini, "--answers", str(path), "--mode", "phone"]) == 0
+    out = " ".join(capsys.readouterr().out.split())  # the text wraps at 80 columns
+    assert "Next: Check listen_click" in out and "to find out by phone" in out
+    assert not any(w in out for w in SITE_WORDS), out
 
 
 def test_a_repair_that_fixes_nothing_still_possible_is_not_proposed():

@@ -62,7 +62,10 @@ def test_record_holds_every_part(recorded):
     assert any(f["value"] == 28.8 and f["unit"] == "ohm" for f in reading.figures)
     assert rec.cause == {"id": "coil_open", "title": "Coil winding open"}
     assert rec.result == "resolved"
-    assert [c["id"] for c in rec.cautions] == ["lockout"]
+    # A DANGER is acknowledged on each card that carries it, the skipped check's too.
+    assert [(c["id"], c["item"]) for c in rec.cautions] == [
+        ("lockout", "coil_resistance"), ("lockout", "fuse_state"), ("lockout", "replace_fuse"),
+        ("lockout", "replace_coil")]
     assert rec.cautions[0]["level"] == "DANGER"
     assert rec.identity == {"serial": "SN-42", "machine": "Hoist <3>"}
     assert [p["value"] for p in rec.nameplate] == ["24 V", "20 W"]

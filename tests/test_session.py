@@ -148,8 +148,6 @@ def test_end_records_the_result_and_closes_the_session():
     assert s.ended and s.next_action().kind == "done"
     with pytest.raises(InputError):
         s.answer("gap", "ok")
-    s.note("a note after the end is fine")
-    assert s.undo().kind == "note"
     assert s.undo() is None  # nothing before the end changes any more
 
 
@@ -278,8 +276,116 @@ def test_reasoning_views_render_in_80_columns():
 def test_pending_cautions_lists_unacknowledged_dangers():
     s = Session(tiny_model())
     assert [c.id for c in s.pending_cautions("fuse")] == ["lockout"]
-    s.acknowledge("lockout")
+    s.acknowledge("lockout", "fuse")
     assert s.pending_cautions("fuse") == ()
+
+
+def test_a_danger_is_acknowledged_for_each_card_that_carries_it():
+    sink = MemorySink()
+    s = Session(tiny_model(), sink=sink, session_id="s")
+    s.acknowledge("lockout", "fuse")
+    assert s.pending_cautions("fuse") == ()
+    # the same caution on another check's card is asked for again
+    assert [c.id for c in s.pending_cautions("coil_ohms")] == ["lockout"]
+    s.acknowledge("lockout", "coil_ohms")
+    assert s.pending_cautions("coil_ohms") == ()
+    assert [e.data for e in sink.events["s"] if e.kind == "ack"] == [
+        {"caution": "lockout", "item": "fuse"}, {"caution": "lockout", "item": "coil_ohms"}]
+    assert fold(s.events) == s.evidence
+    with pytest.raises(InputError, match="does not carry"):
+        s.acknowledge("lockout", "listen_click")
+    with pytest.raises(InputError):
+        s.acknowledge("lockout", "no_such_card")
+
+
+def test_an_old_acknowledgement_without_item_covers_no_card():
+    """Older journals recorded ``ack`` with the caution only: resumed, the shell asks again."""
+    events = [Session(tiny_model()).events[0].to_dict(),
+              {"kind": "ack", "data": {"caution": "lockout"}, "time": "2025-01-14T09:00:00+00:00"}]
+    s = Session.replay(tiny_model(), events)
+    assert "lockout" in s.evidence.acknowledged  # still on the record
+    assert [c.id for c in s.pending_cautions("fuse")] == ["lockout"]
+    assert [c.id for c in s.pending_cautions("coil_ohms")] == ["lockout"]
+
+
+def test_a_repair_that_cannot_be_done_now_is_not_proposed_again():
+    sink = MemorySink()
+    s = Session(tiny_model(), sink=sink, session_id="s")
+    s.set_nameplate("gravity_load", "no")
+    s.add_complaint("will_not_release")
+    s.answer("listen_click", "silent")
+    s.answer("fuse", "blown")
+    assert s.next_action().id == "replace_fuse"
+    event = s.skip_repair("replace_fuse")
+    assert (event.kind, event.data) == ("skip_repair", {"repair": "replace_fuse"})
+    assert s.evidence.repairs_skipped == {"replace_fuse"} and fold(s.events) == s.evidence
+    assert s.next_action().id != "replace_fuse"
+    status = {r.id: r.status for r in s.plan().repairs()}
+    assert status["replace_fuse"] == "skipped"
+    assert s.undo().kind == "skip_repair"
+    assert s.next_action().id == "replace_fuse"
+    with pytest.raises(InputError):
+        s.skip_repair("nope")
+    # a scripted step says the same; old `skip` steps of checks still work
+    s.apply_step({"repair": "replace_fuse", "skip": True})
+    s.apply_step({"check": "gap", "skip": True})
+    assert "replace_fuse" in s.evidence.repairs_skipped and "gap" in s.evidence.skipped
+    with pytest.raises(InputError, match="no `cured`"):
+        s.apply_step({"repair": "replace_coil", "skip": True, "cured": False})
+    # done after all: it counts as done, and is no longer skipped
+    s.repair("replace_fuse", True)
+    assert s.evidence.repairs_skipped == frozenset()
+
+
+def test_end_with_a_result_does_not_need_the_planner(monkeypatch):
+    import diagnose.session as session_module
+
+    s = Session(tiny_model())
+    s.add_complaint("will_not_release")
+    s.repair("replace_fuse", True)
+
+    def broken(*args, **kwargs):
+        raise RuntimeError("planning failed")
+
+    monkeypatch.setattr(session_module, "plan", broken)
+    end = s.end("resolved")
+    assert s.ended and end.data["result"] == "resolved" and end.data["repair"] == "replace_fuse"
+
+
+def test_a_cured_session_ends_without_the_planner(monkeypatch):
+    import diagnose.session as session_module
+
+    s = Session(tiny_model())
+    s.add_complaint("will_not_release")
+    s.repair("replace_fuse", True)
+    monkeypatch.setattr(session_module, "plan", lambda *a, **k: 1 / 0)
+    assert s.end().data["result"] == "resolved"
+
+
+def test_end_checks_the_result_before_anything_and_keeps_given_parts():
+    s = Session(tiny_model(), mode="phone")
+    s.add_complaint("will_not_release")
+    with pytest.raises(InputError):
+        s.end("finished")
+    assert not s.ended
+    end = s.end("visit", parts=["fuse", "magnet body"])
+    assert end.data["parts"] == ["fuse", "magnet body"]
+
+
+def test_a_note_after_the_end_is_refused_in_one_line():
+    s = Session(tiny_model())
+    s.end("abandoned")
+    with pytest.raises(InputError) as caught:
+        s.note("too late")
+    assert "closed" in str(caught.value) and "\n" not in str(caught.value)
+    assert [e.kind for e in s.events] == ["notice", "end"]
+
+
+def test_the_notice_records_the_folder_of_the_pack(mini):
+    s = Session(mini)
+    path = s.events[0].data["path"]
+    assert Path(path).is_absolute() and Path(path) == (FIXTURES / "mini").resolve()
+    assert Session(tiny_model()).events[0].data["path"] == ""  # a model built in code
 
 
 def test_null_sink_and_defaults():

@@ -21,7 +21,8 @@ from rich.console import Console
 
 from diagnose.errors import DiagnoseError
 from diagnose.kb.loader import load_model
-from diagnose.session import MemorySink, Session
+from diagnose.session import Event, MemorySink, Session
+from diagnose.shell import commands
 from diagnose.shell.app import Shell
 from diagnose.shell.complete import CompletionState
 from diagnose.shell.reader import PromptReader
@@ -63,9 +64,9 @@ def steps_of(session):
 def test_site_diagnosis_to_a_cure(model):
     shell, screen, status = drive(model, PRELUDE + [
         "do coil_resistance", "ack", "3.2 ohm",   # DANGER acknowledged, then a reading
-        "repair replace_disc", "no",              # a repair that does not cure
+        "repair replace_disc", "ack", "no",       # a repair that does not cure
         "do listen_click", "silent",
-        "repair replace_coil", "yes",             # the cure
+        "repair replace_coil", "ack", "yes",      # the cure
     ])
     s = shell.session
     assert status == 0
@@ -73,7 +74,10 @@ def test_site_diagnosis_to_a_cure(model):
     assert s.evidence.end["cause"] == "coil_shorted_turns"
     assert s.evidence.findings["coil_resistance"] == {"low": 1.0}
     assert s.evidence.repairs == (("replace_disc", False), ("replace_coil", True))
-    assert "lockout" in s.evidence.acknowledged
+    # the DANGER is acknowledged on each card that carries it, and the log says which
+    acks = [(e.data["caution"], e.data["item"]) for e in s.events if e.kind == "ack"]
+    assert acks == [("lockout", "coil_resistance"), ("lockout", "replace_disc"),
+                    ("lockout", "replace_coil")]
     assert "Safety notice" in screen and "lock out power" in screen
     # the reading is evaluated at once and shown with its figures (V²/P = 24²/20 = 28.8 ohm)
     assert "expected 28.8 ohm at 20 °C, measured 3.2 ohm: shorted turns" in screen
@@ -212,13 +216,82 @@ def test_escalation_when_nothing_known_fits(model):
     # every answer contradicts the causes of "will not release": none of them fits
     shell, screen, _ = drive(model, PRELUDE + [
         "do listen_click", "click", "do coil_resistance", "ack", "28.8", "do fuse_state",
-        "intact", "do drive_display", "other", "do coil_voltage", "ack", "24", "do air_gap",
-        "within_limit", "do oil_traces", "dry", "repair replace_disc", "no",
-        "repair replace_coil", "no", "repair replace_fuse", "no", "repair replace_cable", "no",
-        "yes"])
+        "ack", "intact", "do drive_display", "other", "do coil_voltage", "ack", "24", "do air_gap",
+        "ack", "within_limit", "do oil_traces", "dry", "repair replace_disc", "ack", "no",
+        "repair replace_coil", "ack", "no", "repair replace_fuse", "ack", "no",
+        "repair replace_cable", "ack", "no", "yes"])
     ev = shell.session.evidence
     assert ev.end is not None and ev.end["result"] == "escalated", screen[-1500:]
     assert "None of the known causes fits" in screen
+
+
+def test_each_card_asks_for_its_own_acknowledgement(model):
+    shell, screen, _ = drive(model, PRELUDE + [
+        "do coil_resistance", "ack", "3.2 ohm", "do fuse_state", "ack", "intact", "quit"])
+    assert screen.count("acknowledged: lockout") == 2  # the same DANGER, once per card
+    fuse_card = screen.index("Check: Test the brake fuse")
+    instructions = "Isolate, pull the brake fuse and test it for continuity."
+    assert "Acknowledge the cautions above" in screen[fuse_card:screen.index(instructions)]
+    assert screen.index("acknowledged: lockout", fuse_card) < screen.index(instructions)
+    acks = [e.data for e in shell.session.events if e.kind == "ack"]
+    assert acks == [{"caution": "lockout", "item": "coil_resistance"},
+                    {"caution": "lockout", "item": "fuse_state"}]
+    assert shell.session.evidence.findings["fuse_state"] == {"intact": 1.0}
+
+
+def test_a_resumed_old_acknowledgement_is_asked_again(model):
+    """An ``ack`` of an older journal names no card: the shell asks before the next one."""
+    first = Session(model, sink=MemorySink())
+    events = [first.events[0],
+              Event("ack", {"caution": "lockout"}, "2025-01-14T09:00:00+00:00")]
+    session = Session.replay(model, events, sink=MemorySink(), session_id="t-1")
+    shell, screen, _ = drive(model, PRELUDE + ["do coil_resistance", "ack", "3.2 ohm", "quit"],
+                             session=session)
+    assert "acknowledged: lockout" in screen
+    assert [e.data.get("item") for e in shell.session.events if e.kind == "ack"] == [
+        None, "coil_resistance"]
+
+
+def _likely_coil(model):
+    """A session where the planner proposes replace_coil (a shorted coil, supply ok)."""
+    session = Session(model, sink=MemorySink(), session_id="t-1")
+    for param, p in model.parameters.items():
+        session.set_nameplate(param, p.default)
+    session.add_complaint("will_not_release")
+    session.answer("coil_resistance", "3.2 ohm")
+    session.answer("coil_voltage", "ok")
+    assert session.next_action().id == "replace_coil"
+    return session
+
+
+def test_skip_at_a_proposed_repair_proposes_another_step(model):
+    # Enter skips the four identity fields and the question for another complaint
+    shell, screen, _ = drive(model, ["", "", "", "", "", "ack", "skip", "quit"],
+                             session=_likely_coil(model))
+    s = shell.session
+    assert s.evidence.repairs_skipped == {"replace_coil"} and s.evidence.repairs == ()
+    assert "skipped replace_coil: it is not proposed again" in screen
+    assert s.next_action().id != "replace_coil"
+    assert [e.kind for e in s.events][-1] == "skip_repair"
+
+
+def test_skip_at_the_acknowledgement_of_a_repair_and_undo(model):
+    shell, screen, _ = drive(model, PRELUDE + ["repair replace_fuse", "skip", "undo", "quit"])
+    s = shell.session
+    assert "skipped replace_fuse" in screen
+    assert "undone: skipped repair replace_fuse" in screen
+    assert s.evidence.repairs_skipped == frozenset()
+    assert not any(e.kind == "ack" for e in s.events)  # skipped before acknowledging
+
+
+def test_a_note_after_the_end_is_refused_and_the_shell_says_so(model):
+    session = Session(model, sink=MemorySink(), session_id="t-1")
+    session.end("abandoned")
+    con, out = console()
+    shell = Shell(session, con, None)
+    shell.run_command(commands.find("note"), "forgot to say: the gland was loose")
+    assert "Not accepted: note: the diagnosis is closed" in out.getvalue()
+    assert [e.kind for e in session.events] == ["notice", "end"]
 
 
 # --- phone mode --------------------------------------------------------------------------
@@ -230,6 +303,17 @@ def test_phone_mode_to_a_site_visit(model):
     assert "Recommendation: send a technician" in screen
     assert "Parts to bring: fuse of the same rating" in screen
     assert "The axis will not move" in screen  # caller wording of the complaint
+
+    # the reasons speak of the questions to the caller, never of work on site
+    assert "Phone mode: every card is a question for the caller" in screen
+    assert "to find out by phone whether a site visit is needed" in screen
+    assert "question (" in screen
+    for site_words in ("not yet sure enough to repair", "of work", "saves minutes",
+                       "repairing now"):
+        assert site_words not in screen
+    # the visit recorded is the one shown, with its parts
+    assert s.evidence.end["parts"] == ["fuse of the same rating"] or \
+        "fuse of the same rating" in s.evidence.end["parts"]
 
 
 def test_phone_mode_refuses_site_checks_and_repairs(model):

@@ -154,11 +154,7 @@ def test_key_bindings_have_one_line_help():
 # --- commands: help and README ---------------------------------------------------------------
 
 def test_every_command_has_help_and_is_in_the_readme():
-    # TODO(lead): once docs_shell.md is merged into README.md, read README.md only.
     docs = (ROOT / "README.md").read_text(encoding="utf-8")
-    extra = ROOT / "docs_shell.md"
-    if extra.exists():
-        docs += extra.read_text(encoding="utf-8")
     expected = {"help", "why", "ranking", "checks", "do", "undo", "note", "repair", "calc",
                 "mode", "save", "quit", "nameplate"}
     assert expected <= set(commands.COMMANDS)
@@ -252,6 +248,114 @@ def test_resume_finds_the_pack_by_its_recorded_id(model):
     args.packs = [str(PACK.parent)]
     status, screen = run_lines(resume, ["quit"], args, sid)
     assert status == 0 and "phone mode" in screen and "Ask the caller" in screen
+
+
+def test_resume_finds_a_pack_started_from_a_folder_without_packs():
+    from diagnose.journal.store import Journal
+
+    # started with the pack given as a folder: its id is not on the search path
+    status, screen = run_lines(main, ["", "", "", "", "", "", "", "release", "", "quit"],
+                               args_for())
+    sid = re.search(r"Resume with: diagnose resume (\S+)", screen).group(1)
+    with Journal(os.environ["DIAGNOSE_JOURNAL"], readonly=True) as j:
+        assert j.load_events(sid)[0].data["path"] == str(PACK.resolve())
+    status, screen = run_lines(resume, ["quit"], args_for(pack=None), sid)
+    assert status == 0 and f"Resuming session {sid}" in screen
+
+
+def test_resume_says_where_the_recorded_folder_was_when_it_is_gone(model):
+    from diagnose.errors import InputError
+    from diagnose.journal.store import Journal
+
+    with Journal(os.environ["DIAGNOSE_JOURNAL"]) as j:
+        sid = j.new_session(model.id, model.version, model.content_hash, "site")
+        j.write(sid, {"kind": "notice", "data": {"pack": model.id, "path": "/no/such/folder"},
+                      "time": "2025-01-14T09:00:00+00:00"})
+    with pytest.raises(InputError, match="/no/such/folder"):
+        run_lines(resume, ["quit"], args_for(pack=None), sid)
+
+
+def test_the_notice_is_read_while_the_pack_loads():
+    import threading
+
+    from diagnose.shell.startup import ENTER, Preload, manifest_notice, read_notice_while_loading
+
+    notice = manifest_notice(str(PACK))
+    assert notice.startswith("This tool is an aid.") and "lock out power" in notice
+    asked = threading.Event()
+
+    def slow_load():
+        assert asked.wait(10), "the notice did not wait for Enter while the pack loaded"
+        return load_model(str(PACK))
+
+    class Reader:
+        def ask(self, message, state=None, default=""):
+            assert message == ENTER and not loading.done  # asked while still loading
+            asked.set()
+            return ""
+
+    loading = Preload(slow_load)
+    out = io.StringIO()
+    got = read_notice_while_loading(Console(file=out, width=80, color_system=None), Reader(),
+                                    notice, loading)
+    assert got.id == "shell-brake"
+    assert "Safety notice" not in out.getvalue()  # the same notice is not shown twice
+
+
+def test_a_pack_that_fails_to_load_fails_after_the_notice_and_ctrl_d_leaves():
+    from diagnose.errors import KnowledgeError
+    from diagnose.shell.startup import Preload, read_notice_while_loading
+
+    def broken():
+        raise KnowledgeError([], "pack x has 1 error(s)")
+
+    class Enter:
+        def ask(self, message, state=None, default=""):
+            return ""
+
+    class CtrlD:
+        def ask(self, message, state=None, default=""):
+            raise EOFError
+
+    con = Console(file=io.StringIO(), width=80, color_system=None)
+    with pytest.raises(KnowledgeError, match="1 error"):
+        read_notice_while_loading(con, Enter(), "notice", Preload(broken))
+    with pytest.raises(EOFError):
+        read_notice_while_loading(con, CtrlD(), "notice", Preload(broken))
+
+
+def test_a_changed_notice_is_shown_again_so_the_recorded_one_was_seen(model):
+    from diagnose.shell.startup import Preload, read_notice_while_loading
+
+    class Enter:
+        def ask(self, message, state=None, default=""):
+            return ""
+
+    out = io.StringIO()
+    read_notice_while_loading(Console(file=out, width=80, color_system=None), Enter(),
+                              "an older notice", Preload(lambda: model))
+    assert "Safety notice" in out.getvalue() and "lock out power" in out.getvalue()
+
+
+def test_phone_mode_ends_with_a_recommendation(model):
+    from diagnose.reasoning.planner import Action
+
+    session = Session(model, mode="phone", sink=MemorySink(), session_id="p-1")
+    session.add_complaint("will_not_release")
+    shell = Shell(session, Console(file=io.StringIO()), None)
+    escalate = render(shell.end_view(Action("escalate", reason="the answers fit nothing")))
+    assert "Recommendation: a site visit with an application engineer" in escalate
+    session.repair("replace_fuse", True)
+    cured = render(shell.end_view(Action("done")))
+    assert "Resolved by phone. Cause:" in cured and "What cured it: " in cured
+
+
+def test_why_text_and_the_repair_card_in_phone_mode():
+    from diagnose.shell.render import why_text
+
+    assert why_text(0.3, 2, phone=True).endswith("for a 2 min question (0.15 bits/min)")
+    text = render(RepairCard("enable", "Enable the brake output", 5, label="The caller tries"))
+    assert "The caller tries: Enable the brake output" in text
 
 
 def test_without_a_terminal_the_shell_reads_a_script(tmp_path):

@@ -116,6 +116,15 @@ def _model(args: argparse.Namespace, pack_id: str, *, learned: bool = False) -> 
         return None
 
 
+def recorded_folder(events: list[Any]) -> str:
+    """The pack folder a session's notice recorded, while it is still there ("" if not)."""
+    from pathlib import Path
+
+    first = events[0].data if events and events[0].kind == "notice" else {}
+    folder = str(first.get("path") or "")
+    return folder if folder and Path(folder).is_dir() else ""
+
+
 def _write(text: str, output: str | None) -> None:
     if not output:
         sys.stdout.write(text)
@@ -160,12 +169,12 @@ def _sessions(args: argparse.Namespace) -> int:
 
 
 def _resume(args: argparse.Namespace) -> int:
+    from diagnose.journal.recorder import ensure_open
+
     journal = _need_reader(args)
     with journal:
         info = journal.session(args.session_id)
-    if not info.is_open:
-        raise JournalError(f"session {info.id} is closed ({info.outcome or 'ended'}); "
-                           f"`diagnose report {info.id}` shows its repair log")
+    ensure_open(info)
     try:
         from diagnose.shell.app import resume
     except ImportError:
@@ -198,6 +207,10 @@ def _report(args: argparse.Namespace) -> int:
     with _need_reader(args) as journal:
         info = journal.session(args.session_id)
         model = _model(args, info.pack_id)
+        if model is None:  # a pack given by its folder: the folder its notice recorded
+            folder = recorded_folder(journal.load_events(info.id))
+            found = _model(args, folder) if folder else None
+            model = found if getattr(found, "id", None) == info.pack_id else None
         record = session_record(journal, info.id, model)
     _write(render_report(record, args.format), args.output)
     return 0

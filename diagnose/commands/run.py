@@ -1,23 +1,52 @@
-"""`diagnose run PACK --answers FILE`: replay a scripted session and show each step."""
+"""`diagnose run PACK --answers FILE`: a scripted session, recorded in the journal.
+
+A scripted run is one more face of the session API: it records to the
+journal through the same functions as the shell
+(:func:`diagnose.journal.recorder.start_session` and ``resume_session``), so
+each event is committed before the next step is applied, the session is
+listed by `diagnose sessions`, survives a kill, and has a repair log.
+`diagnose run --resume ID [--answers FILE]` continues a session of the
+journal (started here or in the shell). The whole answers file is first
+played in memory: a file with a bad step writes nothing. ``--no-journal``
+is a dry run that writes nothing at all.
+"""
 
 from __future__ import annotations
 
 import argparse
 import json
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
+
+#: The keys an answers file may hold.
+ANSWER_KEYS = frozenset({"nameplate", "complaints", "steps", "mode", "max_faults", "identity",
+                         "title", "notes", "end"})
 
 
 def register(sub: Any) -> None:
     p = sub.add_parser(
-        "run", help="replay a scripted session from an answers file",
-        description="Replay a scripted session: the answers file (YAML or JSON) holds "
+        "run", help="a scripted session from an answers file, recorded in the journal",
+        description="Play a scripted session: the answers file (YAML or JSON) holds "
         "`nameplate` (parameter: value), `complaints` (a list) and `steps`, each "
         "{check: id, answer: value} (an outcome, a reading with unit, a list of readings, "
-        "or unsure), {check: id, skip: true} or {repair: id, cured: true|false}. Shows the "
-        "ranking and the proposed next action after each step.")
-    p.add_argument("pack", metavar="PACK", help="pack id or folder")
-    p.add_argument("--answers", metavar="FILE", required=True, help="the scripted session")
+        "or unsure), {check: id, skip: true}, {repair: id, cured: true|false} or "
+        "{repair: id, skip: true} (it cannot be done now); optional "
+        "`identity`, `notes` and `end` (resolved, visit, escalated or abandoned). Shows the "
+        "ranking and the proposed next action after each step. The session is recorded in "
+        "the journal as it goes (see `diagnose sessions`) and closed at a cure or at `end`; "
+        "--resume ID continues a session of the journal.")
+    p.add_argument("pack", metavar="PACK", nargs="?",
+                   help="pack id or folder (with --resume: only for a pack given by its folder)")
+    p.add_argument("--answers", metavar="FILE",
+                   help="the scripted session (needed unless --resume)")
+    p.add_argument("--resume", metavar="ID",
+                   help="continue the open session ID: replay its events from the journal, then "
+                   "apply FILE (its nameplate values and complaints already there are skipped); "
+                   "without --answers, show where it stands")
+    p.add_argument("--who", metavar="NAME", help="who does the steps, for the repair log")
+    p.add_argument("--no-journal", action="store_true",
+                   help="a dry run: show the steps but write nothing to the journal")
     p.add_argument("--json", action="store_true", help="one JSON object instead of text")
     p.add_argument("--max-faults", type=int, choices=(1, 2), default=None,
                    help="1: one cause at a time (default); 2: up to two causes at once")
@@ -34,6 +63,7 @@ def read_answers(path: str) -> dict[str, Any]:
     """
     from diagnose.errors import InputError
     from diagnose.kb.yamlpos import read_yaml
+    from diagnose.session import END_RESULTS
 
     try:
         text = Path(path).read_text(encoding="utf-8")
@@ -47,14 +77,16 @@ def read_answers(path: str) -> dict[str, Any]:
     data = doc.data
     if not isinstance(data, dict):
         raise InputError("answers", f"{path}: expected a mapping with nameplate, complaints, steps")
-    extra = set(data) - {"nameplate", "complaints", "steps", "mode", "max_faults", "identity",
-                         "title", "notes"}
+    extra = set(data) - ANSWER_KEYS
     if extra:
         raise InputError("answers", f"{path}: unknown key {min(extra)!r}")
     for key, kind in (("nameplate", dict), ("complaints", list), ("steps", list),
                       ("identity", dict), ("notes", list)):
         if key in data and not isinstance(data[key], kind):
             raise InputError("answers", f"{path}: `{key}` must be a {kind.__name__}")
+    if "end" in data and data["end"] not in END_RESULTS:
+        raise InputError("answers", f"{path}: `end` must be one of {', '.join(END_RESULTS)}, "
+                                    f"not {data['end']!r}")
     return data
 
 
@@ -62,50 +94,58 @@ def _step_text(step: Any) -> str:
     if not isinstance(step, dict):
         return str(step)
     if "repair" in step:
-        return f"repair {step['repair']}: {'cured' if step.get('cured') else 'not cured'}"
+        done = "skipped" if step.get("skip") else "cured" if step.get("cured") else "not cured"
+        return f"repair {step['repair']}: {done}"
     if step.get("skip"):
         return f"{step.get('check')}: skipped"
     return f"{step.get('check')}: {step.get('answer')}"
 
 
-def _run(args: argparse.Namespace) -> int:
-    from diagnose.commands.kb import load
-    from diagnose.errors import DiagnoseError, InputError
-    from diagnose.session import Event, Finding, Session
+def _plain(value: Any) -> str:
+    """An identity value as the session stores it ("yes"/"no" for booleans)."""
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    return str(value).strip()
 
-    data = read_answers(args.answers)
-    model = load(args, args.pack)
-    mode = args.mode or str(data.get("mode", "site"))
-    max_faults = args.max_faults or int(data.get("max_faults", 1))
-    session = Session(model, mode=mode, max_faults=max_faults)
-    if data.get("identity"):
-        session.set_identity(**data["identity"])
+
+# --- playing the answers file ---------------------------------------------------------------
+
+
+def play(session: Any, data: dict[str, Any], *,
+         on_step: Callable[[int, Any, Any], None] | None = None) -> None:
+    """Apply an answers file to ``session``: identity, nameplate, complaints, steps, notes, end.
+
+    What the session holds already (an identity fact, a nameplate value, a
+    complaint or a note with the same value) is skipped, so that the file a
+    session started with can be given again to continue it. A different
+    nameplate value is recorded as a change. At the end the session is closed
+    with the file's ``end`` result, or as the shell closes it when a repair
+    cured the unit. ``on_step(n, step, result)`` is called after each step.
+
+    Raises:
+        InputError: a value or step the pack or the physics refuses; its field
+            names the step (``step 3``) for a step.
+    """
+    from diagnose.errors import DiagnoseError, InputError
+    from diagnose.session import normalise_parameter
+
+    mode = data.get("mode")
+    if mode is not None and str(mode) != session.mode:
+        session.set_mode(str(mode))
+    ev = session.evidence
+    identity = {str(k): v for k, v in (data.get("identity") or {}).items()
+                if ev.identity.get(str(k)) != _plain(v)}
+    if identity:
+        session.set_identity(**identity)
     for param, value in (data.get("nameplate") or {}).items():
+        known = session.model.parameters.get(str(param))
+        held = session.evidence.nameplate.get(str(param))
+        if known is not None and held is not None and normalise_parameter(known, value) == held:
+            continue
         session.set_nameplate(str(param), value)
     for k in data.get("complaints") or []:
-        session.add_complaint(str(k))
-
-    def snapshot(shown: int | None = 5) -> dict[str, Any]:
-        ranking = session.ranking()
-        out = {"ranking": ranking.to_list()[:shown] if shown else ranking.to_list(),
-               "next": session.next_action().to_dict()}
-        if ranking.hypotheses:
-            out["hypotheses"] = [{"hypothesis": h.cause, "p": round(h.p, 6)}
-                                 for h in ranking.hypotheses[:5]]
-        return out
-
-    console = None
-    if not args.json:
-        from rich.console import Console
-
-        console = Console(width=80) if not Console().is_terminal else Console()
-        console.print(f"[bold]{model.title}[/bold] ({model.id} {model.version}), "
-                      f"{mode}, up to {max_faults} fault(s)")
-        if model.notice:
-            console.print(model.notice, style="dim")
-        console.print(session.ranking())
-        console.print(session.next_action())
-    steps_out = []
+        if str(k) not in session.evidence.complaints:
+            session.add_complaint(str(k))
     for i, step in enumerate(data.get("steps") or [], 1):
         try:
             result = session.apply_step(step)
@@ -113,23 +153,239 @@ def _run(args: argparse.Namespace) -> int:
             field = getattr(exc, "field", "")
             raise InputError(f"step {i}", f"{field + ': ' if field else ''}"
                                           f"{getattr(exc, 'message', exc)}") from None
+        if on_step is not None:
+            on_step(i, step, result)
+    for note in data.get("notes") or []:
+        if str(note).strip() not in session.evidence.notes:
+            session.note(str(note))
+    if session.ended:
+        return
+    if data.get("end"):
+        result = str(data["end"])
+        parts: tuple[str, ...] = ()
+        if result == "visit":  # the parts the planner would have a technician bring
+            try:
+                parts = tuple(session.next_action().parts)
+            except Exception:  # noqa: BLE001 (no plan: the visit is recorded without parts)
+                parts = ()
+        session.end(result, parts=parts)
+    elif session.evidence.cured:  # as the shell does: a cure closes the diagnosis
+        session.end()
+
+
+def _options(args: argparse.Namespace, data: dict[str, Any]) -> tuple[str | None, int | None]:
+    """The mode and number of faults asked for (option first, then the file), or None."""
+    from diagnose.errors import InputError
+
+    mode = args.mode or data.get("mode")
+    faults = args.max_faults or data.get("max_faults")
+    if faults is not None and faults not in (1, 2):
+        raise InputError("max_faults", f"expected 1 or 2, got {faults!r}")
+    return (str(mode) if mode is not None else None), faults
+
+
+# --- showing what happens ------------------------------------------------------------------
+
+
+class _View:
+    """What a run shows: rich text after each step, or one JSON object at the end."""
+
+    def __init__(self, session: Any, as_json: bool) -> None:
+        self.session = session
+        self.steps: list[dict[str, Any]] = []
+        self.console: Any = None
+        if not as_json:
+            from rich.console import Console
+
+            self.console = Console(width=80) if not Console().is_terminal else Console()
+
+    def snapshot(self, shown: int | None = 5) -> dict[str, Any]:
+        s = self.session
+        ranking = s.ranking()
+        out = {"ranking": ranking.to_list()[:shown] if shown else ranking.to_list(),
+               "next": s.next_action().to_dict()}
+        if ranking.hypotheses:
+            out["hypotheses"] = [{"hypothesis": h.cause, "p": round(h.p, 6)}
+                                 for h in ranking.hypotheses[:5]]
+        return out
+
+    def say(self, text: str, style: str | None = None) -> None:
+        if self.console is not None:
+            self.console.print(text, style=style, markup=False, highlight=False)
+
+    def start(self, *, resumed: bool, journal: str | None) -> None:
+        s = self.session
+        if self.console is None:
+            return
+        model = s.model
+        where = (f"recorded in the journal {journal}" if journal else
+                 "a dry run (--no-journal): nothing is written to the journal")
+        self.console.print(f"[bold]{model.title}[/bold] ({model.id} {model.version}), "
+                           f"{s.mode}, up to {s.max_faults} fault(s)")
+        if resumed:
+            self.say(f"Resuming session {s.session_id} ({_steps_so_far(s)} step(s) so far), "
+                     f"{where}.", style="bold")
+            if s.pack_changed:
+                self.say("Note: the pack has changed since this session was recorded; the "
+                         "ranking uses the pack as it is now.", style="yellow")
+        else:
+            if model.notice:
+                self.say(model.notice, style="dim")
+            self.say(f"Session {s.session_id}, {where}." if journal else
+                     f"{where[0].upper()}{where[1:]}.", style="bold")
+        self.console.print(s.ranking())
+        self.console.print(s.next_action())
+
+    def step(self, i: int, step: Any, result: Any) -> None:
+        from diagnose.session import Event, Finding
+
         entry: dict[str, Any] = {"step": step}
         if isinstance(result, Finding):
             entry["finding"] = result.to_dict()
         elif isinstance(result, Event):
             entry["event"] = result.to_dict()["data"] | {"kind": result.kind}
-        entry.update(snapshot())
-        steps_out.append(entry)
-        if console is not None:
-            console.rule(f"step {i}: {_step_text(step)}", align="left")
+        entry.update(self.snapshot())
+        self.steps.append(entry)
+        if self.console is not None:
+            self.console.rule(f"step {i}: {_step_text(step)}", align="left")
             if isinstance(result, Finding):
-                console.print(result)
-            console.print(session.ranking())
-            console.print(session.next_action())
-    for note in data.get("notes") or []:
-        session.note(str(note))
-    if args.json:
-        out = {"pack": model.id, "version": model.version, "mode": mode,
-               "max_faults": max_faults, **snapshot(None), "steps": steps_out}
-        print(json.dumps(out, indent=2, ensure_ascii=False))
+                self.console.print(result)
+            self.console.print(self.session.ranking())
+            self.console.print(self.session.next_action())
+
+    def finish(self, *, recorded: bool, resumed: bool, journal: str | None) -> None:
+        s = self.session
+        end = dict(s.evidence.end) if s.ended else None
+        sid = s.session_id if recorded else None
+        if self.console is None:
+            model = s.model
+            out = {"session": sid, "journal": journal, "resumed": resumed,
+                   "status": "closed" if end else "open", "end": end, "pack": model.id,
+                   "version": model.version, "mode": s.mode, "max_faults": s.max_faults,
+                   "pack_changed": s.pack_changed, **self.snapshot(None), "steps": self.steps}
+            print(json.dumps(out, indent=2, ensure_ascii=False))
+            return
+        if not recorded:
+            self.say("A dry run (--no-journal): nothing was written to the journal.",
+                     style="bold")
+        elif end:
+            self.say(f"Session {sid} is closed ({end.get('result')}); its repair log: "
+                     f"diagnose report {sid}", style="bold")
+        else:
+            self.say(f"Session {sid} is open; continue it with: diagnose run --resume {sid} "
+                     f"--answers FILE (or in the shell: diagnose resume {sid})", style="bold")
+
+
+def _steps_so_far(session: Any) -> int:
+    from diagnose.journal.record import STEP_KINDS
+    from diagnose.session import effective_events
+
+    return sum(1 for e in effective_events(session.events) if e.kind in STEP_KINDS)
+
+
+# --- the command ---------------------------------------------------------------------------
+
+
+def _run(args: argparse.Namespace) -> int:
+    from diagnose.errors import InputError
+
+    if args.resume is None:
+        if not args.pack:
+            raise InputError("PACK", "name the pack (id or folder), or give --resume ID")
+        if not args.answers:
+            raise InputError("--answers", "the answers file is needed (or --resume ID to "
+                                          "continue a session of the journal)")
+    data = read_answers(args.answers) if args.answers else {}
+    if args.resume is not None:
+        return _resume(args, data)
+    return _start(args, data)
+
+
+def _start(args: argparse.Namespace, data: dict[str, Any]) -> int:
+    from diagnose.commands.journal import _path
+    from diagnose.commands.kb import _learned, load
+    from diagnose.session import Session
+
+    model = load(args, args.pack)
+    mode, faults = _options(args, data)
+    mode, faults = mode or "site", faults or 1
+    if "mode" in data:
+        data = {**data, "mode": mode}  # the --mode option wins over the file's
+    if args.no_journal:
+        session = Session(model, mode=mode, max_faults=faults)
+        return _play(args, session, data, recorded=False, resumed=False, journal=None)
+    play(Session(model, mode=mode, max_faults=faults), data)  # a bad step writes nothing
+    from diagnose.journal.recorder import start_session
+    from diagnose.journal.store import Journal
+
+    path = _path(args)
+    with Journal(path) as journal:
+        session = start_session(journal, model, mode=mode, max_faults=faults, who=args.who,
+                                overlay=_learned(args, model.id))
+        return _play(args, session, data, recorded=True, resumed=False, journal=str(path))
+
+
+def _resume(args: argparse.Namespace, data: dict[str, Any]) -> int:
+    from diagnose.commands.journal import _need_reader, _path
+    from diagnose.errors import InputError
+    from diagnose.journal.recorder import ensure_open, resume_session
+    from diagnose.journal.store import Journal
+    from diagnose.session import Session
+
+    sid = args.resume
+    with _need_reader(args) as reader:
+        info = reader.session(sid)
+        ensure_open(info)
+        events = reader.load_events(sid)
+    if args.who and args.who != info.who:
+        raise InputError("--who", f"session {sid} was recorded by "
+                         f"{info.who or 'nobody named'}; the repair log names one person a "
+                         "session (leave --who out to continue it)")
+    model = _resumed_model(args, info, events)
+    old = Session.replay(model, events)  # in memory: checks the pack and the answers file
+    mode, faults = _options(args, data)
+    if faults is not None and faults != old.max_faults:
+        raise InputError("max_faults", f"session {sid} ranks up to {old.max_faults} "
+                         "fault(s) at once; that cannot change")
+    if mode is not None:
+        data = {**data, "mode": mode}
+    if data:
+        play(old, data)
+    if args.no_journal:
+        session = Session.replay(model, events)
+        return _play(args, session, data, recorded=False, resumed=True, journal=None)
+    path = _path(args)
+    with Journal(path) as journal:
+        session = resume_session(journal, sid, model)
+        return _play(args, session, data, recorded=True, resumed=True, journal=str(path))
+
+
+def _resumed_model(args: argparse.Namespace, info: Any, events: list[Any]) -> Any:
+    """The pack of a session: the PACK given, else the folder its notice recorded (while it
+    is still there), else its id on the search path. ``Session.replay`` checks the id."""
+    from diagnose.commands.journal import recorded_folder
+    from diagnose.commands.kb import load
+    from diagnose.errors import InputError
+
+    folder = recorded_folder(events)
+    try:
+        return load(args, args.pack or folder or info.pack_id)
+    except InputError as exc:
+        if args.pack or exc.field != "pack":
+            raise
+        first = events[0].data if events and events[0].kind == "notice" else {}
+        gone = f" (its folder {first['path']} is gone)" if first.get("path") else ""
+        raise InputError("pack", f"session {info.id} ran on the pack {info.pack_id}{gone}, which "
+                         f"is not on the search path; name its folder (diagnose run FOLDER "
+                         f"--resume {info.id}) or add --packs DIR") from None
+
+
+def _play(args: argparse.Namespace, session: Any, data: dict[str, Any], *, recorded: bool,
+          resumed: bool, journal: str | None) -> int:
+    """Show the start, apply the answers file step by step, show the end."""
+    view = _View(session, args.json)
+    view.start(resumed=resumed, journal=journal if recorded else None)
+    if data:
+        play(session, data, on_step=view.step)
+    view.finish(recorded=recorded, resumed=resumed, journal=journal)
     return 0

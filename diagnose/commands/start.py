@@ -16,12 +16,18 @@ def register(sub: Any) -> None:
         "start", help="open the interactive diagnosis shell (the default command)",
         description="Diagnose one unit interactively: safety notice, nameplate, complaint, "
         "then the proposed checks, readings and repairs until the cure or an escalation. "
-        "Without a terminal, answers are read line by line from standard input.")
+        "By phone, every step is a question for the caller and the end is a recommendation: "
+        "resolved, or a site visit with the parts to bring. At a terminal the pack loads while "
+        "the safety notice is read (Enter goes on). Without a terminal, answers are read line "
+        "by line from standard input.")
     p.add_argument("pack", nargs="?", metavar="PACK",
                    help="pack id or folder (default: spring-applied-brake)")
     p.add_argument("--mode", choices=("site", "phone"), default="site",
                    help="site: a technician at the unit (default); phone: a help-desk agent "
-                   "guiding a caller, with caller-safe checks only")
+                   "asking a caller only what is safe without tools, ending with a "
+                   "recommendation (resolved, or a site visit with the parts to bring)")
+    p.add_argument("--who", metavar="NAME",
+                   help="who does the diagnosis, for the repair log")
     p.set_defaults(handler=run)
 
 

@@ -22,7 +22,7 @@ from datetime import datetime
 from typing import Any
 
 CHECK_KINDS = ("answer", "reading", "unsure", "skip")
-STEP_KINDS = CHECK_KINDS + ("repair",)
+STEP_KINDS = CHECK_KINDS + ("repair", "skip_repair")
 RESOLVED = "resolved"  # the end result that means a repair cured the unit
 
 
@@ -249,9 +249,11 @@ def build_record(info: Any, events: Sequence[Any], model: Any = None,
         elif kind == "ack":
             cid = str(data.get("caution", ""))
             c = cautions_def.get(cid)
+            item = data.get("item")  # the card it was acknowledged for (not in older journals)
             cautions.append({"id": cid, "time": when, "who": who,
                              "level": str(getattr(c, "level", "")),
-                             "text": str(getattr(c, "text", ""))})
+                             "text": str(getattr(c, "text", "")),
+                             "item": str(item) if item else None})
         elif kind == "note":
             notes.append({"time": when, "who": who, "text": _text(data.get("text"))})
         elif kind in CHECK_KINDS:
@@ -263,6 +265,11 @@ def build_record(info: Any, events: Sequence[Any], model: Any = None,
                 n=len(steps) + 1, kind=kind, time=when, id=rid, title=_title(repairs, rid),
                 who=who, cured=cured, outcome="cured" if cured else "not cured",
                 minutes=getattr(repairs.get(rid), "minutes", None), ranking=ranking))
+        elif kind == "skip_repair":
+            rid = str(data.get("repair", ""))
+            steps.append(Step(
+                n=len(steps) + 1, kind=kind, time=when, id=rid, title=_title(repairs, rid),
+                who=who, outcome="set aside: cannot be done now", minutes=None, ranking=ranking))
         elif kind == "end":
             end = data
 
@@ -291,7 +298,8 @@ def build_record(info: Any, events: Sequence[Any], model: Any = None,
         cause={"id": cause_id, "title": _cause_title(model, cause_id)} if cause_id else None,
         end=end, started=started, ended=ended, clock_minutes=minutes_between(started, ended),
         minutes_to_cure=minutes_between(started, cure.time) if cure else None,
-        work_minutes=sum(float(s.minutes or 0) for s in steps if s.kind != "skip"),
+        work_minutes=sum(float(s.minutes or 0) for s in steps
+                         if s.kind not in ("skip", "skip_repair")),
         events=len(events), undone=undone, recomputed=recomputed)
 
 

@@ -16,8 +16,8 @@ from typing import Any
 from diagnose.errors import JournalError
 
 #: Events after which the ranking is kept: the steps of a diagnosis.
-RANKED_KINDS = frozenset({"complaint", "answer", "reading", "unsure", "skip", "repair", "undo",
-                          "end"})
+RANKED_KINDS = frozenset({"complaint", "answer", "reading", "unsure", "skip", "repair",
+                          "skip_repair", "undo", "end"})
 
 
 class Recorder:
@@ -77,6 +77,17 @@ def start_session(journal: Any, model: Any, *, mode: str = "site", max_faults: i
                    **options)
 
 
+def ensure_open(info: Any) -> None:
+    """Refuse a closed session (``info`` is its ``SessionInfo``): it cannot take more steps.
+
+    Raises:
+        JournalError: one line that says it is closed and how to see its repair log.
+    """
+    if not info.is_open:
+        raise JournalError(f"session {info.id} is closed ({info.outcome or 'ended'}); "
+                           f"`diagnose report {info.id}` shows its repair log")
+
+
 def resume_session(journal: Any, session_id: str, model: Any, **options: Any) -> Any:
     """The session ``session_id`` rebuilt from its events, recording on into ``journal``.
 
@@ -86,10 +97,7 @@ def resume_session(journal: Any, session_id: str, model: Any, **options: Any) ->
     """
     from diagnose.session import Session
 
-    info = journal.session(session_id)
-    if not info.is_open:
-        raise JournalError(f"session {session_id} is closed ({info.outcome or 'ended'}); "
-                           f"`diagnose report {session_id}` shows its repair log")
+    ensure_open(journal.session(session_id))
     events = journal.load_events(session_id)
     max_faults = 1
     if events and events[0].kind == "notice":

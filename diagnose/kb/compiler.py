@@ -125,7 +125,7 @@ def _schema_message(err: Any, path: Path) -> str:
             parts.append(f"`{name}`" + (f" (did you mean `{close[0]}`?)" if close else ""))
         return f"{where}: unknown field {', '.join(parts)}"
     if err.validator == "oneOf" and isinstance(err.instance, dict) and "check" in str(err.schema):
-        return f"{where}: a step is either {{check, answer}} or {{repair, cured}}"
+        return f"{where}: a step is {{check, answer}}, {{check, skip}}, {{repair, cured}} or {{repair, skip}}"
     return f"{where}: {err.message}"
 
 
@@ -542,7 +542,9 @@ def _case(it: _Item, ctx: _Ctx, checks: Mapping[str, Check]) -> Case:
                               source=src))
         elif isinstance(s.get("repair"), str):
             ctx.ref(s["repair"], ("repairs",), it.at("steps", j, "repair"), f"test {it.id!r} step")
-            steps.append(Step(repair=s["repair"], cured=bool(s.get("cured")), source=src))
+            skip = bool(s.get("skip", False))
+            steps.append(Step(repair=s["repair"], cured=None if skip else bool(s.get("cured")),
+                              skip=skip, source=src))
     return Case(
         id=it.id, complaints=_list(d.get("complaints")), steps=tuple(steps),
         expect_top=_list(d.get("expect_top")),

@@ -178,7 +178,10 @@ STEP = {
         "repair": ID,
         "cured": {"type": "boolean"},
     },
-    "oneOf": [{"required": ["check"]}, {"required": ["repair", "cured"]}],
+    "oneOf": [{"required": ["check"]},
+              {"required": ["repair", "cured"], "not": {"required": ["skip"]}},
+              {"required": ["repair", "skip"], "properties": {"skip": {"const": True}},
+               "not": {"required": ["cured"]}}],
 }
 
 CASE = {

@@ -29,9 +29,14 @@ class Evidence:
         unsure: checks answered "unsure" (done, but no evidence).
         skipped: checks that cannot be done now (not offered again).
         repairs: (repair id, cured) in the order done.
+        repairs_skipped: repairs that cannot be done now (no part on the van, no
+            access): not proposed again, until undone or done after all.
         nameplate: parameter id -> value as text ("24 V", "yes", "unknown").
         mode: "site" or "phone".
-        acknowledged: caution ids acknowledged.
+        acknowledged: caution ids acknowledged for any card (or, in older
+            journals, for no card in particular).
+        acknowledged_for: (check or repair id, caution id) pairs: the caution was
+            acknowledged before the instructions of that card.
         notes: free-text notes, in order.
         identity: facts about the unit and the call (serial number, customer, ...).
         end: the closing record, or None while the diagnosis is open.
@@ -42,9 +47,11 @@ class Evidence:
     unsure: frozenset[str] = frozenset()
     skipped: frozenset[str] = frozenset()
     repairs: tuple[tuple[str, bool], ...] = ()
+    repairs_skipped: frozenset[str] = frozenset()
     nameplate: Mapping[str, str] = field(default_factory=dict)
     mode: str = "site"
     acknowledged: frozenset[str] = frozenset()
+    acknowledged_for: frozenset[tuple[str, str]] = frozenset()
     notes: tuple[str, ...] = ()
     identity: Mapping[str, str] = field(default_factory=dict)
     end: Mapping[str, object] | None = None
@@ -89,7 +96,17 @@ class Evidence:
         return replace(self, skipped=self.skipped | {check})
 
     def with_repair(self, repair: str, cured: bool) -> Evidence:
-        return replace(self, repairs=self.repairs + ((repair, bool(cured)),))
+        return replace(self, repairs=self.repairs + ((repair, bool(cured)),),
+                       repairs_skipped=self.repairs_skipped - {repair})
+
+    def with_skipped_repair(self, repair: str) -> Evidence:
+        """``repair`` cannot be done now: not proposed again."""
+        return replace(self, repairs_skipped=self.repairs_skipped | {repair})
+
+    def with_acknowledgement(self, caution: str, item: str | None = None) -> Evidence:
+        """``caution`` acknowledged before the instructions of ``item`` (None: of no card)."""
+        pairs = self.acknowledged_for | ({(item, caution)} if item else set())
+        return replace(self, acknowledged=self.acknowledged | {caution}, acknowledged_for=pairs)
 
     def with_nameplate(self, param: str, value: str) -> Evidence:
         return replace(self, nameplate={**self.nameplate, param: value})

@@ -39,7 +39,10 @@ Decision rule (``Settings``; tuned with ``diagnose simulate``):
 
 A check or repair whose prerequisites (``needs``) are not done is proposed
 as its first missing prerequisite. By phone only ``where: phone`` checks and
-repairs are offered, and the end is a site visit with the parts to bring.
+repairs are offered, and the end is a site visit with the parts to bring; the
+reasons then say what a question to the caller is for (the likely causes it
+tells more about) and never speak of work on site. A repair skipped (cannot be
+done now) is not proposed again.
 
 References:
     D. Heckerman, J. S. Breese, K. Rommelse, "Decision-theoretic
@@ -202,7 +205,8 @@ class RepairScore:
 
 _CHECK_STATUS = ("", "done", "unsure", "skipped", "site only", "not for this unit",
                  "preparation", "one outcome", "blocked")
-_REPAIR_STATUS = ("", "done", "site only", "blocked", "fixes nothing still possible")
+_REPAIR_STATUS = ("", "done", "site only", "blocked", "fixes nothing still possible",
+                  "skipped")
 
 
 @dataclass(frozen=True, eq=False)
@@ -686,6 +690,9 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
     rcode[(p_fix <= EPS) & (rcode == 0)] = 4
     if phone:
         rcode[~tables.repair_phone] = 2
+    for rid in evidence.repairs_skipped:
+        if rid in tables.repair_index:
+            rcode[tables.repair_index[rid]] = 5
     for rid in evidence.repairs_done:
         rcode[tables.repair_index[rid]] = 1
     usable = rcode == 0
@@ -741,11 +748,12 @@ def _decide(model: Model, evidence: Evidence, post: Posterior, settings: Setting
         return Action("done", reason="a repair cured the unit")
     if evidence.end is not None:
         return Action("done", reason="the diagnosis is closed")
+    phone = evidence.mode == "phone"
     if post.contradiction or post.unknown >= thr:
-        return _escalate(post, "the evidence fits none of the known causes")
+        return _escalate(post, _ON_PHONE["fits none"] if phone else
+                         "the evidence fits none of the known causes")
     top = pl.top
     known = top.cause != UNKNOWN_CAUSE
-    phone = evidence.mode == "phone"
     live = pl.repair_code == 0
     ratio = np.where(live, pl.p_cure / pl.repair_minutes, -np.inf)
     for_top = live & np.array([known and top.cause in model.repairs[r].fixes
@@ -753,20 +761,27 @@ def _decide(model: Model, evidence: Evidence, post: Posterior, settings: Setting
     if known and top.p >= thr:
         if for_top.any():
             best = int(np.argmax(np.where(for_top, ratio, -np.inf)))
-            return _repair_action(pl, best, f"{top.cause} is likely enough to act ({top.p:.2f})")
+            why = (f"{top.cause} is likely enough ({top.p:.2f}) for the caller to try this now"
+                   if phone else f"{top.cause} is likely enough to act ({top.p:.2f})")
+            return _repair_action(pl, best, why)
         if phone:
-            return _visit(model, evidence, post, f"{top.cause} is likely ({top.p:.2f})")
+            return _visit(model, evidence, post, f"{top.cause} is likely ({top.p:.2f}); "
+                          "it is repaired on site")
     informative = (pl.check_code == 0) & (pl.check_bits >= settings.min_bits)
     if informative.any():
         best_c = int(np.argmin(np.where(informative, pl.check_eco, np.inf)))
         if pl.check_eco[best_c] < pl.ecr:
-            return _check_action(pl, best_c, "observing first saves minutes")
+            return _check_action(pl, best_c, _phone_question(model, post, pl.check_ids[best_c])
+                                 if phone else "observing first saves minutes")
         if known and top.p >= settings.act_floor and for_top.any():
             best = int(np.argmax(np.where(for_top, ratio, -np.inf)))
-            return _repair_action(pl, best, "repairing now is cheaper")
-        return _check_action(pl, best_c, "not yet sure enough to repair")
+            return _repair_action(pl, best, _ON_PHONE["try now"] if phone else
+                                  "repairing now is cheaper")
+        return _check_action(pl, best_c, _phone_question(model, post, pl.check_ids[best_c])
+                             if phone else "not yet sure enough to repair")
     if not known:
-        return _escalate(post, "none of the known causes fits best")
+        return _escalate(post, _ON_PHONE["unknown leads"] if phone else
+                         "none of the known causes fits best")
     if phone:
         return _visit(model, evidence, post, "nothing more to learn by phone")
     worth = live & (pl.p_cure * settings.escalation_minutes >= pl.repair_minutes)
@@ -775,6 +790,33 @@ def _decide(model: Model, evidence: Evidence, post: Posterior, settings: Setting
         best = int(np.argmax(np.where(pick, ratio, -np.inf)))
         return _repair_action(pl, best, "no check left worth its minutes")
     return _escalate(post, "no repair left worth its minutes")
+
+
+#: Reasons in phone mode: no work on site is proposed, so none is spoken of.
+_ON_PHONE = {
+    "fits none": "the answers fit none of the known causes: a site visit with an "
+                 "application engineer is needed",
+    "unknown leads": "none of the known causes fits best: a site visit with an application "
+                     "engineer is needed",
+    "try now": "the caller can try this now, before a site visit is sent",
+}
+
+
+def _phone_question(model: Model, post: Posterior, check_id: str) -> str:
+    """What a question to the caller is for: the likely causes it tells more about.
+
+    >>> from diagnose.reasoning.synthetic import tiny_model
+    >>> m = tiny_model()
+    >>> e = Evidence(complaints=("will_not_release",), mode="phone")
+    >>> _phone_question(m, posterior(m, e), "listen_click")  # doctest: +NORMALIZE_WHITESPACE
+    'to find out by phone whether a site visit is needed and which parts it brings (it tells
+    more about lining_worn and fuse_blown)'
+
+    """
+    effects = model.checks[check_id].effects
+    about = [e.cause for e in post.ranking().entries if e.cause in effects][:2]
+    named = f" (it tells more about {' and '.join(about)})" if about else ""
+    return f"to find out by phone whether a site visit is needed and which parts it brings{named}"
 
 
 def _check_action(pl: Plan, i: int, reason: str) -> Action:

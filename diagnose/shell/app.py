@@ -42,6 +42,7 @@ from diagnose.shell.render import (
     percent,
     why_text,
 )
+from diagnose.shell.startup import FALLBACK_NOTICE
 
 if TYPE_CHECKING:
     from diagnose.kb.model import Check, Model, Repair
@@ -55,7 +56,11 @@ YES = frozenset({"yes", "y", "cured", "true"})
 NO = frozenset({"no", "n", "not cured", "false"})
 #: What a reading starts with: a number (one of several), or a word for an open circuit.
 _READING = re.compile(r"^\s*([+-]?(\d|\.\d)|ol\b|o\.l\.?|inf|\+inf|infinity|open|∞)", re.IGNORECASE)
-STEP_KINDS = frozenset({"answer", "reading", "unsure", "skip", "repair"})
+STEP_KINDS = frozenset({"answer", "reading", "unsure", "skip", "skip_repair", "repair"})
+#: What phone mode means, said when it starts.
+PHONE_HINT = ("Phone mode: every card is a question for the caller, safe without tools or "
+              "opening covers; the end is a recommendation: resolved, or a site visit with "
+              "the parts to bring.")
 _MAX_FAILURES = 5  # unexpected errors in a row without new input before the shell gives up
 
 
@@ -76,11 +81,15 @@ class Shell:
         reader: where answers come from (``ask(message, state, default) -> str``).
         journal_path: where the events go, for the "saved" and "repair log" lines.
         resumed: True when the session was replayed from the journal.
+        notice_shown: True when the safety notice was shown already (at a terminal
+            it is read while the pack loads, see ``startup``).
     """
 
     def __init__(self, session: Session, console: Any, reader: Any, *,
-                 journal_path: str | None = None, resumed: bool = False) -> None:
+                 journal_path: str | None = None, resumed: bool = False,
+                 notice_shown: bool = False) -> None:
         self.session = session
+        self.notice_shown = notice_shown
         self.model: Model = session.model
         self.console = console
         self.reader = reader
@@ -104,10 +113,13 @@ class Shell:
                 self.warn("the pack has changed since this session was recorded; "
                           "the ranking uses the pack as it is now")
         else:
-            self.console.print(NoticeView(self.session.notice or _FALLBACK_NOTICE))
+            if not self.notice_shown:
+                self.console.print(NoticeView(self.session.notice or FALLBACK_NOTICE))
             self.say(f"Session {self.session.session_id}: {self.model.title} "
                      f"({self.model.id} {self.model.version}), {self.session.mode} mode. "
                      "Type help for the commands.")
+        if self.session.mode == "phone":
+            self.say(PHONE_HINT, style="dim")
         failures = 0
         while True:
             try:
@@ -452,6 +464,7 @@ class Shell:
                          "Ask the caller" if phone else "Check", many=_many(chk))
 
     def _why_check(self, chk: Check, action: Action | None) -> str:
+        phone = self.session.mode == "phone"
         if action is not None and action.kind == "check" and action.id == chk.id:
             if action.target:
                 target = self.model.checks.get(action.target) or self.model.repairs.get(
@@ -459,41 +472,43 @@ class Shell:
                 name = target.title if target is not None else action.target
                 return f"it must be done first, before: {name}"
             reason = action.reason
-            base = why_text(action.bits, action.minutes)
+            base = why_text(action.bits, action.minutes, phone=phone)
             return f"{reason}: {base}" if reason else base
         try:
             x = self.session.explain_check(chk.id)
         except DiagnoseError:
             return "you chose it"
-        return f"you chose it; {why_text(x.bits, x.minutes)}"
+        return f"you chose it; {why_text(x.bits, x.minutes, phone=phone)}"
 
     def acknowledge(self, item_id: str) -> bool:
-        """Ask for the acknowledgement of pending DANGER/WARNING cautions; False when skipped."""
+        """Ask for the acknowledgement of the card's pending DANGER/WARNING cautions.
+
+        Each check or repair card asks for its own, recorded with the card's id.
+        Returns False when the person chose to skip the check or repair instead.
+        """
         pending = self.session.pending_cautions(item_id)
         if not pending:
             return True
         levels = " and ".join(sorted({c.level for c in pending},
                                      key=lambda lv: ("DANGER", "WARNING").index(lv)))
-        is_check = item_id in self.model.checks
 
         def parse(text: str) -> bool:
             word = text.lower()
             if word in ACK_WORDS:
                 return True
-            if word == "skip" and is_check:
+            if word == "skip":
                 return False
-            raise InputError("acknowledge", "type ack to confirm you have read the "
-                             f"{levels} above" + (", or skip" if is_check else ""))
+            raise InputError("acknowledge", f"type ack to confirm you have read the {levels} "
+                             "above, or skip")
 
-        ok = self.ask(f"Type ack to confirm you have read the {levels} above"
-                      f"{' (or skip)' if is_check else ''}: ", parse,
-                      answers=(("ack", "I have read the cautions"),) + (
-                          (("skip", "cannot be done now"),) if is_check else ()),
+        ok = self.ask(f"Type ack to confirm you have read the {levels} above (or skip): ", parse,
+                      answers=(("ack", "I have read the cautions"),
+                               ("skip", "cannot be done now")),
                       empty=f"type ack to confirm you have read the {levels} above")
         if not ok:
             return False
         for c in pending:
-            self.session.acknowledge(c.id)
+            self.session.acknowledge(c.id, item_id)
         self.say(f"  acknowledged: {', '.join(c.id for c in pending)}", style="dim")
         return True
 
@@ -501,7 +516,7 @@ class Shell:
         """Show the card of a check or repair; instructions only once its cautions are acknowledged.
 
         ``card(shown)`` makes the card with (True) or without (False) its
-        instructions. Returns False when the person chose to skip the check instead.
+        instructions. Returns False when the person chose to skip it instead.
         """
         if not self.session.pending_cautions(item_id):
             self.console.print(card(True))
@@ -603,32 +618,50 @@ class Shell:
             confirm = f"confirm with: {self.model.checks[rep.confirm].title}"
         return RepairCard(rep.id, rep.title, rep.minutes, tuple(rep.parts),
                           self.cautions(rep.cautions), fixes, why,
-                          rep.ask if shown else None, confirm)
+                          rep.ask if shown else None, confirm,
+                          "The caller tries" if self.session.mode == "phone" else "Repair")
 
     def repair_turn(self, repair_id: str, action: Action | None) -> None:
         s = self.session
         rep = self.model.repairs[repair_id]
         self._current = ("repair", repair_id)
-        self.present(repair_id, lambda shown: self.repair_card(rep, action, shown=shown))
+        if not self.present(repair_id, lambda shown: self.repair_card(rep, action, shown=shown)):
+            self.skip_repair(repair_id)
+            return
 
-        def parse(text: str) -> bool:
+        def parse(text: str) -> bool | None:
             low = " ".join(text.lower().split())
             if low in YES:
                 return True
             if low in NO:
                 return False
-            raise InputError("cured", "answer yes or no (or choose another step with "
-                             "do CHECK or repair REPAIR)")
+            if low == "skip":
+                return None
+            raise InputError("cured", "answer yes or no, or skip if it cannot be done now "
+                             "(or choose another step with do CHECK or repair REPAIR)")
 
-        cured = self.ask("Repair done. Is the complaint cured? (yes/no): ", parse,
-                         answers=(("yes", "cured"), ("no", "not cured")),
-                         empty="answer yes or no")
+        asked = ("Has the caller done it? Is the complaint cured?" if s.mode == "phone"
+                 else "Repair done. Is the complaint cured?")
+        cured = self.ask(f"{asked} (yes/no, skip): ", parse,
+                         answers=(("yes", "cured"), ("no", "not cured"),
+                                  ("skip", "cannot be done now: propose another step")),
+                         empty="answer yes or no (or skip)")
+        if cured is None:
+            self.skip_repair(repair_id)
+            return
         s.repair(repair_id, cured)
         self._current = None
         if cured:
             self.say(f"  {rep.title}: cured.", style="green")
         else:
             self.say(f"  {rep.title}: not cured; the ranking is updated.", style="yellow")
+
+    def skip_repair(self, repair_id: str) -> None:
+        """The repair cannot be done now (no part, no access): the planner proposes another step."""
+        self.session.skip_repair(repair_id)
+        self._current = None
+        self.say(f"  skipped {repair_id}: it is not proposed again (undo takes that back)",
+                 style="dim")
 
     # --- the end -----------------------------------------------------------------------------
     def finish(self, action: Action | None) -> bool:
@@ -649,7 +682,11 @@ class Shell:
             self.ask("Close the diagnosis with this result? (yes, or a command): ", parse,
                      answers=(("yes", "close the diagnosis"),),
                      empty="type yes to close, or a command (help lists them)")
-        s.end()
+        if s.evidence.cured:
+            result = "resolved"
+        else:
+            result = {"visit": "visit", "escalate": "escalated"}.get(action.kind, "abandoned")
+        s.end(result, parts=action.parts)
         self.say(f"Session {s.session_id} is closed.", style="bold")
         return True
 
@@ -658,12 +695,14 @@ class Shell:
         ev = s.evidence
         top = s.ranking().top
         title = self.model.causes[top.cause].title if top.cause in self.model.causes else top.title
+        phone = s.mode == "phone"
         if action.kind == "done" and ev.cured:
             cured = [r for r, c in ev.repairs if c]
             rep = self.model.repairs.get(cured[-1]) if cured else None
-            return EndView("cured", f"Cured. Cause: {title} ({percent(top.p)}).",
-                           (f"Repair that cured it: {rep.title}" if rep else "",),
-                           log=self.log_hint())
+            head = "Resolved by phone." if phone else "Cured."
+            return EndView("cured", f"{head} Cause: {title} ({percent(top.p)}).",
+                           (f"{'What' if phone else 'Repair that'} cured it: {rep.title}"
+                            if rep else "",), log=self.log_hint())
         if action.kind == "visit":
             causes = "; ".join(self.model.causes[c].title for c in action.causes
                                if c in self.model.causes)
@@ -671,8 +710,10 @@ class Shell:
                            (f"Most likely: {causes}." if causes else "", _sentence(action.reason)),
                            tuple(action.parts), self.log_hint())
         if action.kind == "escalate":
-            return EndView("unknown", "None of the known causes fits: escalate to an "
-                           "application engineer or the manufacturer.",
+            head = ("Recommendation: a site visit with an application engineer; none of the "
+                    "known causes fits." if phone else "None of the known causes fits: escalate "
+                    "to an application engineer or the manufacturer.")
+            return EndView("unknown", head,
                            (_sentence(action.reason),
                             f"Leading known cause: {title} ({percent(top.p)})."),
                            log=self.log_hint())
@@ -790,6 +831,7 @@ class Shell:
             raise InputError("undo", "nothing to undo")
         what = {"nameplate": "nameplate value", "complaint": "complaint", "answer": "answer",
                 "reading": "reading", "unsure": "unsure answer", "skip": "skip",
+                "skip_repair": "skipped repair",
                 "repair": "repair", "note": "note", "mode": "mode change",
                 "identity": "identity"}.get(event.kind, event.kind)
         detail = event.data.get("check") or event.data.get("repair") or event.data.get(
@@ -845,6 +887,8 @@ class Shell:
             return
         s.set_mode(mode)
         self.say(f"  now in {mode} mode.", style="bold")
+        if mode == "phone":
+            self.say(PHONE_HINT, style="dim")
         raise _Restart
 
     def save(self) -> None:
@@ -857,11 +901,6 @@ class Shell:
 
     def leave(self) -> None:
         raise Leave
-
-
-_FALLBACK_NOTICE = ("This tool is an aid. It does not replace the judgement of a qualified "
-                    "person. Isolate and lock out power before hands-on work, and follow local "
-                    "codes and licensed practice.")
 
 
 def answer_matches(text: str, outcomes: Sequence[Choice]) -> list[str]:
@@ -985,6 +1024,10 @@ def _overlay(args: argparse.Namespace, pack_id: str) -> Any:
 def main(args: argparse.Namespace, *, console: Any = None, reader: Any = None) -> int:
     """`diagnose start` and bare `diagnose`: a new session in the shell.
 
+    At a terminal the safety notice (from the pack's manifest) is shown at once
+    and read while the pack loads in the background (see ``startup``); from a
+    script, the pack is loaded first and the notice shown as the session starts.
+
     Raises:
         InputError: no such pack or a bad mode; KnowledgeError: the pack is broken;
         JournalError: the journal cannot be written.
@@ -995,21 +1038,43 @@ def main(args: argparse.Namespace, *, console: Any = None, reader: Any = None) -
     ref = getattr(args, "pack", None) or DEFAULT_PACK
     mode = getattr(args, "mode", None) or "site"
     console = console or _console()
-    if console.is_terminal:  # reading and checking a pack takes a moment
-        console.print(f"Loading the pack {ref} ...", style="dim", markup=False)
-    model = load(args, ref)
+    holder: list[Shell] = []
+    notice = None
+    if reader is None and sys.stdin.isatty():
+        from diagnose.shell.startup import manifest_notice
+
+        notice = manifest_notice(ref, getattr(args, "packs", None))
+    if notice is not None:
+        from diagnose.shell.render import NoticeView
+        from diagnose.shell.startup import Preload, read_notice_while_loading
+
+        console.print(NoticeView(notice))
+        reader = _reader(console, holder)  # imported first: the loading then has the CPU
+        loading = Preload(lambda: load(args, ref))
+        try:
+            model = read_notice_while_loading(console, reader, notice, loading)
+        except EOFError:
+            console.print("Left before the diagnosis started: nothing was recorded.",
+                          markup=False)
+            return 0
+    else:
+        if console.is_terminal:  # reading and checking a pack takes a moment
+            console.print(f"Loading the pack {ref} ...", style="dim", markup=False)
+        model = load(args, ref)
     journal, path = _journal(args)
     try:
         if journal is not None:
             from diagnose.journal.recorder import start_session
 
             session = start_session(journal, model, mode=mode,
+                                    who=getattr(args, "who", None) or None,
                                     overlay=_overlay(args, model.id))
         else:
             from diagnose.session import MemorySink, Session
 
             session = Session(model, mode=mode, sink=MemorySink())
-        return _run(session, console, reader, path, resumed=False)
+        return _run(session, console, reader, path, resumed=False, holder=holder,
+                    notice_shown=notice is not None)
     finally:
         if journal is not None:
             journal.close()
@@ -1019,13 +1084,15 @@ def resume(args: argparse.Namespace, session_id: str, *, console: Any = None,
            reader: Any = None) -> int:
     """Continue session ``session_id`` from the journal in the shell (for `diagnose resume ID`).
 
-    The pack is loaded by the id the session recorded, or from ``args.pack`` when
-    given (``args.packs`` and the learned overlay apply as for `start`); the events
-    are replayed and new ones are appended to the same session.
+    The pack is ``args.pack`` when given; else the id the session recorded, on the
+    search path (``args.packs``, as for `start`); else the folder the session
+    recorded (a pack given by folder at the start). The learned overlay applies
+    as for `start`; the events are replayed and new ones are appended to the
+    same session.
 
     Raises:
         JournalError: no journal, no such session, or the session is closed;
-        InputError: the session was recorded with another pack.
+        InputError: the pack cannot be found, or the session was recorded with another pack.
     """
     from diagnose.commands.kb import load
     from diagnose.journal.recorder import resume_session
@@ -1036,19 +1103,44 @@ def resume(args: argparse.Namespace, session_id: str, *, console: Any = None,
     console = console or _console()
     try:
         info = journal.session(session_id)
-        # The pack by the id the session recorded, or the folder the caller names (a pack
-        # given by folder at the start is not on the search path); replay checks the id.
-        model = load(args, getattr(args, "pack", None) or info.pack_id)
+        ref = getattr(args, "pack", None) or _recorded_pack(args, journal, session_id,
+                                                             info.pack_id)
+        model = load(args, ref)  # replay checks that it is the pack the session recorded
         session = resume_session(journal, session_id, model)
         return _run(session, console, reader, path, resumed=True)
     finally:
         journal.close()
 
 
+def _recorded_pack(args: argparse.Namespace, journal: Any, session_id: str,
+                   pack_id: str) -> str:
+    """The pack a session is resumed with: its id on the search path, else its recorded folder.
+
+    Raises:
+        InputError: neither is there (the message says where the folder was).
+    """
+    from diagnose.kb.locate import find_pack
+
+    try:
+        find_pack(pack_id, getattr(args, "packs", None))
+        return pack_id
+    except InputError as exc:
+        events = journal.load_events(session_id)
+        first = events[0].data if events and events[0].kind == "notice" else {}
+        folder = str(first.get("path") or "")
+        if not folder:
+            raise
+        if not os.path.isdir(folder):
+            raise InputError("pack", f"no pack {pack_id!r} on the search path, and the folder "
+                             f"the session was started with ({folder}) is gone; name the pack "
+                             "with --packs") from exc
+        return folder
+
+
 def _run(session: Session, console: Any, reader: Any, path: str | None, *,
-         resumed: bool) -> int:
-    holder: list[Shell] = []
+         resumed: bool, holder: list[Shell] | None = None, notice_shown: bool = False) -> int:
+    holder = [] if holder is None else holder
     shell = Shell(session, console, reader or _reader(console, holder), journal_path=path,
-                  resumed=resumed)
+                  resumed=resumed, notice_shown=notice_shown)
     holder.append(shell)
     return shell.run()

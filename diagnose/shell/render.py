@@ -126,13 +126,16 @@ class CautionView:
         yield line
 
 
-def why_text(gain: float | None, minutes: float, *, for_repair: bool = False) -> str:
+def why_text(gain: float | None, minutes: float, *, phone: bool = False) -> str:
     """Why a check is proposed, in plain words, from its expected information per minute.
 
-    ``gain`` is the expected reduction of uncertainty (bits) from the check.
+    ``gain`` is the expected reduction of uncertainty (bits) from the check;
+    ``phone``: a question to a caller, not work on site.
 
     >>> why_text(0.9, 2)
     'it is expected to settle a lot about the cause (0.9 bits) for 2 min of work (0.45 bits/min)'
+    >>> why_text(0.9, 2, phone=True)
+    'it is expected to settle a lot about the cause (0.9 bits) for a 2 min question (0.45 bits/min)'
     """
     if gain is None:
         return "it is the next step of the plan"
@@ -145,8 +148,9 @@ def why_text(gain: float | None, minutes: float, *, for_repair: bool = False) ->
     else:
         amount = "very little"
     rate = gain / minutes if minutes > 0 else gain
+    cost = f"a {minutes_text(minutes)} question" if phone else f"{minutes_text(minutes)} of work"
     return (f"it is expected to settle {amount} about the cause ({gain:.2g} bits) "
-            f"for {minutes_text(minutes)} of work ({rate:.2g} bits/min)")
+            f"for {cost} ({rate:.2g} bits/min)")
 
 
 @dataclass(frozen=True)
@@ -263,10 +267,11 @@ class RepairCard:
     why: str = ""
     instructions: str | None = None
     confirm: str = ""
+    label: str = "Repair"
 
     def _hint(self) -> str:
         confirm = f" ({self.confirm})" if self.confirm else ""
-        return f"When done: is the complaint cured{confirm}? yes / no"
+        return f"When done: is the complaint cured{confirm}? yes / no (skip: cannot be done now)"
 
     def instructions_view(self) -> InstructionsView:
         """The instructions alone (after the acknowledgement of the cautions)."""
@@ -277,7 +282,7 @@ class RepairCard:
                  [("Parts", "; ".join(self.parts) if self.parts else "none")]]
         if self.fixes:
             lines.append([("Fixes", "; ".join(self.fixes))])
-        yield _card(f"Repair: {self.title}", self.id, self.cautions, self.why, lines,
+        yield _card(f"{self.label}: {self.title}", self.id, self.cautions, self.why, lines,
                     self.instructions, self._hint())
 
 
