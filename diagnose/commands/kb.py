@@ -79,14 +79,14 @@ def load(args: argparse.Namespace, ref: str) -> Any:
     from diagnose.kb.loader import load_model
     from diagnose.kb.locate import find_pack
 
-    learned = None
-    try:
-        from diagnose.kb.loader import read_pack
+    from diagnose.errors import DiagnoseError
+    from diagnose.kb.loader import read_pack
 
+    try:
         src, _ = read_pack(find_pack(ref, args.packs))
-        learned = _learned(args, src.id)
-    except Exception:  # the loader reports real problems below
-        learned = None
+    except (DiagnoseError, OSError):  # load_model below reports the real problem
+        return load_model(ref, search=args.packs)
+    learned = _learned(args, src.id)
     return load_model(ref, search=args.packs, learned=learned.priors if learned else None)
 
 

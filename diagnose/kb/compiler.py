@@ -213,9 +213,8 @@ def _units():
 def _parameter(it: _Item, ctx: _Ctx) -> Parameter:
     d = it.data
     unit = str(d.get("unit", "") or "")
-    lo = _num(d.get("min"), float("nan"))
-    hi = _num(d.get("max"), float("nan"))
-    lo_, hi_ = (None if lo != lo else lo), (None if hi != hi else hi)  # NaN: not given
+    lo_ = _num(d.get("min"), 0.0) if "min" in d else None
+    hi_ = _num(d.get("max"), 0.0) if "max" in d else None
     choices = tuple(str(c) for c in _list(d.get("choices")))
     unit_ok = True
     if unit:
@@ -360,7 +359,6 @@ def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple
                   "it computes from given values only", it.at("measure"), "evaluator")
         return None, spec
     unit = str(m.get("unit", rspec.unit))
-    units = _units()
     if "unit" in m:
         try:
             if not _fits(unit, rspec.unit):
