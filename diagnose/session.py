@@ -691,6 +691,11 @@ def _step(d: Mapping[str, Any]) -> Step:
     extra = set(d) - {"check", "answer", "skip", "repair", "cured"}
     if extra:
         raise InputError("step", f"unknown key {min(extra)!r}")
+    for key in ("check", "repair"):
+        if isinstance(d.get(key), (Mapping, list, tuple, set)):
+            raise InputError("step", f"`{key}` must be an id, got {d[key]!r}")
+    if "skip" in d and not isinstance(d["skip"], bool):
+        raise InputError("skip", f"`skip` is true or false, got {d['skip']!r}")
     if "repair" in d and d.get("skip") is True:
         if "cured" in d:
             raise InputError(str(d["repair"]), "a skipped repair has no `cured`")

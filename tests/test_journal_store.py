@@ -166,6 +166,18 @@ def test_readonly_never_creates(tmp_path):
     assert not (tmp_path / "none.sqlite3").exists()
 
 
+@pytest.mark.parametrize("command", [["sessions"], ["stats"], ["report", "1"]])
+def test_reading_an_empty_file_given_as_journal(tmp_path, capsys, command):
+    from diagnose.cli import main
+
+    empty = tmp_path / "empty.sqlite3"
+    empty.write_bytes(b"")
+    assert main(["--journal", str(empty)] + command) == 1
+    err = capsys.readouterr().err
+    assert "is empty: nothing was recorded" in err and len(err.strip().splitlines()) == 1
+    assert empty.read_bytes() == b""
+
+
 def test_backup_is_a_full_copy(filled, tmp_path):
     with Journal(filled, readonly=True) as j:
         j.backup(tmp_path / "copy.sqlite3")

@@ -21,6 +21,28 @@ MINI = Path(__file__).parent / "fixtures" / "mini"
 SHIPPED = ["electrical-supply", "spring-applied-brake", "permanent-magnet-brake"]
 
 
+def test_kb_commands_on_a_pack_folder_that_cannot_be_listed(tmp_path, monkeypatch, capsys):
+    import shutil
+
+    folder = tmp_path / "locked"
+    shutil.copytree(MINI, folder)
+    listing = Path.iterdir
+
+    def iterdir(self):  # as for a folder without read permission (root may read anything)
+        if self.name == "locked":
+            raise PermissionError(13, "Permission denied", str(self))
+        return listing(self)
+
+    monkeypatch.setattr(Path, "iterdir", iterdir)
+    assert main(["kb", "lint", str(folder)]) == 1
+    assert "cannot read the folder: Permission denied" in capsys.readouterr().out
+    assert main(["kb", "show", str(folder)]) == 1
+    err = capsys.readouterr().err
+    assert "cannot read the folder" in err and len(err.strip().splitlines()) == 1
+    assert main(["--packs", str(folder), "kb", "list"]) == 0  # the folder is passed over
+    assert "Traceback" not in capsys.readouterr().err
+
+
 def _strip(model):
     """Entities without their sources, for comparing two loads of the same knowledge."""
 

@@ -111,3 +111,9 @@ def test_learn_without_journal(tmp_path, capsys):
     argv = ["--journal", str(tmp_path / "none.sqlite3"), "learn", str(FIXTURES / "mini")]
     assert main(argv) == 1
     assert "no journal" in capsys.readouterr().err
+
+
+def test_journal_path_under_a_file_has_no_learned_priors(tmp_path):
+    not_a_folder = tmp_path / "notes.txt"
+    not_a_folder.write_text("a file, not a folder")
+    assert read_overlay(not_a_folder / "learned" / "mini-brake.json") is None

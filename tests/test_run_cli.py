@@ -90,6 +90,22 @@ def test_missing_answers_file(capsys, tmp_path):
     assert code == 2 and "cannot read" in err
 
 
+@pytest.mark.parametrize("step", ["{check: [1, 2], answer: {a: 1}}", "{repair: [1], skip: true}"])
+def test_answers_file_with_a_list_as_check_or_repair_id(capsys, tmp_path, step):
+    path = tmp_path / "bad.yaml"
+    path.write_text(f"steps:\n  - {step}\n")
+    code, _, err = run(capsys, "run", MINI, "--answers", str(path), "--no-journal")
+    assert code == 2 and "step 1" in err and "must be an id" in err
+    assert len(err.strip().splitlines()) == 1
+
+
+def test_answers_file_nested_too_deeply(capsys, tmp_path):
+    path = tmp_path / "deep.yaml"
+    path.write_text("steps: " + "[" * 5000 + "]" * 5000 + "\n")
+    code, _, err = run(capsys, "run", MINI, "--answers", str(path), "--no-journal")
+    assert code == 2 and "nested too deeply" in err and len(err.strip().splitlines()) == 1
+
+
 @pytest.mark.skipif(not SPRING.is_dir(), reason="the spring-applied-brake pack is not there")
 @pytest.mark.parametrize("example", sorted((ROOT / "examples").glob("*.yaml")),
                          ids=lambda p: p.stem)
@@ -99,3 +115,22 @@ def test_shipped_examples_run_on_the_spring_applied_brake_pack(capsys, example):
     data = json.loads(out)
     assert data["ranking"] and data["next"]["action"] in ("done", "visit", "repair", "check")
     assert len(data["steps"]) >= 3
+
+
+def test_an_empty_answers_file_is_refused_in_one_line(tmp_path, capsys):
+    from diagnose.cli import main
+
+    empty = tmp_path / "empty.yaml"
+    empty.write_text("\n")
+    assert main(["run", "spring-applied-brake", "--answers", str(empty), "--no-journal"]) == 2
+    err = capsys.readouterr().err
+    assert "is empty" in err and len(err.strip().splitlines()) == 1
+
+
+def test_skip_must_be_true_or_false(tmp_path, capsys):
+    from diagnose.cli import main
+
+    f = tmp_path / "a.yaml"
+    f.write_text("complaints: [will_not_release]\nsteps:\n  - {check: coil_voltage, skip: 'no'}\n")
+    assert main(["run", "spring-applied-brake", "--answers", str(f), "--no-journal"]) == 2
+    assert "true or false" in capsys.readouterr().err

@@ -178,6 +178,16 @@ def test_named_file_must_be_a_yaml_file_of_the_pack(pack, tmp_path_factory, monk
     assert written.resolve() == (pack / "faults.yaml").resolve()
 
 
+def test_kb_new_appending_to_a_binary_file_or_a_folder(pack, capsys):
+    (pack / "binary.yaml").write_bytes(b"\xff\xfe\x00 not text")
+    (pack / "folder.yaml").mkdir()
+    for name, reason in (("binary.yaml", "not UTF-8 text"), ("folder.yaml", "cannot read")):
+        code = main(["kb", "new", "cause", "a", "--pack", str(pack), "--file", name])
+        err = capsys.readouterr().err
+        assert code == 2 and reason in err and len(err.strip().splitlines()) == 1
+    assert (pack / "binary.yaml").read_bytes() == b"\xff\xfe\x00 not text"
+
+
 def test_pack_folder_defaults_to_a_folder_with_pack_yaml(pack, tmp_path_factory):
     assert pack_folder(None, pack) == pack
     with pytest.raises(InputError):

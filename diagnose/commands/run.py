@@ -75,6 +75,8 @@ def read_answers(path: str) -> dict[str, Any]:
     if doc is None or errors:
         raise InputError("answers", str(errors[0]) if errors else f"{path} is empty")
     data = doc.data
+    if not data and not text.strip():
+        raise InputError("answers", f"{path} is empty")
     if not isinstance(data, dict):
         raise InputError("answers", f"{path}: expected a mapping with nameplate, complaints, steps")
     extra = set(data) - ANSWER_KEYS

@@ -132,7 +132,7 @@ def read_overlay(path: str | os.PathLike[str]) -> Overlay | None:
     source = Path(path)
     try:
         data = json.loads(source.read_text(encoding="utf-8"))
-    except FileNotFoundError:
+    except (FileNotFoundError, NotADirectoryError):  # nothing learned there (yet)
         return None
     except (OSError, ValueError) as exc:
         raise JournalError(f"the learned priors {source} cannot be read ({exc}); run "

@@ -295,7 +295,9 @@ class Journal:
             if not self.path.exists():
                 raise JournalError(f"there is no journal at {self.path} yet: nothing was "
                                    "recorded there")
-            inspect(self.path)
+            if inspect(self.path) == 0:  # an empty file: a journal not written to yet
+                raise JournalError(f"the journal {self.path} is empty: nothing was recorded "
+                                   "there yet")
             try:
                 self._conn = _connect_ro(self.path)
             except sqlite3.Error as exc:

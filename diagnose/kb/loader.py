@@ -45,11 +45,16 @@ def display_path(path: Path | str) -> str:
 def read_pack(folder: Path) -> tuple[PackSource, list[Problem]]:
     """Read ``pack.yaml`` first, then every other ``*.yaml``/``*.yml`` file, sorted by name."""
     problems: list[Problem] = []
-    files = [folder / MANIFEST] + sorted(
-        p for p in folder.iterdir()
-        if p.suffix in (".yaml", ".yml") and p.name != MANIFEST and p.is_file()
-    )
     source = PackSource(id=folder.name, folder=display_path(folder))
+    try:
+        files = [folder / MANIFEST] + sorted(
+            p for p in folder.iterdir()
+            if p.suffix in (".yaml", ".yml") and p.name != MANIFEST and p.is_file()
+        )
+    except OSError as exc:
+        problems.append(Problem("error", f"cannot read the folder: {exc.strerror}",
+                                Source(source.folder), "io"))
+        return source, problems
     for f in files:
         shown = display_path(f)
         try:

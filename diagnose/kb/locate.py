@@ -52,10 +52,18 @@ def available(extra: list[str] | None = None) -> dict[str, Path]:
     for d in search_path(extra):
         if not d.is_dir():
             continue
-        for sub in sorted(d.iterdir()):
-            if (sub / MANIFEST).is_file():
-                pid = _manifest_id(sub) or sub.name
-                found.setdefault(pid, sub)
+        try:
+            subs = sorted(d.iterdir())
+        except OSError:  # a folder we may not list holds no pack we can use
+            continue
+        for sub in subs:
+            try:
+                if not (sub / MANIFEST).is_file():
+                    continue
+            except OSError:
+                continue
+            pid = _manifest_id(sub) or sub.name
+            found.setdefault(pid, sub)
     return found
 
 

@@ -211,7 +211,11 @@ def write_skeleton(
         text = skeleton_file(kind, id, evaluator=evaluator)
     else:
         target = _pack_file(folder, Path(file))
-        old = target.read_text(encoding="utf-8") if target.exists() else ""
+        try:
+            old = target.read_text(encoding="utf-8") if target.exists() else ""
+        except (OSError, UnicodeDecodeError) as exc:
+            reason = getattr(exc, "strerror", None) or "not UTF-8 text"
+            raise InputError("--file", f"cannot read {target}: {reason}") from None
         text = append_entry(old, KINDS[kind], item) if old.strip() else \
             skeleton_file(kind, id, evaluator=evaluator)
     try:

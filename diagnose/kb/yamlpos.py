@@ -81,6 +81,8 @@ def read_yaml(text: str, path: str) -> tuple[Document | None, list[Problem]]:
         return None, [Problem("error", f"YAML syntax: {what}", src, "yaml")]
     except yaml.YAMLError as exc:
         return None, [Problem("error", f"YAML: {exc}", Source(path), "yaml")]
+    except RecursionError:
+        return None, [Problem("error", "YAML: nested too deeply", Source(path), "yaml")]
     finally:
         loader.dispose()
 
