@@ -103,7 +103,9 @@ def test_answers_file_nested_too_deeply(capsys, tmp_path):
     path = tmp_path / "deep.yaml"
     path.write_text("steps: " + "[" * 5000 + "]" * 5000 + "\n")
     code, _, err = run(capsys, "run", MINI, "--answers", str(path), "--no-journal")
-    assert code == 2 and "nested too deeply" in err and len(err.strip().splitlines()) == 1
+    # our own limit ("nested too deeply") or libyaml's ("maximum nesting depth"), by version
+    assert code == 2 and "nest" in err and len(err.strip().splitlines()) == 1
+    assert "Traceback" not in err
 
 
 @pytest.mark.skipif(not SPRING.is_dir(), reason="the spring-applied-brake pack is not there")
