@@ -48,7 +48,7 @@ def test_per_complaint_figures(no_simulator):
     assert two.cut_sets == (("x", "y"), ("x", "z"), ("y", "z"))
     # OR of independent causes: 1 - 0.97 * 0.99 * 0.98
     assert stuck.probability == pytest.approx(1 - 0.97 * 0.99 * 0.98)
-    assert stuck.rare_event == pytest.approx(0.06)
+    assert stuck.rare_event == pytest.approx(0.06)  # NUREG-0492: sum of q = 0.03 + 0.01 + 0.02
     assert [i.cause for i in stuck.importances] == ["x", "y", "z"]
     site = stuck.testability["site"]
     assert [g.causes for g in site.groups] == [("x", "y")]

@@ -12,9 +12,9 @@ from __future__ import annotations
 
 import argparse
 import json
-import sys
 from typing import Any
 
+from diagnose.commands import write_output
 from diagnose.errors import InputError, JournalError
 
 
@@ -125,17 +125,6 @@ def recorded_folder(events: list[Any]) -> str:
     return folder if folder and Path(folder).is_dir() else ""
 
 
-def _write(text: str, output: str | None) -> None:
-    if not output:
-        sys.stdout.write(text)
-        return
-    try:
-        with open(output, "w", encoding="utf-8") as fh:
-            fh.write(text)
-    except OSError as exc:
-        raise InputError("--output", f"cannot write {output}: {exc.strerror}") from None
-
-
 # --- handlers ------------------------------------------------------------------------------
 
 
@@ -212,7 +201,7 @@ def _report(args: argparse.Namespace) -> int:
             found = _model(args, folder) if folder else None
             model = found if getattr(found, "id", None) == info.pack_id else None
         record = session_record(journal, info.id, model)
-    _write(render_report(record, args.format), args.output)
+    write_output(render_report(record, args.format), args.output)
     return 0
 
 

@@ -8,6 +8,8 @@ import sys
 from importlib import import_module
 from typing import Any
 
+from diagnose.commands import write_output
+
 
 def register(sub: Any) -> None:
     kb = sub.add_parser("kb", help="work on knowledge packs (lint, show, graph, schema, test, ...)",
@@ -76,11 +78,9 @@ def _learned(args: argparse.Namespace, pack: str) -> Any:
 
 def load(args: argparse.Namespace, ref: str) -> Any:
     """Load pack ``ref`` as the command line asks (search folders, learned overlay)."""
-    from diagnose.kb.loader import load_model
-    from diagnose.kb.locate import find_pack
-
     from diagnose.errors import DiagnoseError
-    from diagnose.kb.loader import read_pack
+    from diagnose.kb.loader import load_model, read_pack
+    from diagnose.kb.locate import find_pack
 
     try:
         src, _ = read_pack(find_pack(ref, args.packs))
@@ -170,31 +170,18 @@ def _grow(tree: Any, gate: Any, model: Any) -> None:
             _grow(tree.add(f"{ev.title} [dim]{ev.id} ({label})[/]"), ev, model)
 
 
-def _write(text: str, output: str | None) -> None:
-    if output:
-        from diagnose.errors import InputError
-
-        try:
-            with open(output, "w", encoding="utf-8") as fh:
-                fh.write(text)
-        except OSError as exc:
-            raise InputError("--output", f"cannot write {output}: {exc.strerror}") from None
-    else:
-        sys.stdout.write(text)
-
-
 def _graph(args: argparse.Namespace) -> int:
     from diagnose.kb.export import export
 
     model = load(args, args.pack)
-    _write(export(model.graph, args.format), args.output)
+    write_output(export(model.graph, args.format), args.output)
     return 0
 
 
 def _schema(args: argparse.Namespace) -> int:
     from diagnose.kb.schema import pack_schema
 
-    _write(json.dumps(pack_schema(), indent=2) + "\n", args.output)
+    write_output(json.dumps(pack_schema(), indent=2) + "\n", args.output)
     return 0
 
 

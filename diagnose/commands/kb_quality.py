@@ -71,9 +71,9 @@ def analyze_command(args: argparse.Namespace) -> int:
     result = analyze(model, complaint=args.complaint, threshold=args.threshold,
                      effort=not args.no_effort, runs=args.runs)
     if args.json:
-        from diagnose.commands.kb import _write  # the kb group's one writer (stdout or FILE)
+        from diagnose.commands import write_output
 
-        _write(json.dumps(result.to_dict(), indent=2) + "\n", args.output)
+        write_output(json.dumps(result.to_dict(), indent=2) + "\n", args.output)
         if args.output:
             print(f"wrote {args.output}", file=sys.stderr)
     elif args.format or args.output:
