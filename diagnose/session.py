@@ -27,6 +27,7 @@ ack         caution, item (the check or repair whose card it was acknowledged
 repair      repair, cured
 note        text
 mode        mode ("site" or "phone")
+state       state, value (the technician says the unit is now so: power restored...)
 end         result, cause, p, repair, parts, text
 undo        index (of the event undone), kind (of that event)
 =========== ===================================================================
@@ -68,12 +69,14 @@ from diagnose.reasoning.planner import (
     nameplate_value,
     plan,
 )
+from diagnose.reasoning.nameplate import only_if_matches, parameter_needed
 from diagnose.reasoning.posterior import Posterior, Ranking, posterior
+from diagnose.reasoning.unitstate import setup_steps, unit_state
 
 EVENT_KINDS = ("notice", "identity", "nameplate", "complaint", "answer", "reading", "unsure",
-               "skip", "skip_repair", "ack", "repair", "note", "mode", "end", "undo")
+               "skip", "skip_repair", "ack", "repair", "note", "mode", "state", "end", "undo")
 UNDOABLE = frozenset({"identity", "nameplate", "complaint", "answer", "reading", "unsure",
-                      "skip", "skip_repair", "repair", "note", "mode"})
+                      "skip", "skip_repair", "repair", "note", "mode", "state"})
 END_RESULTS = ("resolved", "visit", "escalated", "abandoned")
 
 
@@ -162,6 +165,8 @@ def apply(evidence: Evidence, event: Event) -> Evidence:
         return replace(evidence, notes=evidence.notes + (str(d.get("text", "")),))
     if k == "mode":
         return evidence.with_mode(d["mode"])
+    if k == "state":
+        return evidence.with_state(str(d["state"]), str(d["value"]))
     if k == "end":
         return replace(evidence, end=dict(d))
     return evidence
@@ -370,7 +375,7 @@ class Session:
             raise InputError(check_id, f"{text!r} is not an outcome; expected one of "
                                        f"{', '.join(chk.outcomes)} (or unsure)")
         verdict = self._evaluate(chk, text)
-        weights = dict(verdict.weights) if verdict.weights else {verdict.verdict: 1.0}
+        weights = finding_weights(chk, verdict)
         bad = [o for o in weights if o not in chk.outcomes]
         if bad:
             raise InputError(check_id, f"the verdict {bad[0]!r} is not an outcome of this check")
@@ -496,6 +501,61 @@ class Session:
         if not str(text).strip():
             raise InputError("note", "empty note")
         return self._record("note", {"text": str(text).strip()})
+
+    def set_state(self, state_id: str, value: str) -> Event:
+        """The technician says the unit is now ``state_id = value`` (power restored, brake refitted).
+
+        Raises:
+            InputError: a state or value the pack does not declare.
+        """
+        self._open()
+        var = self.model.states.get(state_id)
+        if var is None:
+            known = ", ".join(self.model.states) or "none"
+            raise InputError("state", f"unknown state {state_id!r}; known: {known}")
+        if value not in var.values:
+            raise InputError(state_id, f"expected one of {', '.join(var.values)}, got {value!r}")
+        return self._record("state", {"state": state_id, "value": value})
+
+    def unit_state(self) -> dict[str, str]:
+        """The state of the unit now (see :mod:`diagnose.reasoning.unitstate`)."""
+        return unit_state(self.model, self._evidence)
+
+    def setup_for(self, check_id: str) -> tuple[str, ...]:
+        """What the unit's state needs first for ``check_id``, in words, with the minutes."""
+        chk = self._check(check_id)
+        state = self.unit_state()
+        out = []
+        for var, value in setup_steps(self.model, state, chk.requires):
+            sv = self.model.states[var]
+            minutes = sv.setup.get(value)
+            extra = f" ({minutes:g} min)" if minutes is not None else " (no setup step)"
+            out.append(f"{sv.title.lower()}: {sv.values.get(value, value)}{extra}")
+        return tuple(out)
+
+    def open_parameters(self) -> tuple[str, ...]:
+        """Nameplate questions still to ask, in the pack's order: not answered and still needed.
+
+        A question that cannot matter any more for this unit (AC volts after
+        "converter") is not asked (see :mod:`diagnose.reasoning.nameplate`).
+        """
+        ev = self._evidence
+        return tuple(p for p in self.model.parameters
+                     if p not in ev.nameplate and parameter_needed(self.model, ev, p))
+
+    def repair_observations(self, repair_id: str) -> tuple[Check, ...]:
+        """Checks in plain sight during ``repair_id`` still worth answering (no extra minutes)."""
+        rep = self.model.repairs.get(repair_id)
+        if rep is None:
+            raise InputError("repair", f"unknown repair {repair_id!r}")
+        ev = self._evidence
+        out = []
+        for cid in rep.observes:
+            chk = self.model.checks.get(cid)
+            if chk is None or cid in ev.done or not only_if_matches(self.model, ev, chk):
+                continue
+            out.append(chk)
+        return tuple(out)
 
     def set_mode(self, mode: str) -> Event:
         """Switch between "site" and "phone"."""
@@ -642,6 +702,35 @@ class Session:
         session = cls(model, mode=mode, max_faults=max_faults, sink=sink,
                       session_id=session_id, clock=clock, settings=settings, _events=evs)
         return session
+
+
+def finding_weights(chk: Check, verdict: Verdict) -> dict[str, float]:
+    """The outcome weights of a reading's verdict on ``chk``.
+
+    A signature the check does not list counts as its plain verdict. A plain
+    low or high that may hide a signature the inputs could not judge (see
+    ``Verdict.unjudged``) counts as "this or that" (virtual evidence with the
+    same weight on both), so that neither reading of it is favoured.
+    """
+    from diagnose.physics.registry import EVALUATORS
+
+    spec = EVALUATORS.get(verdict.evaluator)
+    base = dict(verdict.weights) if verdict.weights else {verdict.verdict: 1.0}
+    out: dict[str, float] = {}
+    for outcome, weight in base.items():
+        if outcome not in chk.outcomes and spec is not None:
+            sig = spec.signature(outcome) if hasattr(spec, "signature") else None
+            outcome = (sig.fallback if sig is not None and sig.fallback else None) \
+                or verdict.fallback or outcome
+        out[outcome] = out.get(outcome, 0.0) + weight
+        for name in verdict.unjudged:
+            sig = spec.signature(name) if spec is not None else None
+            hides = sig is not None and (sig.fallback == outcome or (
+                sig.fallback is None and outcome in ("low", "high")))
+            if hides and name in chk.outcomes:
+                out[name] = out.get(name, 0.0) + weight
+    total = sum(out.values())
+    return {o: w / total for o, w in out.items()} if total > 0 else out
 
 
 def normalise_parameter(param: Parameter, text: Any) -> str:

@@ -79,16 +79,38 @@ def test_entropy_bound():
 
 
 def test_effort_from_a_simulator(monkeypatch):
-    def fake(model, complaint, bound, runs):
+    def fake(model, complaint, bound, runs, unknown_rate):
         return Effort(True, expected_minutes=42.0, expected_checks=2.5, chart_minutes=60.0,
-                      chart_checks=3.0, runs=runs, **bound)
+                      chart_checks=3.0, runs=runs, unknown_rate=unknown_rate,
+                      escalated_when_unknown=0.75, wrong_repairs_when_unknown=0.5,
+                      chart_escalated_when_unknown=0.0, chart_wrong_repairs_when_unknown=2.0,
+                      **bound)
 
     monkeypatch.setattr(analysis_module, "_simulator", lambda: fake)
     result = analyze(_model(), complaint="stuck", runs=7)
     assert [c.complaint for c in result.complaints] == ["stuck"]
     e = result.complaints[0].effort
     assert (e.expected_minutes, e.chart_minutes, e.runs) == (42.0, 60.0, 7)
-    assert "42.0" in render_analysis(result, "md")
+    assert e.unknown_rate == analysis_module.UNKNOWN_RATE
+    md = render_analysis(result, "md")
+    assert "42.0" in md
+    assert '| planner (simulated) | 75% | 0.5 |' in md  # the fake's figures
+    assert '| chart (simulated) | 0% | 2.0 |' in md
+    html = render_analysis(result, "html")
+    assert '<td class="n">75%</td><td class="n">0.5</td>' in html
+    con = Console(file=io.StringIO(), width=80, color_system=None)
+    con.print(result)
+    text = " ".join(con.file.getvalue().split())
+    assert "escalated or 'unknown' first: planner 75%, chart 0%" in text
+    assert "repairs in vain: planner 0.5, chart 2.0" in text
+    rate = analyze(_model(), complaint="stuck", unknown_rate=0.0).complaints[0].effort
+    assert rate.unknown_rate == 0.0
+
+
+@pytest.mark.parametrize("rate", [-0.1, 1.0])
+def test_bad_unknown_rate_is_an_input_error(rate):
+    with pytest.raises(InputError):
+        analyze(_model(), unknown_rate=rate)
 
 
 def test_unknown_complaint_is_an_input_error():
@@ -236,6 +258,19 @@ def test_command_line_reports(twins, tmp_path, capsys):
     assert "unknown complaint" in capsys.readouterr().err
     assert main(["kb", "analyze", str(twins), "--no-effort"]) == 0
     assert "Brake will not release" in capsys.readouterr().out
+    assert main(["kb", "analyze", str(twins), "--no-effort", "--unknown-rate", "1.5"]) == 2
+    assert "--unknown-rate" in capsys.readouterr().err
+
+
+def test_command_line_unknown_rate_in_json(twins, capsys):
+    pytest.importorskip("diagnose.reasoning.simulate")
+    assert main(["kb", "analyze", str(twins), "--json", "--runs", "10",
+                 "--unknown-rate", "0.3"]) == 0
+    effort = json.loads(capsys.readouterr().out)["complaints"][0]["effort"]
+    assert effort["unknown_rate"] == 0.3
+    assert 0.0 <= effort["escalated_when_unknown"] <= 1.0
+    assert effort["wrong_repairs_when_unknown"] >= 0.0
+    assert effort["chart_wrong_repairs_when_unknown"] >= 0.0
 
 
 # --- the real simulator -------------------------------------------------------------------
@@ -259,6 +294,20 @@ def test_effort_from_the_simulator_on_the_complaints_own_causes():
     assert e.available and e.runs == 10
     assert e.expected_minutes > 0 and e.chart_minutes > 0 and e.expected_checks >= 0
     assert e.bound_minutes is not None and e.cured is not None
+
+
+def test_simulated_effort_on_calls_with_a_cause_outside_the_pack():
+    pytest.importorskip("diagnose.reasoning.simulate")
+    from diagnose.reasoning.synthetic import tiny_model
+
+    e = analyze(tiny_model(), complaint="slips", runs=20, unknown_rate=0.4).complaints[0].effort
+    assert e.unknown_rate == 0.4 and "outside the pack" in e.note
+    for share in (e.escalated_when_unknown, e.chart_escalated_when_unknown):
+        assert 0.0 <= share <= 1.0
+    assert e.wrong_repairs_when_unknown >= 0.0 and e.chart_wrong_repairs_when_unknown >= 0.0
+    none = analyze(tiny_model(), complaint="slips", runs=10, unknown_rate=0.0)
+    e0 = none.complaints[0].effort
+    assert e0.escalated_when_unknown is None and e0.wrong_repairs_when_unknown is None
 
 
 # --- the shipped packs: the analysis runs on each (its findings are the trainers' to fix) ----

@@ -101,6 +101,7 @@ def test_readable_output(capsys):
 SAMPLE_ARGS = {
     "coil": ["--rated-voltage", "24V", "--rated-power", "20W", "--ohms", "28.8"],
     "supply": ["--rated-voltage", "24V", "--volts", "23.5V"],
+    "off_voltage": ["--rated-voltage", "24V", "--volts", "0.3V"],
     "rectifier": ["--ac-volts", "200V", "--type", "half-wave", "--measured-dc", "90V"],
     "cable": ["--current", "0.8A", "--rated-voltage", "24V", "--length", "10m", "--area", "1mm2"],
     "gap": ["--readings", "0.3", "0.3", "0.3", "--nominal", "0.25", "--max", "0.5"],

@@ -193,12 +193,47 @@ def test_load_model_raises_knowledge_error_with_all_problems(tmp_path):
 
 
 def test_device_pack_extends_a_base_check_with_its_own_causes():
-    model = load_model("permanent-magnet-brake")
-    row = model.checks["coil_voltage"].effects["pm_supply_above_window"]
-    assert row["high"] == pytest.approx(0.47)
+    model = load_model("spring-applied-brake")
+    row = model.checks["coil_voltage"].effects["brake_output_disabled"]
+    assert row["absent"] == pytest.approx(0.95)
     # the base pack on its own knows nothing of the device's causes
-    assert "pm_supply_above_window" not in load_model("electrical-supply").checks[
+    assert "brake_output_disabled" not in load_model("electrical-supply").checks[
         "coil_voltage"].effects
+
+
+def test_a_device_check_replaces_the_base_check_that_reads_the_same_volts():
+    # the permanent-magnet pack reads the brake volts at the brake's own pins: the base
+    # pack's coil_voltage (the same volts at the same terminals) leaves, so one reading
+    # counts once, and the base causes' effects are on the replacement
+    model = load_model("permanent-magnet-brake")
+    assert "coil_voltage" not in model.checks
+    volts = model.checks["pm_brake_volts"]
+    assert volts.replaces == "coil_voltage"
+    assert {"supply_failed", "cable_break", "pm_polarity_reversed"} <= set(volts.effects)
+    # the base pack's knowledge tests that read coil_voltage now read the replacement
+    steps = [s for case in model.cases.values() for s in case.steps if s.check]
+    assert not any(s.check == "coil_voltage" for s in steps)
+    assert any(s.check == "pm_brake_volts" for s in steps)
+
+
+def test_two_checks_reading_the_same_place_are_a_lint_warning(tmp_path):
+    from diagnose.kb.lint import lint_paths
+
+    pack = tmp_path / "p"
+    pack.mkdir()
+    for f in MINI.glob("*.yaml"):
+        (pack / f.name).write_text(f.read_text())
+    check = ("  - id: {id}\n    title: Volts {id}\n    minutes: 5\n    ask: Measure.\n"
+             "    measure:\n      evaluator: supply\n      reading: volts\n      at: coil\n"
+             "      inputs: {{rated_voltage: 24 V, source: {src}}}\n"
+             "    normal: {{ok: 0.95, low: 0.02, absent: 0.01, high: 0.01, reversed: 0.01}}\n"
+             "    effects:\n      coil_open: {{absent: 0.9}}\n")
+    (pack / "more.yaml").write_text("checks:\n" + check.format(id="volts_a", src="converter")
+                                    + check.format(id="volts_b", src="battery"))
+    (res,) = lint_paths([str(pack)])
+    same = [p for p in res.problems if p.code == "same-quantity"]
+    assert len(same) == 1 and "volts_a" in same[0].message and "volts_b" in same[0].message
+    assert same[0].source.file.endswith("more.yaml") and same[0].level == "warning"
 
 
 def test_extending_an_unknown_check_is_an_error(tmp_path):

@@ -464,6 +464,7 @@ def test_holding(load, rated, verdict):
 SAMPLES = {
     "coil": {**NAMEPLATE, "ohms": 28.8},
     "supply": {"rated_voltage": 24, "volts": 24},
+    "off_voltage": {"rated_voltage": 24, "volts": 0.3},
     "rectifier": {"ac_volts": 230, "type": "bridge", "measured_dc": 207},
     "cable": {**NAMEPLATE, "length": 10, "area": 1.5},
     "gap": {"readings": [0.25, 0.25, 0.25], "nominal": 0.25, "max": 0.5},

@@ -15,6 +15,7 @@ from diagnose.errors import InputError
 from diagnose.kb.model import UNKNOWN_CAUSE, Check
 from diagnose.reasoning.evidence import Evidence
 from diagnose.reasoning.planner import (
+    DEFAULT,
     Settings,
     assign_repairs,
     checks_table,
@@ -86,7 +87,11 @@ def test_information_of_a_check_no_cause_affects_is_zero():
     m2 = _model_with(idle, m)
     row = next(r for r in plan(m2, WNR).checks() if r.id == "idle")
     assert row.bits == pytest.approx(0.0, abs=1e-12)
-    assert row.eco == pytest.approx(row.minutes + plan(m2, WNR).ecr)  # ECO = c + ECR
+    # no answer points at a cause yet, so after any answer of "idle" the cost is an escalation
+    assert row.eco == pytest.approx(row.minutes + DEFAULT.escalation_minutes)
+    seen = WNR.with_outcome("listen_click", "silent")  # an answer that points at causes
+    row = next(r for r in plan(m2, seen).checks() if r.id == "idle")
+    assert row.eco == pytest.approx(row.minutes + plan(m2, seen).ecr)  # ECO = c + ECR
 
 
 def _brute_lookahead(tables, p, cand, ccost, assign, rcost, esc):
@@ -202,7 +207,8 @@ def test_phone_reasons_say_what_the_question_is_for():
     assert "site visit" in a.reason and "tells more about" in a.reason
     assert not any(w in a.reason for w in SITE_WORDS)
     assert next_action(m, WNR).reason in ("observing first saves minutes",
-                                          "not yet sure enough to repair")  # site unchanged
+                                          "not yet sure enough to repair",
+                                          "no answer points at a cause yet: observe first")
 
 
 @pytest.mark.parametrize("seed", range(6))

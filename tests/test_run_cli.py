@@ -136,3 +136,20 @@ def test_skip_must_be_true_or_false(tmp_path, capsys):
     f.write_text("complaints: [will_not_release]\nsteps:\n  - {check: coil_voltage, skip: 'no'}\n")
     assert main(["run", "spring-applied-brake", "--answers", str(f), "--no-journal"]) == 2
     assert "true or false" in capsys.readouterr().err
+
+
+def test_text_shows_the_first_ranking_after_the_complaint(capsys, answers):
+    # the first ranking printed is the one with the complaint applied, the same as --json's
+    # first step sees: a cause outside the complaint's tree cannot lead it
+    code, out, _ = run(capsys, "run", MINI, "--answers", answers, "--no-journal")
+    assert code == 0
+    head, sep, rest = out.partition("the complaint")
+    assert sep and "Ranking" not in head
+    from diagnose.kb.loader import load_model
+    from diagnose.reasoning.evidence import Evidence
+    from diagnose.reasoning.posterior import posterior
+
+    model = load_model(MINI)
+    top = posterior(model, Evidence(complaints=("will_not_release",))).top()[0]
+    first = rest.split("Ranking", 1)[1].splitlines()[2]  # title, header, first row
+    assert top in first, first

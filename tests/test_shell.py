@@ -260,6 +260,7 @@ def _likely_coil(model):
     session.add_complaint("will_not_release")
     session.answer("coil_resistance", "3.2 ohm")
     session.answer("coil_voltage", "ok")
+    session.answer("air_gap", "within_limit")
     assert session.next_action().id == "replace_coil"
     return session
 

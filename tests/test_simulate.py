@@ -12,7 +12,17 @@ from rich.console import Console
 
 from diagnose.cli import main
 from diagnose.errors import InputError
-from diagnose.reasoning.simulate import POLICIES, chart_order, draw_cases, entropy_bound, simulate
+from diagnose.kb.model import UNKNOWN_CAUSE
+from diagnose.reasoning.simulate import (
+    POLICIES,
+    RunResult,
+    _Run,
+    chart_order,
+    draw_cases,
+    entropy_bound,
+    policy_report,
+    simulate,
+)
 from diagnose.reasoning.synthetic import synthetic_model, tiny_model
 
 MINI = str(Path(__file__).parent / "fixtures" / "mini")
@@ -104,3 +114,128 @@ def test_simulate_command_json(capsys):
 def test_simulate_command_table(capsys):
     assert main(["simulate", MINI, "--runs", "20", "--seed", "3"]) == 0
     assert "planner minutes / chart minutes" in capsys.readouterr()[0]
+
+
+# --- calls whose cause is outside the pack ---------------------------------------------------
+UNKNOWN_KEYS = ("unknown_runs", "escalated_when_unknown", "wrong_repairs_when_unknown")
+
+
+def _certain_normal(model):
+    """``model`` with every check's ``normal`` row certain: its first outcome, probability 1."""
+    from dataclasses import replace
+
+    checks = {cid: replace(c, normal={o: float(j == 0) for j, o in enumerate(c.outcomes)})
+              for cid, c in model.checks.items()}
+    return replace(model, checks=checks)
+
+
+@pytest.mark.parametrize("kwargs", [dict(runs=60, seed=3, noise=0.1),
+                                    dict(runs=40, seed=4, noise=0.05, max_faults=2)])
+def test_unknown_rate_zero_changes_nothing(kwargs):
+    before = simulate(tiny_model(), **kwargs).to_dict()
+    after = simulate(tiny_model(), unknown_rate=0.0, **kwargs).to_dict()
+    assert after == before
+    assert "unknown_rate" not in after and not any(k in after for k in UNKNOWN_KEYS)
+
+
+def test_unknown_runs_are_drawn_apart_and_known_runs_keep_their_draws():
+    m = tiny_model()
+    base, mixed = draw_cases(m, 2000, 3), draw_cases(m, 2000, 3, unknown_rate=0.3)
+    n = sum(mixed.unknown)
+    # binomial(2000, 0.3): mean 600, sd 20.5; four sd either side
+    assert 600 - 82 <= n <= 600 + 82
+    assert np.array_equal(base.answer, mixed.answer) and np.array_equal(base.cure, mixed.cure)
+    for i, u in enumerate(mixed.unknown):
+        if u:
+            assert mixed.causes[i] == UNKNOWN_CAUSE and mixed.complaints[i] in m.complaints
+        else:
+            assert (mixed.causes[i], mixed.complaints[i]) == (base.causes[i], base.complaints[i])
+    # uniform over the three complaints, whatever their causes
+    assert {mixed.complaints[i] for i in range(2000) if mixed.unknown[i]} == set(m.complaints)
+    assert not any(draw_cases(m, 200, 3).unknown)
+
+
+def test_unknown_share_in_the_report():
+    r = simulate(tiny_model(), runs=150, seed=2, unknown_rate=0.3, policies=("chart",))
+    chart = r.policies["chart"]
+    # binomial(150, 0.3): mean 45, sd 5.6; four sd either side
+    assert 45 - 23 <= chart.unknown_runs <= 45 + 23
+    d = r.to_dict()
+    assert d["unknown_rate"] == 0.3 and all(k in d for k in UNKNOWN_KEYS)
+
+
+def test_unknown_runs_answer_from_the_normal_row():
+    m = _certain_normal(tiny_model())
+    draws = draw_cases(m, 80, 5, unknown_rate=0.5)
+    check_pos = {c: i for i, c in enumerate(m.checks)}
+    repair_pos = {r: i for i, r in enumerate(m.repairs)}
+    unknown = [i for i in range(80) if draws.unknown[i]]
+    assert unknown
+    for i in unknown:
+        run = _Run(m, draws, i, 0.0, check_pos, repair_pos)
+        assert all(run.answer(cid) == m.checks[cid].outcomes[0] for cid in m.checks)
+        assert not any(run.repair(rid) for rid in m.repairs)  # no repair cures
+        res = run.result(0.0)
+        assert res.unknown and res.repairs == len(m.repairs) and not res.cured
+
+
+def test_the_chart_repairs_in_vain_and_the_planner_figures_are_shares():
+    m = _certain_normal(tiny_model())
+    r = simulate(m, runs=80, seed=1, noise=0.0, unknown_rate=0.3,
+                 policies=("planner", "chart", "random"))
+    for name in ("chart", "random"):  # every check normal: the chart ends up trying repairs
+        assert r.policies[name].wrong_repairs_when_unknown >= 1
+    planner = r.policies["planner"]
+    assert planner.unknown_runs > 0
+    assert 0.0 <= planner.escalated_when_unknown <= 1.0
+    assert planner.wrong_repairs_when_unknown >= 0.0
+    for p in r.policies.values():
+        assert 0.0 <= p.cured <= 1.0 and 0.0 <= p.first_repair_success <= 1.0
+    out = io.StringIO()
+    Console(file=out, width=80, color_system=None).print(r)
+    text = out.getvalue()
+    assert "unknown: escalated" in text and "unknown: repairs" in text
+    assert all(len(line) <= 80 for line in text.splitlines())
+
+
+def _result(cause="a", *, unknown=False, escalated=False, repairs=0, top=False, cured=False,
+            minutes=10.0):
+    return RunResult(cause, "k", 2, minutes, cured, repairs > 0, cured, True, True,
+                     unknown=unknown, escalated=escalated, repairs=repairs,
+                     unknown_top_before_repair=top)
+
+
+def test_policy_report_formulas():
+    known = [_result(cured=True, minutes=10.0), _result(minutes=30.0, repairs=1)]
+    unknown = [_result(UNKNOWN_CAUSE, unknown=True, escalated=True, repairs=2),
+               _result(UNKNOWN_CAUSE, unknown=True, top=True),
+               _result(UNKNOWN_CAUSE, unknown=True, repairs=3),
+               _result(UNKNOWN_CAUSE, unknown=True, repairs=1, minutes=500.0)]
+    r = policy_report("x", known + unknown, 0.5)
+    assert (r.runs, r.unknown_runs) == (6, 4)
+    assert r.mean_minutes == pytest.approx(20.0)  # known runs only: (10 + 30) / 2
+    assert r.cured == pytest.approx(0.5)
+    assert r.escalated_when_unknown == pytest.approx(2 / 4)  # escalated, or "unknown" on top
+    assert r.wrong_repairs_when_unknown == pytest.approx((2 + 0 + 3 + 1) / 4)
+    none = policy_report("x", known, 0.5)
+    assert none.unknown_runs == 0
+    assert none.escalated_when_unknown is None and none.wrong_repairs_when_unknown is None
+    assert none.to_dict()["escalated_when_unknown"] is None
+    assert "unknown_runs" not in policy_report("x", known).to_dict()
+
+
+@pytest.mark.parametrize("rate", [-0.1, 1.0, 1.5, float("nan")])
+def test_bad_unknown_rate(rate):
+    with pytest.raises(InputError):
+        simulate(tiny_model(), runs=10, seed=1, unknown_rate=rate)
+
+
+def test_simulate_command_unknown_rate(capsys):
+    code = main(["simulate", MINI, "--runs", "30", "--seed", "1", "--unknown-rate", "0.1",
+                 "--json"])
+    data = json.loads(capsys.readouterr()[0])
+    assert code == 0 and data["unknown_rate"] == 0.1
+    assert all(k in data for k in UNKNOWN_KEYS)
+    assert all(k in p for p in data["policies"].values() for k in UNKNOWN_KEYS)
+    assert main(["simulate", MINI, "--runs", "10", "--unknown-rate", "1"]) == 2
+    assert "unknown_rate" in capsys.readouterr()[1]

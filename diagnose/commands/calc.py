@@ -29,10 +29,16 @@ class _Formatter(argparse.HelpFormatter):
             return self._metavar_formatter(action, default_metavar)(1)[0]
         return super()._format_args(action, default_metavar)
 
+    def _fill_text(self, text: str, width: int, indent: str) -> str:
+        """Wraps the description without breaking an option such as --supply-voltage."""
+        text = " ".join(text.split())
+        return textwrap.fill(text, width, initial_indent=indent, subsequent_indent=indent,
+                             break_on_hyphens=False)
+
 
 def register(subparsers: Any) -> None:
     """Add the ``calc`` parser with one sub-parser per registered evaluator."""
-    listing = "\n".join(textwrap.fill(f"{spec.name}: {', '.join(spec.verdicts)}", 78,
+    listing = "\n".join(textwrap.fill(f"{spec.name}: {', '.join(spec.all_verdicts)}", 78,
                                        initial_indent="  ", subsequent_indent="    ")
                          for spec in EVALUATORS.values())
     calc = subparsers.add_parser(
@@ -52,8 +58,10 @@ def register(subparsers: Any) -> None:
 def _add_evaluator(names: Any, spec: EvaluatorSpec) -> None:
     parser = names.add_parser(
         spec.name, help=spec.title,
-        description=f"{spec.title}. Verdicts: {', '.join(spec.verdicts)}. A value may be "
-        "typed with a space before its unit (--length 50 m).",
+        description=f"{spec.title}. Verdicts: {', '.join(spec.verdicts)}. "
+        + "".join(f"With --{' and --'.join(_option(n) for n in sig.needs)}, also {sig.name}: "
+                  f"{sig.help}. " for sig in spec.signatures)
+        + "A value may be typed with a space before its unit (--length 50 m).",
         formatter_class=_Formatter,
     )
     parser._negative_number_matcher = _NEGATIVE_VALUE  # type: ignore[attr-defined]

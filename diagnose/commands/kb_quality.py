@@ -33,6 +33,10 @@ def add_analyze_parser(ks: Any) -> None:
     p.add_argument("--no-effort", action="store_true",
                    help="leave out the simulated effort (faster)")
     p.add_argument("--runs", type=int, metavar="N", help="simulated sessions per policy")
+    p.add_argument("--unknown-rate", type=float, metavar="R",
+                   help="share of simulated sessions whose cause is outside the pack, from 0 "
+                   "up to 1 (default 0.1): how often each policy escalates on them and how "
+                   "many repairs it tries in vain")
     p.set_defaults(handler=analyze_command)
 
 
@@ -59,17 +63,20 @@ def add_new_parser(ks: Any) -> None:
 def analyze_command(args: argparse.Namespace) -> int:
     from diagnose.commands.kb import load
     from diagnose.errors import InputError
-    from diagnose.reasoning.analysis import analyze
+    from diagnose.reasoning.analysis import UNKNOWN_RATE, analyze
 
     if not 0.0 <= args.threshold < 1.0:
         raise InputError("--threshold", "give a total variation from 0 up to 1")
     if args.runs is not None and args.runs < 1:
         raise InputError("--runs", "give at least 1")
+    rate = UNKNOWN_RATE if args.unknown_rate is None else args.unknown_rate
+    if not 0.0 <= rate < 1.0:
+        raise InputError("--unknown-rate", "give a share from 0 up to 1")
     if args.json and args.format:
         raise InputError("--format", "give either --json or --format")
     model = load(args, args.pack)
     result = analyze(model, complaint=args.complaint, threshold=args.threshold,
-                     effort=not args.no_effort, runs=args.runs)
+                     effort=not args.no_effort, runs=args.runs, unknown_rate=rate)
     if args.json:
         from diagnose.commands import write_output
 

@@ -114,7 +114,8 @@ def _plain(value: Any) -> str:
 
 
 def play(session: Any, data: dict[str, Any], *,
-         on_step: Callable[[int, Any, Any], None] | None = None) -> None:
+         on_step: Callable[[int, Any, Any], None] | None = None,
+         on_ready: Callable[[], None] | None = None) -> None:
     """Apply an answers file to ``session``: identity, nameplate, complaints, steps, notes, end.
 
     What the session holds already (an identity fact, a nameplate value, a
@@ -122,7 +123,8 @@ def play(session: Any, data: dict[str, Any], *,
     session started with can be given again to continue it. A different
     nameplate value is recorded as a change. At the end the session is closed
     with the file's ``end`` result, or as the shell closes it when a repair
-    cured the unit. ``on_step(n, step, result)`` is called after each step.
+    cured the unit. ``on_ready()`` is called once the nameplate and complaints are
+    in, before the first step; ``on_step(n, step, result)`` after each step.
 
     Raises:
         InputError: a value or step the pack or the physics refuses; its field
@@ -148,6 +150,8 @@ def play(session: Any, data: dict[str, Any], *,
     for k in data.get("complaints") or []:
         if str(k) not in session.evidence.complaints:
             session.add_complaint(str(k))
+    if on_ready is not None:
+        on_ready()
     for i, step in enumerate(data.get("steps") or [], 1):
         try:
             result = session.apply_step(step)
@@ -235,8 +239,13 @@ class _View:
                 self.say(model.notice, style="dim")
             self.say(f"Session {s.session_id}, {where}." if journal else
                      f"{where[0].upper()}{where[1:]}.", style="bold")
-        self.console.print(s.ranking())
-        self.console.print(s.next_action())
+
+    def ready(self) -> None:
+        """The ranking and the next action once the nameplate and complaints are in."""
+        if self.console is not None:
+            self.console.rule("the complaint", align="left")
+            self.console.print(self.session.ranking())
+            self.console.print(self.session.next_action())
 
     def step(self, i: int, step: Any, result: Any) -> None:
         from diagnose.session import Event, Finding
@@ -388,6 +397,8 @@ def _play(args: argparse.Namespace, session: Any, data: dict[str, Any], *, recor
     view = _View(session, args.json)
     view.start(resumed=resumed, journal=journal if recorded else None)
     if data:
-        play(session, data, on_step=view.step)
+        play(session, data, on_step=view.step, on_ready=view.ready)
+    else:
+        view.ready()
     view.finish(recorded=recorded, resumed=resumed, journal=journal)
     return 0

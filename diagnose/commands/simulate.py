@@ -15,13 +15,19 @@ def register(sub: Any) -> None:
         description="Draw true causes from the priors, answer every check from the pack's "
         "effects (each answer wrong with probability --noise) and run a policy until a repair "
         "cures the unit. Reports mean checks, mean minutes to a cure, first-repair success, "
-        "top-1 accuracy at the first repair and the entropy bound. Without --policy all "
+        "top-1 accuracy at the first repair and the entropy bound. With --unknown-rate a share "
+        "of the calls has a cause outside the pack (every check answers normal, no repair "
+        "cures): reports how often each policy escalated or ranked 'unknown' first before "
+        "a repair, and how many repairs it tried in vain. Without --policy all "
         "policies run on the same draws, side by side.")
     p.add_argument("pack", metavar="PACK", help="pack id or folder")
     p.add_argument("--runs", type=int, default=500, metavar="N", help="simulated calls (500)")
     p.add_argument("--seed", type=int, default=1, metavar="S", help="random seed (1)")
     p.add_argument("--noise", type=float, default=0.0, metavar="Q",
                    help="probability that an answer is wrong (0)")
+    p.add_argument("--unknown-rate", type=float, default=0.0, metavar="R",
+                   help="share of calls whose cause is outside the pack, from 0 up to 1 (0); "
+                   "the other figures stay over the known-cause calls")
     p.add_argument("--policy", choices=POLICIES, default=None,
                    help="one policy only (listing: the pack's order, for reference)")
     p.add_argument("--max-faults", type=int, choices=(1, 2), default=1,
@@ -37,7 +43,8 @@ def _simulate(args: argparse.Namespace) -> int:
     model = load(args, args.pack)
     policies = (args.policy,) if args.policy else POLICIES
     report = simulate(model, runs=args.runs, seed=args.seed, noise=args.noise,
-                      policies=policies, max_faults=args.max_faults)
+                      policies=policies, max_faults=args.max_faults,
+                      unknown_rate=args.unknown_rate)
     if args.json:
         print(json.dumps(report.to_dict(), indent=2))
     else:

@@ -25,6 +25,7 @@ from diagnose.kb.model import (
     Model,
     Parameter,
     Repair,
+    StateVar,
     Step,
 )
 from diagnose.kb.schema import SECTIONS, pack_schema
@@ -34,7 +35,7 @@ SUM_TOLERANCE = 0.001
 _NOUN = {
     "cautions": "caution", "parameters": "parameter", "complaints": "complaint",
     "events": "event", "causes": "cause", "checks": "check", "repairs": "repair",
-    "tests": "test case",
+    "tests": "test case", "states": "state",
 }
 
 
@@ -227,7 +228,11 @@ def _parameter(it: _Item, ctx: _Ctx) -> Parameter:
     if lo_ is not None and hi_ is not None and lo_ > hi_:
         ctx.error(f"parameter {it.id!r}: min {lo_:g} is above max {hi_:g}", it.at("min"), "range")
     default = d.get("default")
-    if default is not None and it.valid:
+    if default is not None and str(default).strip().lower() == "unknown":
+        if not d.get("unknown", False):
+            ctx.error(f"parameter {it.id!r}: default 'unknown' needs `unknown: true`",
+                      it.at("default"), "range")
+    elif default is not None and it.valid:
         if choices:
             if str(default) not in choices:
                 ctx.error(f"parameter {it.id!r}: default {default!r} is not one of {list(choices)}",
@@ -244,7 +249,37 @@ def _parameter(it: _Item, ctx: _Ctx) -> Parameter:
         id=it.id, prompt=str(d.get("prompt", it.id)), unit=unit if unit_ok else "",
         min=lo_, max=hi_, default=None if default is None else str(default),
         unknown_allowed=bool(d.get("unknown", False)), choices=choices, source=it.at(),
+        only_if=_only_if_values(d.get("only_if")),
     )
+
+
+def _only_if_values(raw: Any) -> dict[str, tuple[str, ...]]:
+    """``only_if`` as parameter -> allowed values (a single value becomes a 1-tuple)."""
+    out: dict[str, tuple[str, ...]] = {}
+    for key, value in _map(raw).items():
+        values = value if isinstance(value, list) else [value]
+        out[str(key)] = tuple("yes" if v is True else "no" if v is False else str(v)
+                              for v in values)
+    return out
+
+
+def _check_only_if(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> None:
+    """Each ``only_if`` names a parameter and, for a choice, one of its choices."""
+    what = f"{_NOUN[it.section]} {it.id!r} only_if"
+    for key, values in _only_if_values(it.data.get("only_if")).items():
+        if key == it.id and it.section == "parameters":
+            ctx.error(f"{what}: a parameter cannot depend on itself", it.at("only_if", key),
+                      "unknown-ref")
+            continue
+        if not ctx.ref(key, ("parameters",), it.at("only_if", key), what):
+            continue
+        param = params.get(key)
+        if param is None or not param.choices:
+            continue
+        for value in values:
+            if value not in param.choices:
+                ctx.error(f"{what}: {value!r} is not a choice of {key!r} "
+                          f"({', '.join(param.choices)})", it.at("only_if", key), "unknown-ref")
 
 
 def _gate(it: _Item, ctx: _Ctx) -> Gate:
@@ -264,7 +299,7 @@ def _gate(it: _Item, ctx: _Ctx) -> Gate:
     elif kind == "and":
         k = len(inputs)
     return Gate(it.id, str(d.get("title", it.id)), kind if kind in ("or", "and", "k_of_n") else "or",
-                inputs, k, it.at())
+                inputs, k, it.at(), _only_if_values(d.get("only_if")))
 
 
 def _distribution(row: Any, outcomes: tuple[str, ...], it: _Item, sub: Path, label: str,
@@ -317,15 +352,17 @@ def _outcomes(it: _Item, spec: Any, ctx: _Ctx) -> tuple[tuple[str, ...], dict[st
     elif isinstance(raw, list):
         outcomes = tuple(str(k) for k in raw)
     elif spec is not None:
-        outcomes = tuple(spec.verdicts)
+        outcomes = _verdicts(spec, it)
     elif it.data.get("preparation"):
         outcomes = ("done",)
     else:
         ctx.error(f"check {it.id!r}: missing field `outcomes`", it.at(), "schema")
         outcomes = ("yes", "no")
     if spec is not None and raw is not None:
+        # a signature left out of `outcomes` falls back to its plain verdict
         missing = [v for v in spec.verdicts if v not in outcomes]
-        extra = [o for o in outcomes if o not in spec.verdicts]
+        known = getattr(spec, "all_verdicts", spec.verdicts)
+        extra = [o for o in outcomes if o not in known]
         if missing:
             ctx.error(f"check {it.id!r}: outcomes must cover every verdict of evaluator "
                       f"{spec.name!r}; missing {', '.join(missing)}", it.at("outcomes"), "evaluator")
@@ -334,6 +371,13 @@ def _outcomes(it: _Item, spec: Any, ctx: _Ctx) -> tuple[tuple[str, ...], dict[st
                       f"{spec.name!r} (verdicts: {', '.join(spec.verdicts)})", it.at("outcomes"),
                       "evaluator")
     return outcomes, titles
+
+
+def _verdicts(spec: Any, it: _Item) -> tuple[str, ...]:
+    """The verdicts a check's evaluator can return with the inputs the check maps."""
+    given = _map(_map(it.data.get("measure")).get("inputs"))
+    pick = getattr(spec, "verdicts_for", None)
+    return tuple(pick(given)) if pick is not None else tuple(spec.verdicts)
 
 
 def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple[Any, Any]:
@@ -388,7 +432,9 @@ def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple
             ctx.error(f"check {it.id!r}: evaluator {name!r} needs input {ispec.name!r} "
                       f"({ispec.help})", it.at("measure"), "evaluator")
     accuracy = _num(m.get("accuracy"), 0.0)
-    return Measurement(str(name), str(reading), unit, inputs, accuracy, rspec.many), spec
+    at = m.get("at")
+    return Measurement(str(name), str(reading), unit, inputs, accuracy, rspec.many,
+                       str(at) if isinstance(at, str) else ""), spec
 
 
 def _check_input_value(it: _Item, key: str, value: Any, ispec: Any,
@@ -437,12 +483,7 @@ def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
             ctx.error(f"check {it.id!r} needs itself", it.at("needs", j), "needs")
         else:
             ctx.ref(c, ("checks",), it.at("needs", j), f"check {it.id!r} needs")
-    for key, value in _map(d.get("only_if")).items():
-        if ctx.ref(key, ("parameters",), it.at("only_if", key), f"check {it.id!r} only_if"):
-            param = params.get(key)
-            if param is not None and param.choices and str(value) not in param.choices:
-                ctx.error(f"check {it.id!r} only_if: {value!r} is not a choice of {key!r} "
-                          f"({', '.join(param.choices)})", it.at("only_if", key), "unknown-ref")
+    _check_only_if(it, ctx, params)
     where = d.get("where", "site")
     if where == "phone" and not d.get("caller"):
         ctx.error(f"check {it.id!r} is marked safe for a caller but has no `caller` wording",
@@ -473,9 +514,10 @@ def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
         ctx.error(f"check {it.id!r}: missing field `normal` (the outcomes when none of the listed "
                   "causes is present)", it.at(), "schema")
         normal = {o: 1.0 / len(outcomes) for o in outcomes}
+    # "None of the known causes": a cause nobody wrote down mostly leaves a check as it
+    # is without any of its listed causes, so its row is `normal` unless the pack says more.
     unknown = _distribution(d.get("unknown"), outcomes, it, ("unknown",), "unknown", ctx,
-                            warn_extremes=False) if "unknown" in d \
-        else {o: 1.0 / len(outcomes) for o in outcomes}
+                            warn_extremes=False) if "unknown" in d else dict(normal)
     return Check(
         id=it.id, title=str(d.get("title", it.id)), minutes=_num(d.get("minutes"), 1.0),
         outcomes=outcomes, effects=effects, normal=normal, unknown=unknown, where=where,
@@ -483,9 +525,41 @@ def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
         cautions=_list(d.get("cautions")), ask=str(d.get("ask", "")),
         caller=str(d.get("caller", "") or ""), needs=_list(d.get("needs")),
         measurement=measurement, outcome_titles=titles, source=it.at(),
-        only_if={str(k): str(v) for k, v in _map(d.get("only_if")).items()},
+        only_if=_only_if_values(d.get("only_if")),
         preparation=bool(d.get("preparation", False)),
+        requires=_state_map(it, "requires", ctx), leaves=_state_map(it, "leaves", ctx),
+        replaces=str(d.get("replaces", "") or ""),
     )
+
+
+def _state_map(it: _Item, key: str, ctx: _Ctx) -> dict[str, str]:
+    """``requires`` / ``leaves``: each names a declared state and one of its values."""
+    out: dict[str, str] = {}
+    states = ctx.items["states"]
+    for var, value in _map(it.data.get(key)).items():
+        src = it.at(key, var)
+        if not ctx.ref(var, ("states",), src, f"{_NOUN[it.section]} {it.id!r} {key}"):
+            continue
+        values = _map(states[var].data.get("values")) if var in states else {}
+        if values and str(value) not in values:
+            ctx.error(f"{_NOUN[it.section]} {it.id!r} {key}: {value!r} is not a value of state "
+                      f"{var!r} ({', '.join(map(str, values))})", src, "unknown-ref")
+            continue
+        out[str(var)] = str(value)
+    return out
+
+
+def _state(it: _Item, ctx: _Ctx) -> StateVar:
+    d = it.data
+    values = _map(d.get("values"))
+    titles = {str(v): str(_map(spec).get("title", v)) for v, spec in values.items()}
+    setup = {str(v): _num(_map(spec).get("minutes"), 0.0) for v, spec in values.items()
+             if "minutes" in _map(spec)}
+    initial = str(d.get("initial", next(iter(titles), "")))
+    if titles and initial not in titles:
+        ctx.error(f"state {it.id!r}: initial value {initial!r} is not one of its values "
+                  f"({', '.join(titles)})", it.at("initial"), "unknown-ref")
+    return StateVar(it.id, str(d.get("title", it.id)), titles, initial, setup, it.at())
 
 
 def _repair(it: _Item, ctx: _Ctx) -> Repair:
@@ -499,17 +573,23 @@ def _repair(it: _Item, ctx: _Ctx) -> Repair:
     confirm = d.get("confirm")
     if confirm is not None:
         ctx.ref(confirm, ("checks",), it.at("confirm"), f"repair {it.id!r} confirm")
+    for j, c in enumerate(_list(d.get("observes"))):
+        ctx.ref(c, ("checks",), it.at("observes", j), f"repair {it.id!r} observes")
     return Repair(
         id=it.id, title=str(d.get("title", it.id)), minutes=_num(d.get("minutes"), 1.0),
         fixes=_list(d.get("fixes")), parts=tuple(str(p) for p in _list(d.get("parts"))),
         success=_num(d.get("success"), 0.95), cautions=_list(d.get("cautions")),
         confirm=confirm, needs=_list(d.get("needs")), ask=str(d.get("ask", "") or ""),
         where=str(d.get("where", "site")), source=it.at(),
+        only_if=_only_if_values(d.get("only_if")), observes=_list(d.get("observes")),
+        leaves=_state_map(it, "leaves", ctx),
     )
 
 
-def _case(it: _Item, ctx: _Ctx, checks: Mapping[str, Check]) -> Case:
+def _case(it: _Item, ctx: _Ctx, checks: Mapping[str, Check],
+          moved: Mapping[str, str] | None = None) -> Case:
     d = it.data
+    moved = moved or {}
     for j, c in enumerate(_list(d.get("complaints"))):
         ctx.ref(c, ("complaints",), it.at("complaints", j), f"test {it.id!r} complaint")
     for key in _map(d.get("nameplate")):
@@ -517,13 +597,21 @@ def _case(it: _Item, ctx: _Ctx, checks: Mapping[str, Check]) -> Case:
     for j, c in enumerate(_list(d.get("expect_top"))):
         ctx.ref(c, ("causes",), it.at("expect_top", j), f"test {it.id!r} expect_top",
                 extra=(UNKNOWN_CAUSE,))
+    for c in _map(d.get("expect_below")):
+        ctx.ref(c, ("causes",), it.at("expect_below", c), f"test {it.id!r} expect_below",
+                extra=(UNKNOWN_CAUSE,))
+    for key, sections in (("expect_absent", ("causes",)),
+                          ("expect_not_asked", ("checks", "parameters")),
+                          ("expect_offered", ("checks",))):
+        for j, c in enumerate(_list(d.get(key))):
+            ctx.ref(moved.get(c, c), sections, it.at(key, j), f"test {it.id!r} {key}")
     steps: list[Step] = []
     for j, s in enumerate(_list(d.get("steps"))):
         if not isinstance(s, Mapping):
             continue
         src = it.at("steps", j)
         if isinstance(s.get("check"), str):
-            cid = s["check"]
+            cid = moved.get(s["check"], s["check"])
             if ctx.ref(cid, ("checks",), it.at("steps", j, "check"), f"test {it.id!r} step"):
                 chk = checks.get(cid)
                 ans = s.get("answer")
@@ -549,7 +637,114 @@ def _case(it: _Item, ctx: _Ctx, checks: Mapping[str, Check]) -> Case:
         nameplate={str(k): v for k, v in _map(d.get("nameplate")).items()},
         mode=str(d.get("mode", "site")), max_faults=int(_num(d.get("max_faults"), 1)),
         title=str(d.get("title", "") or ""), source=it.at(),
+        expect_below={str(k): _num(v, 1.0) for k, v in _map(d.get("expect_below")).items()},
+        expect_absent=_list(d.get("expect_absent")),
+        expect_not_asked=tuple(moved.get(c, c) for c in _list(d.get("expect_not_asked"))),
+        expect_offered=tuple(moved.get(c, c) for c in _list(d.get("expect_offered"))),
     )
+
+
+# ---------------------------------------------------------------------------------------------
+# one quantity, one reading
+
+
+def _replace_checks(checks: dict[str, Check], ctx: _Ctx) -> dict[str, str]:
+    """Apply ``replaces``: the base check leaves, its causes' effects move to the new check.
+
+    Returns the ids moved (old -> new), so that references can follow them.
+    """
+    moved: dict[str, str] = {}
+    items = ctx.items["checks"]
+    for cid, chk in list(checks.items()):
+        target = chk.replaces
+        if not target:
+            continue
+        it = items[cid]
+        src = it.at("replaces")
+        if not ctx.ref(target, ("checks",), src, f"check {cid!r} replaces"):
+            continue
+        if target == cid or items[target].pack == it.pack:
+            ctx.error(f"check {cid!r} replaces {target!r} of its own pack: edit that check "
+                      "instead", src, "replaces")
+            continue
+        base = checks.get(target)
+        if base is None or target in moved:
+            ctx.error(f"check {target!r} is replaced twice", src, "replaces")
+            continue
+        effects = {c: dict(r) for c, r in chk.effects.items()}
+        missing = []
+        for cause, row in base.effects.items():
+            if cause in effects:
+                continue
+            if not set(o for o, p in row.items() if p > 0) <= set(chk.outcomes):
+                missing.append(cause)
+                continue
+            effects[cause] = {o: float(row.get(o, 0.0)) for o in chk.outcomes}
+        if missing:
+            ctx.error(f"check {cid!r} replaces {target!r}, whose outcomes differ: give this "
+                      f"check's effects of {', '.join(missing)} here", src, "replaces")
+        checks[cid] = _with(chk, effects=effects)
+        del checks[target]
+        moved[target] = cid
+    return moved
+
+
+def _with(obj: Any, **changes: Any) -> Any:
+    from dataclasses import replace
+
+    return replace(obj, **changes)
+
+
+def _redirect(checks: dict[str, Check], repairs: dict[str, Repair], moved: Mapping[str, str],
+              ) -> tuple[dict[str, Check], dict[str, Repair]]:
+    """References to a replaced check (needs, confirm, observes) follow it to its replacement."""
+    def ids(xs: tuple[str, ...]) -> tuple[str, ...]:
+        return tuple(dict.fromkeys(moved.get(x, x) for x in xs))
+
+    checks = {i: _with(c, needs=ids(c.needs)) if set(c.needs) & set(moved) else c
+              for i, c in checks.items()}
+    out = {}
+    for i, r in repairs.items():
+        if set(r.needs) & set(moved) or set(r.observes) & set(moved) or r.confirm in moved:
+            r = _with(r, needs=ids(r.needs), observes=ids(r.observes),
+                      confirm=moved.get(r.confirm, r.confirm) if r.confirm else r.confirm)
+        out[i] = r
+    return checks, out
+
+
+def _same_quantity(checks: Mapping[str, Check], ctx: _Ctx) -> None:
+    """Warn when two checks read the same quantity at the same place: it would count twice.
+
+    The place is the measurement's ``at``; without one, two checks of the same
+    evaluator with the same reading and the very same inputs count as one place.
+    """
+    seen: dict[tuple[Any, ...], str] = {}
+    for chk in checks.values():
+        m = chk.measurement
+        if m is None:
+            continue
+        inputs = tuple(sorted((str(k), str(v)) for k, v in m.inputs.items()))
+        key = (m.evaluator, m.reading, m.at) if m.at else (m.evaluator, m.reading, inputs, "")
+        first = seen.get(key)
+        if first is None:
+            seen[key] = chk.id
+            continue
+        other = checks[first]
+        if _exclusive(other, chk):
+            continue
+        where = f" at {m.at}" if m.at else " with the same inputs"
+        ctx.warn(f"checks {first!r} and {chk.id!r} both read {m.reading!r} by evaluator "
+                 f"{m.evaluator!r}{where}: one reading would count twice; let one `replaces` "
+                 "the other, or give the other's causes with `extend_checks`",
+                 chk.source, "same-quantity")
+
+
+def _exclusive(a: Check, b: Check) -> bool:
+    """True when the nameplate never offers both checks (their only_if exclude each other)."""
+    for param, values in a.only_if.items():
+        if param in b.only_if and not set(values) & set(b.only_if[param]):
+            return True
+    return False
 
 
 # ---------------------------------------------------------------------------------------------
@@ -699,6 +894,10 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
     cautions = {i: Caution(i, str(x.data.get("level", "NOTICE")), str(x.data.get("text", "")),
                            x.at()) for i, x in it["cautions"].items()}
     params = {i: _parameter(x, ctx) for i, x in it["parameters"].items()}
+    states = {i: _state(x, ctx) for i, x in it["states"].items()}
+    for section in ("parameters", "causes", "events"):
+        for x in it[section].values():
+            _check_only_if(x, ctx, params)
     causes = {}
     for i, x in it["causes"].items():
         prior = x.data.get("prior", 1.0)
@@ -707,18 +906,25 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
         if learned and i in learned:
             prior = float(learned[i])
         causes[i] = Cause(i, str(x.data.get("title", i)), prior,
-                          str(x.data.get("description", "") or ""), x.pack, x.at())
+                          str(x.data.get("description", "") or ""), x.pack, x.at(),
+                          _only_if_values(x.data.get("only_if")))
     events = {i: _gate(x, ctx) for i, x in it["events"].items()}
     complaints = {i: Complaint(i, str(x.data.get("title", i)), _gate(x, ctx),
                                str(x.data.get("caller", "") or ""),
                                str(x.data.get("description", "") or ""), x.at())
                   for i, x in it["complaints"].items()}
     checks = {i: _check(x, ctx, params) for i, x in it["checks"].items()}
+    for x in it["repairs"].values():
+        _check_only_if(x, ctx, params)
     repairs = {i: _repair(x, ctx) for i, x in it["repairs"].items()}
     for ext in ctx.extensions:
         ctx.ref(ext.id, ("checks",), ext.at("check"), "extend_checks: check")
+    moved = _replace_checks(checks, ctx)
+    if moved:
+        checks, repairs = _redirect(checks, repairs, moved)
+    _same_quantity(checks, ctx)
     # Cases of the base packs run too: a device pack must not break what its base knew.
-    cases = {i: _case(x, ctx, checks) for i, x in it["tests"].items()}
+    cases = {i: _case(x, ctx, checks, moved) for i, x in it["tests"].items()}
 
     digest = hashlib.sha256()
     for src in sources:
@@ -729,7 +935,7 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
         id=top.id, title=str(manifest.get("title", top.id)), version=str(version),
         packs=tuple(s.id for s in sources), notice=str(manifest.get("notice", "") or ""),
         parameters=params, complaints=complaints, events=events, causes=causes, checks=checks,
-        repairs=repairs, cautions=cautions, cases=cases,
+        repairs=repairs, cautions=cautions, cases=cases, states=states,
         unknown_prior=_num(manifest.get("unknown_prior"), 5.0),
         leak=_num(manifest.get("leak"), 0.01), content_hash=digest.hexdigest()[:16],
         path=top.folder,

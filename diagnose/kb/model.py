@@ -44,6 +44,24 @@ class Parameter:
     unknown_allowed: bool = False
     choices: tuple[str, ...] = ()
     source: Source | None = None
+    only_if: Mapping[str, tuple[str, ...]] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class StateVar:
+    """A part of the state of the unit (power, cover, brake mounted...).
+
+    ``values`` maps each value to its title; ``setup[value]`` is the minutes a
+    plain setup step takes to bring the unit to that value (a value missing
+    from ``setup`` is reached only by a check or repair that leaves it).
+    """
+
+    id: str
+    title: str
+    values: Mapping[str, str]
+    initial: str
+    setup: Mapping[str, float] = field(default_factory=dict)
+    source: Source | None = None
 
 
 @dataclass(frozen=True)
@@ -56,6 +74,7 @@ class Cause:
     description: str = ""
     pack: str = ""
     source: Source | None = None
+    only_if: Mapping[str, tuple[str, ...]] = field(default_factory=dict)
 
     @property
     def q(self) -> float:
@@ -73,6 +92,7 @@ class Gate:
     inputs: tuple[str, ...]
     k: int = 1
     source: Source | None = None
+    only_if: Mapping[str, tuple[str, ...]] = field(default_factory=dict)
 
     def holds(self, states: Iterable[bool]) -> bool:
         n = sum(1 for s in states if s)
@@ -109,6 +129,7 @@ class Measurement:
     inputs: Mapping[str, Any] = field(default_factory=dict)
     accuracy: float = 0.0  # relative meter accuracy, for soft evidence at band edges
     many: bool = False
+    at: str = ""  # where the reading is taken; one quantity at one place is one reading
 
 
 @dataclass(frozen=True)
@@ -136,8 +157,11 @@ class Check:
     measurement: Measurement | None = None
     outcome_titles: Mapping[str, str] = field(default_factory=dict)
     source: Source | None = None
-    only_if: Mapping[str, str] = field(default_factory=dict)  # parameter -> required value
+    only_if: Mapping[str, tuple[str, ...]] = field(default_factory=dict)  # parameter -> values
     preparation: bool = False  # a step that secures or prepares; observes no cause
+    requires: Mapping[str, str] = field(default_factory=dict)  # state -> value while done
+    leaves: Mapping[str, str] = field(default_factory=dict)  # state -> value after
+    replaces: str = ""  # the base pack's check this one took the place of
 
     @property
     def phone_ok(self) -> bool:
@@ -164,10 +188,14 @@ class Repair:
     ask: str = ""
     where: str = "site"
     source: Source | None = None
+    only_if: Mapping[str, tuple[str, ...]] = field(default_factory=dict)
+    observes: tuple[str, ...] = ()  # checks answered in plain sight during the repair
+    leaves: Mapping[str, str] = field(default_factory=dict)  # default: the unit as found
 
 
 @dataclass(frozen=True)
 class Step:
+
     """One scripted step: a check answer, a repair with its result, or a skip."""
 
     check: str | None = None
@@ -191,6 +219,10 @@ class Case:
     max_faults: int = 1
     title: str = ""
     source: Source | None = None
+    expect_below: Mapping[str, float] = field(default_factory=dict)
+    expect_absent: tuple[str, ...] = ()
+    expect_not_asked: tuple[str, ...] = ()
+    expect_offered: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -215,6 +247,7 @@ class Model:
     repairs: Mapping[str, Repair]
     cautions: Mapping[str, Caution]
     cases: Mapping[str, Case]
+    states: Mapping[str, StateVar] = field(default_factory=dict)
     unknown_prior: float = 5.0  # "none of the known causes", per 1,000 service calls
     leak: float = 0.01  # P(complaint | a hypothesis whose tree does not produce it)
     content_hash: str = ""

@@ -19,6 +19,13 @@ PROB = {"type": "number", "minimum": 0, "maximum": 1}
 MINUTES = {"type": "number", "exclusiveMinimum": 0, "maximum": 100000,
            "description": "minutes of work, including getting at the part"}
 SCALAR = {"type": ["string", "number", "boolean"]}
+ONLY_IF = {"type": "object", "propertyNames": ID,
+           "additionalProperties": {"anyOf": [SCALAR, {"type": "array", "items": SCALAR,
+                                                        "minItems": 1}]},
+           "description": "parameter -> value (or a list of values): applies only when the "
+                          "nameplate matches; an unknown value keeps it"}
+STATE_MAP = {"type": "object", "propertyNames": ID, "additionalProperties": ID,
+             "description": "state id -> value"}
 DISTRIBUTION = {
     "type": "object",
     "description": "outcome id -> probability; omitted outcomes share what is left evenly",
@@ -51,6 +58,8 @@ PARAMETER = {
         "default": SCALAR,
         "unknown": {"type": "boolean", "description": "the answer 'unknown' is allowed"},
         "choices": {"type": "array", "items": {"type": "string"}, "minItems": 2},
+        "only_if": {**ONLY_IF, "description": "asked only when the nameplate values already "
+                                               "given match"},
     },
 }
 
@@ -71,7 +80,8 @@ EVENT = {
     "type": "object",
     "required": ["id", "title", "inputs"],
     "additionalProperties": False,
-    "properties": {"id": ID, "title": TEXT, "description": TEXT, **GATE_PROPS},
+    "properties": {"id": ID, "title": TEXT, "description": TEXT, "only_if": ONLY_IF,
+                   **GATE_PROPS},
 }
 
 CAUSE = {
@@ -84,6 +94,8 @@ CAUSE = {
         "prior": {"type": "number", "exclusiveMinimum": 0, "maximum": 1000,
                   "description": "relative frequency: times found per 1,000 service calls"},
         "description": TEXT,
+        "only_if": {**ONLY_IF, "description": "the cause exists only when the nameplate "
+                                               "matches; otherwise it leaves the ranking"},
     },
 }
 
@@ -99,6 +111,9 @@ MEASURE = {
                      "description": "meter accuracy as a fraction of the reading"},
         "inputs": {"type": "object", "additionalProperties": SCALAR,
                    "description": "evaluator input -> constant or $parameter"},
+        "at": {**ID, "description": "where the reading is taken (coil_terminals, ...): two "
+                                    "checks reading the same quantity at the same place are "
+                                    "one reading"},
     },
 }
 
@@ -117,8 +132,11 @@ CHECK = {
         "ask": {**TEXT, "description": "technician wording"},
         "caller": {**TEXT, "description": "plain wording for a caller on the phone"},
         "needs": {**IDS, "description": "checks that must be done first"},
-        "only_if": {"type": "object", "additionalProperties": SCALAR,
-                    "description": "parameter -> value: offered only when the nameplate matches"},
+        "only_if": ONLY_IF,
+        "requires": {**STATE_MAP, "description": "the state of the unit this check needs"},
+        "leaves": {**STATE_MAP, "description": "the state it leaves (default: as required)"},
+        "replaces": {**ID, "description": "a check of a pack this one builds on that measures "
+                                          "the same thing: this one takes its place"},
         "preparation": {"type": "boolean",
                         "description": "a step that secures or prepares; observes no cause"},
         "outcomes": {
@@ -153,6 +171,11 @@ REPAIR = {
         "needs": IDS,
         "ask": TEXT,
         "where": {"enum": ["phone", "site"], "default": "site"},
+        "only_if": ONLY_IF,
+        "observes": {**IDS, "description": "checks whose answer is in plain sight during this "
+                                           "repair: asked on its card at no extra minutes"},
+        "leaves": {**STATE_MAP, "description": "the state the repair leaves (default: the "
+                                               "unit put back as it was found)"},
     },
 }
 
@@ -165,6 +188,30 @@ EXTENSION = {
         "check": ID,
         "effects": {"type": "object", "propertyNames": ID, "additionalProperties": DISTRIBUTION,
                     "minProperties": 1},
+    },
+}
+
+STATE = {
+    "type": "object",
+    "required": ["id", "title", "values", "initial"],
+    "additionalProperties": False,
+    "description": "a part of the state of the unit (power, cover, brake mounted...)",
+    "properties": {
+        "id": ID,
+        "title": TEXT,
+        "initial": {**ID, "description": "the value when the technician arrives"},
+        "values": {
+            "type": "object", "propertyNames": ID, "minProperties": 2,
+            "additionalProperties": {
+                "type": "object", "additionalProperties": False,
+                "properties": {
+                    "title": TEXT,
+                    "minutes": {"type": "number", "minimum": 0, "maximum": 100000,
+                                "description": "minutes to bring the unit to this value; "
+                                               "omitted: no plain setup step reaches it"},
+                },
+            },
+        },
     },
 }
 
@@ -198,6 +245,14 @@ CASE = {
         "steps": {"type": "array", "items": STEP},
         "expect_top": {**IDS, "minItems": 1,
                        "description": "the top cause must be one of these"},
+        "expect_below": {"type": "object", "propertyNames": ID, "additionalProperties": PROB,
+                         "description": "cause -> probability it must end below"},
+        "expect_absent": {**IDS, "description": "causes the nameplate must rule out (not "
+                                                "in the ranking)"},
+        "expect_not_asked": {**IDS, "description": "checks the planner must never propose "
+                                                   "and nameplate questions not asked"},
+        "expect_offered": {**IDS, "description": "checks offered as free observations "
+                                                 "during a repair step of the case"},
     },
 }
 
@@ -231,12 +286,13 @@ PACK_FILE_SCHEMA: dict[str, Any] = {
         "checks": _section(CHECK),
         "repairs": _section(REPAIR),
         "tests": _section(CASE),
+        "states": _section(STATE),
         "extend_checks": _section(EXTENSION),
     },
 }
 
 SECTIONS = ("cautions", "parameters", "complaints", "events", "causes", "checks", "repairs",
-            "tests")
+            "tests", "states")
 MANIFEST_KEYS = ("pack", "title", "version", "builds_on", "notice", "unknown_prior", "leak",
                  "description")
 

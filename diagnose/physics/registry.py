@@ -4,13 +4,21 @@ A pack's measurement check names an evaluator here and maps its inputs to
 nameplate parameters or constants; the knowledge layer validates those
 references (names, units, verdicts) against this table alone. The code of
 each evaluator is imported only when :func:`evaluate` runs it.
+
+Besides its plain verdicts an evaluator may declare *signatures*: sharper
+verdicts that name a cause ("half-wave output behind a bridge: an open
+diode") and that it can return only when the inputs a signature ``needs``
+are given. :meth:`EvaluatorSpec.verdicts_for` lists the verdicts a check can
+get from the inputs it maps; a signature's ``fallback`` is the plain verdict
+it sharpens (None: whichever plain verdict the reading gets, given in
+:attr:`~diagnose.physics.verdict.Verdict.fallback`).
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
 from importlib import import_module
-from typing import Any, Mapping
+from typing import Any, Iterable, Mapping
 
 from diagnose.physics.verdict import Verdict
 
@@ -35,8 +43,27 @@ class InputSpec:
 
 
 @dataclass(frozen=True)
+class Signature:
+    """A sharper verdict an evaluator returns only when the inputs it ``needs`` are given.
+
+    ``fallback`` is the plain verdict the signature sharpens, or None when
+    it sharpens whichever plain verdict the reading gets (low or high, say);
+    ``help`` says in plain words what the signature means.
+    """
+
+    name: str
+    needs: tuple[str, ...]
+    fallback: str | None
+    help: str
+
+
+@dataclass(frozen=True)
 class EvaluatorSpec:
-    """An evaluator: its inputs, which input a technician's reading fills, its verdicts."""
+    """An evaluator: its inputs, which input a technician's reading fills, its verdicts.
+
+    ``verdicts`` are the plain verdicts, which every use of the evaluator
+    can get; ``signatures`` are the sharper ones that need more inputs.
+    """
 
     name: str
     title: str
@@ -44,6 +71,7 @@ class EvaluatorSpec:
     verdicts: tuple[str, ...]
     reading: str | None
     target: str  # "module:function" run by evaluate()
+    signatures: tuple[Signature, ...] = ()
 
     def input(self, name: str) -> InputSpec | None:
         for spec in self.inputs:
@@ -51,14 +79,45 @@ class EvaluatorSpec:
                 return spec
         return None
 
+    def signature(self, name: str) -> Signature | None:
+        """The signature called ``name``, or None when ``name`` is a plain verdict or unknown."""
+        for sig in self.signatures:
+            if sig.name == name:
+                return sig
+        return None
+
+    def verdicts_for(self, given: Iterable[str]) -> tuple[str, ...]:
+        """The verdicts a use that gives the inputs ``given`` can get: plain, then signatures.
+
+        A signature counts when every input it needs is among ``given`` (the
+        input names a pack's check maps, or the options typed to calc).
+
+        >>> spec = EVALUATORS["supply"]
+        >>> spec.verdicts_for(["rated_voltage", "supply_voltage"])[-1]
+        'coil_mismatch'
+        >>> spec.verdicts_for(["rated_voltage", "ac_volts"]) == spec.verdicts
+        True
+        """
+        names = set(given)
+        return self.verdicts + tuple(s.name for s in self.signatures
+                                     if all(n in names for n in s.needs))
+
+    @property
+    def all_verdicts(self) -> tuple[str, ...]:
+        """Every verdict the evaluator can return: the plain ones, then every signature."""
+        return self.verdicts + tuple(s.name for s in self.signatures)
+
 
 def _q(name: str, unit: str, help: str, required: bool = True, default: Any = None,
        many: bool = False) -> InputSpec:
     return InputSpec(name, help, "quantity", unit, required, default, (), many)
 
 
-def _choice(name: str, choices: tuple[str, ...], help: str, default: str | None = None) -> InputSpec:
-    return InputSpec(name, help, "choice", "", default is None, default, choices)
+def _choice(name: str, choices: tuple[str, ...], help: str, default: str | None = None,
+            required: bool | None = None) -> InputSpec:
+    """A choice input; required when it has no default, unless ``required=False`` says otherwise."""
+    return InputSpec(name, help, "choice", "", default is None if required is None else required,
+                     default, choices)
 
 
 def _flag(name: str, help: str, default: bool = False) -> InputSpec:
@@ -97,9 +156,36 @@ _SPECS = (
             _q("window_high", "", "highest allowed fraction of rated (pack-defined window)",
                required=False),
             _flag("polarity_known", "the meter's + lead is on the coil's + terminal"),
+            _q("supply_voltage", "V", "nominal voltage the machine's brake supply delivers "
+               "(circuit diagram), when it may differ from the coil's label", required=False),
+            _q("ac_volts", "V", "AC volts rms at the rectifier input, for a rectified supply",
+               required=False),
+            _choice("rectifier_type", ("half-wave", "bridge"),
+                    "rectifier type, for a rectified supply", required=False),
         ),
         ("absent", "low", "ok", "high", "reversed"), "volts",
         "diagnose.physics.supply:evaluate_supply",
+        (
+            Signature("half_wave", ("ac_volts", "rectifier_type"), "low",
+                      "on a rectified supply through a bridge, a low reading near "
+                      "half-wave output: an open diode"),
+            Signature("coil_mismatch", ("supply_voltage",), None,
+                      "the reading matches the machine's supply but not the coil's label: "
+                      "a coil for another voltage"),
+        ),
+    ),
+    EvaluatorSpec(
+        "off_voltage", "Coil volts with the coil commanded off",
+        (
+            _q("rated_voltage", "V", "rated coil voltage"),
+            _q("volts", "V", "measured volts at the coil terminals, coil commanded off"),
+            _q("off_share", "", "fraction of rated below which the coil counts as off",
+               required=False, default=0.05),
+            _q("present_share", "", "fraction of rated at or above which the supply is "
+               "plainly on the coil", required=False, default=0.5),
+        ),
+        ("off", "residual", "present"), "volts",
+        "diagnose.physics.offvoltage:evaluate_off_voltage",
     ),
     EvaluatorSpec(
         "rectifier", "Rectifier DC output against its AC supply",

@@ -7,6 +7,12 @@ changes inside that band it returns the verdict at the reading with
 ``weights``: the share of the band giving each verdict. The reasoning can
 then weigh each outcome's likelihood instead of taking one for certain.
 
+Signatures (sharper verdicts such as ``half_wave``, see
+:class:`~diagnose.physics.registry.Signature`) are kept hard: when the
+verdict at the reading is a signature it is returned without weights, and
+when it is plain a signature found elsewhere in the band counts as its
+plain fallback, so weights never mix a signature with the verdict it sharpens.
+
 References:
     JCGM 100:2008 (GUM), 4.3.7 (from memory): a rectangular distribution
     over the limits of a meter's stated accuracy.
@@ -35,7 +41,8 @@ def soft_verdict(name: str, values: Mapping[str, Any], accuracy: float, *,
     ``accuracy`` is relative (0.01 for 1 % of reading); ``reading`` names the
     input it applies to (default: the evaluator's reading input). Every
     reading of a ``many`` input is scaled together. Weights sum to 1; they
-    are empty when one verdict holds across the band.
+    are empty when one verdict holds across the band, and when the verdict
+    at the reading is a signature (returned hard).
 
     Raises:
         InputError: an unknown evaluator, no reading input, a negative or
@@ -56,7 +63,7 @@ def soft_verdict(name: str, values: Mapping[str, Any], accuracy: float, *,
         raise InputError("accuracy", f"expected a fraction of reading such as 0.01, got {accuracy}")
     base = evaluate(name, values)
     raw = values.get(field)
-    if raw is None or accuracy == 0 or points < 2:
+    if raw is None or accuracy == 0 or points < 2 or base.fallback:
         return base
     if inp.many:
         numbers: Any = [units.parse_quantity(r, inp.unit, field, negative=True, open_ok=True)
@@ -67,7 +74,8 @@ def soft_verdict(name: str, values: Mapping[str, Any], accuracy: float, *,
     for i in range(points):
         factor = 1 + accuracy * (2 * i / (points - 1) - 1)
         scaled = [n * factor for n in numbers] if inp.many else numbers * factor
-        verdict = evaluate(name, {**values, field: scaled}).verdict
+        result = evaluate(name, {**values, field: scaled})
+        verdict = result.fallback or result.verdict
         counts[verdict] = counts.get(verdict, 0) + 1
     if len(counts) == 1:
         return base

@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 from typing import Any, Iterable
 
 #: Verdicts that mean "nothing wrong here"; the rest are shown as findings.
-GOOD_VERDICTS = frozenset({"ok", "matches", "releases", "within_rating"})
+GOOD_VERDICTS = frozenset({"ok", "matches", "releases", "within_rating", "off"})
 
 
 def format_number(value: float) -> str:
@@ -71,7 +71,12 @@ class Verdict:
     ``figures`` keeps insertion order (the order they are shown in);
     ``summary`` is one plain sentence for the screen and the repair log.
     ``weights`` is filled only for soft evidence near a band edge: verdict
-    name -> weight, summing to 1.
+    name -> weight, summing to 1. ``fallback`` is the plain verdict when
+    ``verdict`` is a signature (a sharper verdict, see
+    :class:`~diagnose.physics.registry.Signature`), and "" otherwise.
+    ``unjudged`` names the signatures that this reading could be but that the
+    inputs given could not tell (no AC volts known, no supply voltage known):
+    the plain verdict stands for "this, or one of those".
     """
 
     evaluator: str
@@ -79,6 +84,8 @@ class Verdict:
     figures: dict[str, Figure] = field(default_factory=dict)
     summary: str = ""
     weights: dict[str, float] = field(default_factory=dict)
+    fallback: str = ""
+    unjudged: tuple[str, ...] = ()
 
     def to_dict(self) -> dict[str, Any]:
         out: dict[str, Any] = {
@@ -89,6 +96,10 @@ class Verdict:
         }
         if self.weights:
             out["weights"] = dict(self.weights)
+        if self.unjudged:
+            out["unjudged"] = list(self.unjudged)
+        if self.fallback:
+            out["fallback"] = self.fallback
         return out
 
     @property
@@ -113,6 +124,8 @@ class Verdict:
         style = "bold green" if self.verdict in GOOD_VERDICTS else "bold red"
         line = Text("verdict: ")
         line.append(self.label, style=style)
+        if self.fallback:
+            line.append(f"  (plain verdict: {self.fallback.replace('_', ' ')})")
         if self.weights:
             shares = ", ".join(f"{name.replace('_', ' ')} {share:.0%}"
                                for name, share in self.weights.items())

@@ -8,7 +8,10 @@
 * the testability (``testability``) in site and in phone mode: detection and
   isolation shares, ambiguity groups with a hint each;
 * the expected effort to cure from the simulator, when the simulator is
-  installed, beside the entropy lower bound and the chart policy.
+  installed, beside the entropy lower bound and the chart policy; a share
+  ``UNKNOWN_RATE`` of the simulated calls has a cause outside the pack, and
+  the effort says how often each policy escalated (or ranked "unknown" first)
+  on those and how many repairs it tried in vain.
 
 The values render themselves on a rich console and turn into plain data with
 ``to_dict()`` (what ``--json`` prints and the Markdown / HTML reports read), so
@@ -50,6 +53,7 @@ from diagnose.reasoning.testability import (
 NO_SIMULATOR = "simulator not available: expected effort not computed"
 RUNS = 100  # simulated calls per policy and complaint, unless asked otherwise
 SEED = 1  # the same draws every time: the figures of two analyses compare
+UNKNOWN_RATE = 0.1  # share of simulated calls whose cause is outside the pack
 SHOWN_CUT_SETS = 12  # on screen; the JSON and the reports carry them all
 
 
@@ -59,8 +63,13 @@ class Effort:
 
     ``expected_*`` come from the simulator with the planner's policy,
     ``chart_*`` from the simulator with the fixed chart policy, ``bound_*``
-    are the entropy lower bound (see ``entropy_bound``). Fields the simulator
-    did not fill are ``None``; ``note`` says why.
+    are the entropy lower bound (see ``entropy_bound``). Minutes, checks and
+    ``cured`` are over the calls with a known cause. On the share
+    ``unknown_rate`` of calls with a cause outside the pack,
+    ``*escalated_when_unknown`` is the share the policy escalated, or ranked
+    "unknown" first before any repair, and ``*wrong_repairs_when_unknown`` the
+    mean repairs it tried (see ``diagnose.reasoning.simulate``). Fields the
+    simulator did not fill are ``None``; ``note`` says why.
     """
 
     available: bool
@@ -74,6 +83,11 @@ class Effort:
     entropy_bits: float | None = None
     cured: float | None = None  # share of simulated calls the planner cured (no escalation)
     runs: int | None = None
+    unknown_rate: float | None = None
+    escalated_when_unknown: float | None = None  # planner
+    wrong_repairs_when_unknown: float | None = None  # planner
+    chart_escalated_when_unknown: float | None = None
+    chart_wrong_repairs_when_unknown: float | None = None
 
     def to_dict(self) -> dict[str, Any]:
         return asdict(self)
@@ -233,27 +247,33 @@ def analyze(
     threshold: float = THRESHOLD,
     effort: bool = True,
     runs: int | None = None,
+    unknown_rate: float = UNKNOWN_RATE,
 ) -> PackAnalysis:
     """The knowledge analysis of ``model``: every complaint, or only ``complaint``.
 
     ``effort=False`` leaves out the simulator (the entropy bound is still
-    given); ``runs`` is passed on to the simulator when it takes a number of runs.
+    given); ``runs`` is passed on to the simulator when it takes a number of runs;
+    ``unknown_rate`` is the share of simulated calls with a cause outside the pack.
 
     Raises:
-        InputError: unknown complaint.
+        InputError: unknown complaint, ``unknown_rate`` outside [0, 1).
     """
     if complaint is not None and complaint not in model.complaints:
         known = ", ".join(model.complaints)
         raise InputError("--complaint", f"unknown complaint {complaint!r}; known: {known}")
+    if not 0.0 <= unknown_rate < 1.0:
+        raise InputError("--unknown-rate", f"give a share from 0 up to 1, got {unknown_rate}")
     ids = (complaint,) if complaint else tuple(model.complaints)
     simulator = _simulator() if effort else None
     if simulator is not None:
         note = f"simulated, {runs or RUNS} calls per policy and complaint (seed {SEED})"
+        if unknown_rate > 0:
+            note += f", {_pct(unknown_rate)} of them with a cause outside the pack"
     else:
         note = NO_SIMULATOR if effort else "effort not asked for"
     parts = tuple(
         analyze_complaint(model, cid, threshold=threshold, simulator=simulator, note=note,
-                          runs=runs)
+                          runs=runs, unknown_rate=unknown_rate)
         for cid in ids
     )
     causes = tuple(dict.fromkeys(c for cid in ids for c in model.tree_causes(cid)))
@@ -287,6 +307,7 @@ def analyze_complaint(
     simulator: Any = None,
     note: str = NO_SIMULATOR,
     runs: int | None = None,
+    unknown_rate: float = UNKNOWN_RATE,
 ) -> ComplaintAnalysis:
     """Fault tree, testability and effort of one complaint (see ``analyze``)."""
     sets = minimal_cut_sets(model, complaint)
@@ -295,7 +316,7 @@ def analyze_complaint(
     bound = entropy_bound(model, complaint)
     eff = Effort(available=False, note=note, **bound)
     if simulator is not None:
-        eff = simulator(model, complaint, bound, runs)
+        eff = simulator(model, complaint, bound, runs, unknown_rate)
     return ComplaintAnalysis(
         complaint=complaint,
         title=model.complaints[complaint].title,
@@ -375,29 +396,39 @@ def complaint_model(model: Model, complaint: str) -> Model:
 
 
 def _simulator() -> Any:
-    """A function (model, complaint, bound, runs) -> Effort, or None without the simulator."""
+    """A function (model, complaint, bound, runs, unknown_rate) -> Effort, or None without it."""
     try:
         from diagnose.reasoning.simulate import simulate
     except ImportError:
         return None
 
-    def run(model: Model, complaint: str, bound: dict[str, Any], runs: int | None) -> Effort:
+    def run(model: Model, complaint: str, bound: dict[str, Any], runs: int | None,
+            unknown_rate: float = UNKNOWN_RATE) -> Effort:
         n = runs or RUNS
         try:
             report = simulate(complaint_model(model, complaint), runs=n, seed=SEED,
-                              policies=("planner", "chart"))
+                              policies=("planner", "chart"), unknown_rate=unknown_rate)
         except DiagnoseError as exc:
             return Effort(available=False, note=f"simulator failed: {exc}", **bound)
         planner, chart = report.policies["planner"], report.policies["chart"]
+        note = f"{n} simulated calls per policy on this complaint's causes (seed {SEED})"
+        if unknown_rate > 0:
+            note = (f"{n} simulated calls per policy (seed {SEED}), {planner.unknown_runs} of "
+                    "them with a cause outside the pack, the rest on this complaint's causes")
         return Effort(
             available=True,
-            note=f"{n} simulated calls per policy on this complaint's causes (seed {SEED})",
+            note=note,
             expected_minutes=planner.mean_minutes,
             expected_checks=planner.mean_checks,
             chart_minutes=chart.mean_minutes,
             chart_checks=chart.mean_checks,
             cured=planner.cured,
             runs=n,
+            unknown_rate=unknown_rate,
+            escalated_when_unknown=planner.escalated_when_unknown,
+            wrong_repairs_when_unknown=planner.wrong_repairs_when_unknown,
+            chart_escalated_when_unknown=chart.escalated_when_unknown,
+            chart_wrong_repairs_when_unknown=chart.wrong_repairs_when_unknown,
             **bound,
         )
 
@@ -414,7 +445,17 @@ def _effort_line(e: Effort) -> str:
     line = f"effort to cure: {e.expected_minutes:.0f} min, {e.expected_checks:.1f} checks"
     if e.chart_minutes is not None:
         line += f"; chart {e.chart_minutes:.0f} min, {e.chart_checks:.1f} checks"
-    return line + (f"; {bound}" if bound else "")
+    line += f"; {bound}" if bound else ""
+    if e.escalated_when_unknown is not None and e.wrong_repairs_when_unknown is not None:
+        esc = f"planner {_pct(e.escalated_when_unknown)}"
+        wrong = f"planner {e.wrong_repairs_when_unknown:.1f}"
+        if (e.chart_escalated_when_unknown is not None
+                and e.chart_wrong_repairs_when_unknown is not None):
+            esc += f", chart {_pct(e.chart_escalated_when_unknown)}"
+            wrong += f", chart {e.chart_wrong_repairs_when_unknown:.1f}"
+        line += (f"\ncause outside the pack: escalated or 'unknown' first: {esc}; "
+                 f"repairs in vain: {wrong}")
+    return line
 
 
 def _num(x: float) -> str:

@@ -40,6 +40,9 @@ class Evidence:
         notes: free-text notes, in order.
         identity: facts about the unit and the call (serial number, customer, ...).
         end: the closing record, or None while the diagnosis is open.
+        steps: ("check" | "repair" | "state", id) in the order done: what the
+            state of the unit follows (see :mod:`diagnose.reasoning.unitstate`);
+            for "state" the id is ``"var=value"`` (the technician says so).
     """
 
     complaints: tuple[str, ...] = ()
@@ -55,6 +58,7 @@ class Evidence:
     notes: tuple[str, ...] = ()
     identity: Mapping[str, str] = field(default_factory=dict)
     end: Mapping[str, object] | None = None
+    steps: tuple[tuple[str, str], ...] = ()
 
     # --- questions --------------------------------------------------------------------
     @property
@@ -82,7 +86,7 @@ class Evidence:
         findings = dict(self.findings)
         findings[check] = dict(weights)
         return replace(self, findings=findings, unsure=self.unsure - {check},
-                       skipped=self.skipped - {check})
+                       skipped=self.skipped - {check}, steps=self.steps + (("check", check),))
 
     def with_outcome(self, check: str, outcome: str) -> Evidence:
         return self.with_finding(check, {outcome: 1.0})
@@ -90,14 +94,19 @@ class Evidence:
     def with_unsure(self, check: str) -> Evidence:
         findings = {k: v for k, v in self.findings.items() if k != check}
         return replace(self, findings=findings, unsure=self.unsure | {check},
-                       skipped=self.skipped - {check})
+                       skipped=self.skipped - {check}, steps=self.steps + (("check", check),))
 
     def with_skip(self, check: str) -> Evidence:
         return replace(self, skipped=self.skipped | {check})
 
     def with_repair(self, repair: str, cured: bool) -> Evidence:
         return replace(self, repairs=self.repairs + ((repair, bool(cured)),),
-                       repairs_skipped=self.repairs_skipped - {repair})
+                       repairs_skipped=self.repairs_skipped - {repair},
+                       steps=self.steps + (("repair", repair),))
+
+    def with_state(self, var: str, value: str) -> Evidence:
+        """The technician says the unit is now ``var = value`` (power restored, brake refitted)."""
+        return replace(self, steps=self.steps + (("state", f"{var}={value}"),))
 
     def with_skipped_repair(self, repair: str) -> Evidence:
         """``repair`` cannot be done now: not proposed again."""

@@ -64,8 +64,15 @@ import numpy as np
 from diagnose.errors import InputError
 from diagnose.kb.model import UNKNOWN_CAUSE, Check, Model
 from diagnose.reasoning.evidence import MODES, Evidence
+from diagnose.reasoning.nameplate import nameplate_value, only_if_matches
+from diagnose.reasoning.openworld import SUPPORT_MARGIN, any_support
 from diagnose.reasoning.posterior import Posterior, RankEntry, posterior
 from diagnose.reasoning.tables import Tables, tables_for
+from diagnose.reasoning.unitstate import setup_minutes, setup_steps, unit_state
+
+__all__ = ["DEFAULT", "Action", "CheckScore", "ChecksTable", "Plan", "RepairScore", "Settings",
+           "check_status", "checks_table", "missing_prerequisites", "nameplate_value",
+           "next_action", "only_if_matches", "plan"]
 
 EPS = 1e-12  # a probability at or below this counts as "no longer possible"
 _BATCH = 2_000_000  # largest (checks × outcomes × m × m) array of one look-ahead batch
@@ -75,7 +82,7 @@ _BATCH = 2_000_000  # largest (checks × outcomes × m × m) array of one look-a
 class Settings:
     """The decision rule's knobs (see the module docstring)."""
 
-    threshold: float = 0.9
+    threshold: float = 0.97
     act_floor: float = 0.9
     min_bits: float = 0.05
     escalation_minutes: float = 480.0
@@ -204,9 +211,9 @@ class RepairScore:
 
 
 _CHECK_STATUS = ("", "done", "unsure", "skipped", "site only", "not for this unit",
-                 "preparation", "one outcome", "blocked")
+                 "preparation", "one outcome", "blocked", "not in this state")
 _REPAIR_STATUS = ("", "done", "site only", "blocked", "fixes nothing still possible",
-                  "skipped")
+                  "skipped", "not for this unit")
 
 
 @dataclass(frozen=True, eq=False)
@@ -236,6 +243,8 @@ class Plan:
     repair_code: np.ndarray
     repair_needs: dict[int, tuple[str, ...]]
     repair_blocked: dict[int, str]
+    supported: bool = True  # some answer points at a known cause
+    check_setup: dict[int, tuple[tuple[str, str], ...]] = field(default_factory=dict)
 
     def checks(self, limit: int | None = None) -> tuple[CheckScore, ...]:
         """Checks, those that can be proposed first, by ECO (least first)."""
@@ -306,32 +315,6 @@ class ChecksTable:
 
 # --- availability ----------------------------------------------------------------------------
 
-def _squash(value: Any) -> str:
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    return str(value).strip().lower().replace("-", "_").replace(" ", "_")
-
-
-def nameplate_value(model: Model, evidence: Evidence, param: str) -> str | None:
-    """The nameplate value in use (the answer, else the pack default); None when unknown."""
-    value = evidence.nameplate.get(param)
-    if value is None:
-        p = model.parameters.get(param)
-        value = p.default if p is not None else None
-    if value is None or _squash(value) == "unknown":
-        return None
-    return str(value)
-
-
-def only_if_matches(model: Model, evidence: Evidence, check: Check) -> bool:
-    """Whether the nameplate allows ``check``; an unknown value does not rule it out."""
-    for param, wanted in (check.only_if or {}).items():
-        have = nameplate_value(model, evidence, param)
-        if have is not None and _squash(have) != _squash(wanted):
-            return False
-    return True
-
-
 def _satisfied(model: Model, evidence: Evidence, cid: str) -> bool:
     """A prerequisite is met when done, or when it does not apply to this unit."""
     if cid in evidence.done:
@@ -389,6 +372,9 @@ def check_status(model: Model, evidence: Evidence, check: Check) -> str:
     if len(check.outcomes) < 2:
         return "one outcome"
     _, blocked = missing_prerequisites(model, evidence, check.needs)
+    if not blocked and setup_minutes(model, unit_state(model, evidence), check.requires) \
+            == float("inf"):
+        return "not in this state"
     return blocked
 
 
@@ -457,11 +443,14 @@ def _entropy_terms(x: np.ndarray) -> np.ndarray:
 
 def lookahead(tables: Tables, p: np.ndarray, cand: np.ndarray, check_cost: np.ndarray,
               assign: np.ndarray, repair_cost: np.ndarray, escalation: float,
+              detail: list[np.ndarray] | None = None,
               ) -> tuple[np.ndarray, np.ndarray, float]:
     """Expected information (bits) and ECO of each candidate check, and ECR now.
 
     ``cand`` indexes ``tables.check_ids``; ``check_cost`` is per candidate;
-    ``assign`` maps hypotheses to repairs (see :func:`assign_repairs`).
+    ``assign`` maps hypotheses to repairs (see :func:`assign_repairs`). When
+    ``detail`` is a list, P(outcome) and the ECR after each outcome (both
+    candidates × outcomes) are appended to it.
     """
     R = len(tables.repair_ids)
     s = tables.success
@@ -483,6 +472,8 @@ def lookahead(tables: Tables, p: np.ndarray, cand: np.ndarray, check_cost: np.nd
 
     K = len(cand)
     if K == 0:
+        if detail is not None:
+            detail += [np.zeros((0, 1)), np.zeros((0, 1))]
         return np.zeros(0), np.zeros(0), ecr_now
     remap = np.full(len(tables.check_ids), -1, dtype=np.int64)
     remap[cand] = np.arange(K)
@@ -548,6 +539,8 @@ def lookahead(tables: Tables, p: np.ndarray, cand: np.ndarray, check_cost: np.nd
             p_before, c_from, g_cum, alpha[batch], escalation)
         lo = hi
     eco = check_cost + (z * ecr_after).sum(axis=1)
+    if detail is not None:
+        detail += [z, ecr_after]
     return bits, eco, ecr_now
 
 
@@ -673,6 +666,15 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
     for i in tables.checks_only_if:
         if not only_if_matches(model, evidence, model.checks[tables.check_ids[i]]):
             code[i] = 5
+    state = unit_state(model, evidence)
+    setups: dict[int, tuple[tuple[str, str], ...]] = {}
+    for i in tables.checks_requiring:
+        extra = setup_minutes(model, state, model.checks[tables.check_ids[i]].requires)
+        if extra == float("inf"):
+            code[i] = 9
+        elif extra > 0:
+            cmin[i] += extra
+            setups[i] = setup_steps(model, state, model.checks[tables.check_ids[i]].requires)
     if phone:
         code[~tables.check_phone] = 4
     for ids, c in ((evidence.skipped, 3), (evidence.unsure, 2), (evidence.findings, 1)):
@@ -688,6 +690,9 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
                                       tables.repair_needs, rmin, rcode, 3)
     p_fix = np.bincount(tables.fix_repair, weights=p[tables.fix_hyp], minlength=R)
     rcode[(p_fix <= EPS) & (rcode == 0)] = 4
+    for i in tables.repairs_only_if:
+        if not only_if_matches(model, evidence, model.repairs[tables.repair_ids[i]]):
+            rcode[i] = 6
     if phone:
         rcode[~tables.repair_phone] = 2
     for rid in evidence.repairs_skipped:
@@ -699,16 +704,38 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
 
     cand = np.flatnonzero(code == 0)
     assign = assign_repairs(tables, usable, rmin)
+    supported = any_support(model, evidence, post.excluded)
+    detail: list[np.ndarray] = []
     bits_c, eco_c, ecr_now = lookahead(tables, p, cand, cmin[cand], assign, rmin,
-                                       settings.escalation_minutes)
+                                       settings.escalation_minutes, detail)
+    if not supported and len(cand):
+        # no answer points at a known cause yet, so no repair may follow a normal answer:
+        # after an outcome that supports no cause the cost is an escalation
+        z, ecr_after = detail
+        neutral = _neutral_outcomes(model, tables, cand, z.shape[1], post.excluded)
+        ecr_after = np.where(neutral, settings.escalation_minutes, ecr_after)
+        eco_c = cmin[cand] + (z * ecr_after).sum(axis=1)
     bits = np.zeros(len(code))
     eco = np.full(len(code), np.nan)
     bits[cand], eco[cand] = bits_c, eco_c
     result = Plan(Action("done"), post.ranking(limit=1).top, ecr_now, model, tables.check_ids,
                   cmin, bits, eco, code, cneeds, cblocked, tables.repair_ids, rmin, p_fix,
-                  tables.success * p_fix, rcode, rneeds, rblocked)
+                  tables.success * p_fix, rcode, rneeds, rblocked, supported, setups)
     action = _decide(model, evidence, post, settings, result)
     return replace(result, action=action)
+
+
+def _neutral_outcomes(model: Model, tables: Tables, cand: np.ndarray, width: int,
+                      excluded: frozenset[str]) -> np.ndarray:
+    """(candidates × outcomes): True where the outcome points at no cause still possible."""
+    out = np.ones((len(cand), width), dtype=bool)
+    for row, k in enumerate(cand):
+        chk = model.checks[tables.check_ids[k]]
+        for j, o in enumerate(chk.outcomes):
+            base = chk.normal.get(o, 0.0) * SUPPORT_MARGIN
+            out[row, j] = not any(r.get(o, 0.0) > base for c, r in chk.effects.items()
+                                  if c not in excluded)
+    return out
 
 
 def _prerequisites(model: Model, evidence: Evidence, which: tuple[int, ...],
@@ -752,6 +779,8 @@ def _decide(model: Model, evidence: Evidence, post: Posterior, settings: Setting
     if post.contradiction or post.unknown >= thr:
         return _escalate(post, _ON_PHONE["fits none"] if phone else
                          "the evidence fits none of the known causes")
+    if not pl.supported:
+        return _unsupported(model, evidence, post, settings, pl, phone)
     top = pl.top
     known = top.cause != UNKNOWN_CAUSE
     live = pl.repair_code == 0
@@ -775,8 +804,12 @@ def _decide(model: Model, evidence: Evidence, post: Posterior, settings: Setting
                                  if phone else "observing first saves minutes")
         if known and top.p >= settings.act_floor and for_top.any():
             best = int(np.argmax(np.where(for_top, ratio, -np.inf)))
-            return _repair_action(pl, best, _ON_PHONE["try now"] if phone else
-                                  "repairing now is cheaper")
+            # below the threshold, repair only when being wrong costs less than a look
+            regret = (1.0 - top.p) * float(pl.repair_minutes[best])
+            cheapest = float(np.min(np.where(informative, pl.check_minutes, np.inf)))
+            if top.p >= thr or regret <= cheapest:
+                return _repair_action(pl, best, _ON_PHONE["try now"] if phone else
+                                      "repairing now is cheaper")
         return _check_action(pl, best_c, _phone_question(model, post, pl.check_ids[best_c])
                              if phone else "not yet sure enough to repair")
     if not known:
@@ -792,6 +825,30 @@ def _decide(model: Model, evidence: Evidence, post: Posterior, settings: Setting
     return _escalate(post, "no repair left worth its minutes")
 
 
+def _unsupported(model: Model, evidence: Evidence, post: Posterior, settings: Settings,
+                 pl: Plan, phone: bool) -> Action:
+    """No answer points at a known cause yet: no repair; observe while worth it, then escalate.
+
+    A check is worth its minutes when it is informative (``min_bits``) and
+    observing costs less in expectation than escalating now.
+    """
+    informative = (pl.check_code == 0) & (pl.check_bits >= settings.min_bits)
+    if phone and informative.any():  # a question costs the caller little; the visit is next
+        best_c = int(np.argmin(np.where(informative, pl.check_eco, np.inf)))
+        return _check_action(pl, best_c, _phone_question(model, post, pl.check_ids[best_c]))
+    worth = informative & (pl.check_eco < settings.escalation_minutes)
+    if worth.any():
+        best_c = int(np.argmin(np.where(worth, pl.check_eco, np.inf)))
+        return _check_action(pl, best_c, "no answer points at a cause yet: observe first")
+    if phone:
+        if pl.top.cause == UNKNOWN_CAUSE:
+            return _escalate(post, _ON_PHONE["all normal"])
+        return _visit(model, evidence, post, "nothing more to learn by phone; no answer "
+                      "points at a cause yet")
+    return _escalate(post, "every answer reads normal and no check left is worth its "
+                           "minutes: none of the known causes is shown")
+
+
 #: Reasons in phone mode: no work on site is proposed, so none is spoken of.
 _ON_PHONE = {
     "fits none": "the answers fit none of the known causes: a site visit with an "
@@ -799,6 +856,8 @@ _ON_PHONE = {
     "unknown leads": "none of the known causes fits best: a site visit with an application "
                      "engineer is needed",
     "try now": "the caller can try this now, before a site visit is sent",
+    "all normal": "every answer from the caller reads normal: a site visit with an "
+                  "application engineer is needed",
 }
 
 

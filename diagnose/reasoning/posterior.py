@@ -11,6 +11,14 @@ When every hypothesis is ruled out (a probability of exactly 0 somewhere in
 each), the evidence fits nothing: the posterior puts all mass on "unknown"
 and says so with ``contradiction``.
 
+Two rules about this unit come on top of Bayes' rule:
+
+* a cause the nameplate rules out (``only_if``, see
+  :mod:`diagnose.reasoning.nameplate`) has prior 0 and leaves the ranking;
+* the open-world rule (:mod:`diagnose.reasoning.openworld`): a cause that no
+  available check can observe keeps at most its probability from the
+  complaint alone, and the rest goes to "none of the known causes".
+
 References:
     J. Pearl, *Probabilistic Reasoning in Intelligent Systems*, Morgan
     Kaufmann, 1988, 2.2.2 (virtual evidence: likelihood Σ_o w_o P(o|h)).
@@ -22,7 +30,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -30,6 +38,8 @@ import numpy as np
 from diagnose.errors import InputError
 from diagnose.kb.model import UNKNOWN_CAUSE, Model
 from diagnose.reasoning.evidence import Evidence
+from diagnose.reasoning.nameplate import excluded_causes
+from diagnose.reasoning.openworld import cap_unobservable, unobservable_causes
 from diagnose.reasoning.tables import Tables, tables_for
 
 
@@ -144,6 +154,7 @@ class Posterior:
     tables: Tables
     p: np.ndarray
     contradiction: bool = False
+    excluded: frozenset[str] = frozenset()
 
     @property
     def unknown(self) -> float:
@@ -172,6 +183,12 @@ class Posterior:
             order = part[np.lexsort((part, -values[part]))]
         model = t.model
         entries = []
+        if self.excluded:  # ruled out by the nameplate: not in the ranking at all
+            gone = {t.cause_index[c] for c in self.excluded if c in t.cause_index}
+            if limit is not None and limit < len(values):
+                return replace(self, excluded=frozenset()).ranking(limit + len(gone)) \
+                    .without(self.excluded, limit)
+            order = np.array([i for i in order if int(i) not in gone], dtype=np.int64)
         for i in order:
             cid = t.causes[i] if i < t.n_causes else UNKNOWN_CAUSE
             title = model.causes[cid].title if cid in model.causes else "None of the known causes"
@@ -184,8 +201,13 @@ class Posterior:
         return Ranking(tuple(entries), hyps, t.max_faults, self.contradiction, model.id)
 
 
-def posterior(model: Model, evidence: Evidence, *, max_faults: int = 1) -> Posterior:
-    """The exact posterior of the model given ``evidence``.
+def posterior(model: Model, evidence: Evidence, *, max_faults: int = 1,
+              open_world: bool = True) -> Posterior:
+    """The posterior of the model given ``evidence``: Bayes' rule, then the open-world rule.
+
+    With ``open_world=False`` it is the exact Bayesian posterior of the model
+    (what the reference tests compare with brute force and pgmpy); the
+    nameplate's exclusions are part of it (a prior of 0).
 
     Raises:
         InputError: unknown ids in the evidence, or a bad ``max_faults``.
@@ -198,10 +220,26 @@ def posterior(model: Model, evidence: Evidence, *, max_faults: int = 1) -> Poste
     'fuse_blown'
     """
     tables = tables_for(model, max_faults)
-    p, bad = normalise(log_posterior(tables, evidence))
+    excluded = excluded_causes(model, evidence)
+    logw = log_posterior(tables, evidence)
+    if excluded:
+        logw = logw + tables.exclusion(excluded)
+    p, bad = normalise(logw)
     if bad:
         p[tables.unknown] = 1.0
-    return Posterior(tables, p, bad)
+        return Posterior(tables, p, bad, excluded)
+    hidden = unobservable_causes(model, evidence) - excluded if open_world else frozenset()
+    if hidden:
+        capped = tables.hypotheses_within(hidden)
+        if len(capped):
+            base = tables.log_prior.copy()
+            for k in evidence.complaints:
+                base += np.log(tables.complaint(k))
+            if excluded:
+                base += tables.exclusion(excluded)
+            baseline, _ = normalise(base)
+            p = cap_unobservable(p, baseline, capped, tables.unknown)
+    return Posterior(tables, p, bad, excluded)
 
 
 @dataclass(frozen=True)
@@ -232,6 +270,11 @@ class Ranking:
     @property
     def top(self) -> RankEntry:
         return self.entries[0]
+
+    def without(self, causes: frozenset[str], limit: int | None = None) -> Ranking:
+        """The same ranking without ``causes`` (at most ``limit`` entries)."""
+        kept = tuple(e for e in self.entries if e.cause not in causes)
+        return replace(self, entries=kept[:limit] if limit is not None else kept)
 
     def to_list(self) -> list[dict[str, Any]]:
         return [e.to_dict() for e in self.entries]

@@ -1,7 +1,8 @@
 """Simulated service calls: how fast and how well each policy finds and cures the cause.
 
 Each run draws a true cause from the priors (known causes only: a run must be
-curable), then the complaint from the complaints whose fault tree that cause
+curable; the simulated unit has the pack's default nameplate, so a cause that
+nameplate rules out with ``only_if`` is never drawn), then the complaint from the complaints whose fault tree that cause
 produces alone (uniformly; when none does, because of AND gates, from those
 whose tree holds it). Every check answers from the true cause's row of its
 effects (``normal`` for a cause it does not list; measurements give their
@@ -10,8 +11,17 @@ different outcome, chosen uniformly. A repair that fixes the true cause cures
 with probability ``success``; any other repair does not. A run ends at the
 cure, or at an escalation, which adds ``escalation_minutes``.
 
+Unknown causes: a share ``unknown_rate`` of the runs has a true cause outside
+the pack. Such a run gets a complaint drawn uniformly from the pack's
+complaints; every check answers from its ``normal`` row (the outcomes when
+none of the listed causes is present), with the same answer noise, and no
+repair cures.
+
 All draws (true causes, complaints, answers, cures) come from ``seed`` before
 any policy runs, so every policy meets the same cases and the same answers.
+Which runs are unknown, and their complaints, come from a second stream
+(``[seed, 7]``): with ``unknown_rate=0`` every draw and figure is the same as
+without unknown runs, and with a higher rate the known runs keep their draws.
 
 Policies:
 
@@ -33,8 +43,19 @@ Reported per policy: mean checks, mean minutes to a cure (an escalation counts
 all runs), top-1 accuracy (the top of the posterior ranking, at the moment the
 first repair is chosen, is the true cause; over the runs that reach a repair),
 first-repair hits (the first repair fixes the true cause; same runs) and the
-share of runs cured (the rest were escalated). The
-information-theoretic lower bound on the number of checks is the entropy of
+share of runs cured (the rest were escalated); all of them over the runs with a
+known cause. Over the runs with an unknown cause (when there are any):
+
+* ``escalated_when_unknown``: the share of those runs that end in an
+  escalation (or, for the planner, a site visit) or that have "unknown" on top
+  of the posterior ranking before any repair (when the first repair is chosen,
+  or at the end of a run without repairs). The chart policies never escalate,
+  so for them only the second part can count: the posterior knew, the chart
+  did not ask;
+* ``wrong_repairs_when_unknown``: the mean number of repairs tried (none of
+  them can cure).
+
+The information-theoretic lower bound on the number of checks is the entropy of
 the cause prior over log2 of the most outcomes any check has.
 
 References:
@@ -54,7 +75,7 @@ from typing import Any
 import numpy as np
 
 from diagnose.errors import InputError
-from diagnose.kb.model import Model
+from diagnose.kb.model import UNKNOWN_CAUSE, Model
 from diagnose.reasoning.evidence import Evidence
 from diagnose.reasoning.planner import (
     DEFAULT,
@@ -63,28 +84,51 @@ from diagnose.reasoning.planner import (
     next_action,
     only_if_matches,
 )
+from diagnose.reasoning.nameplate import excluded_causes
 from diagnose.reasoning.posterior import posterior
+from diagnose.reasoning.unitstate import setup_minutes, unit_state
 
 POLICIES = ("planner", "chart", "listing", "random")
+_UNKNOWN_STREAM = 7  # the unknown runs come from np.random.default_rng([seed, 7])
 
 
 @dataclass(frozen=True, eq=False)
 class Draws:
-    """Everything random about a batch of runs, drawn once from the seed."""
+    """Everything random about a batch of runs, drawn once from the seed.
+
+    For a run with a cause outside the pack, ``unknown[i]`` is True and
+    ``causes[i]`` is ``UNKNOWN_CAUSE``.
+    """
 
     causes: tuple[str, ...]
     complaints: tuple[str, ...]
     answer: np.ndarray  # (runs, checks, 3) uniforms: outcome, noise or not, which wrong one
     cure: np.ndarray  # (runs, repairs) uniforms
     order: np.ndarray  # (runs, checks) uniforms for the random policy
+    unknown: tuple[bool, ...] = ()  # per run: the true cause is outside the pack
+
+    def is_unknown(self, i: int) -> bool:
+        """Whether run ``i`` has a true cause outside the pack."""
+        return bool(self.unknown) and self.unknown[i]
 
 
-def draw_cases(model: Model, runs: int, seed: int) -> Draws:
-    """True causes and complaints (see the module docstring) and every uniform a run may use."""
+def draw_cases(model: Model, runs: int, seed: int, *, unknown_rate: float = 0.0) -> Draws:
+    """True causes and complaints (see the module docstring) and every uniform a run may use.
+
+    Raises:
+        InputError: runs < 1, ``unknown_rate`` outside [0, 1), a cause that reaches no
+            complaint.
+    """
     if runs < 1:
         raise InputError("runs", f"expected at least 1, got {runs}")
+    if not 0.0 <= unknown_rate < 1.0:
+        raise InputError("unknown_rate", f"expected a share from 0 up to 1, got {unknown_rate}")
     rng = np.random.default_rng(seed)
-    ids = list(model.causes)
+    # the simulated unit has the pack's default nameplate: a cause it rules out cannot occur
+    excluded = excluded_causes(model, Evidence())
+    ids = [c for c in model.causes if c not in excluded]
+    if not ids:
+        raise InputError("pack", "the default nameplate rules out every cause")
     prior = np.array([model.causes[c].prior for c in ids], dtype=float)
     picks = rng.choice(len(ids), size=runs, p=prior / prior.sum())
     produced: dict[str, list[str]] = {}
@@ -100,13 +144,24 @@ def draw_cases(model: Model, runs: int, seed: int) -> Draws:
             raise InputError("pack", f"cause {c} reaches no complaint")
         causes.append(c)
         complaints.append(options[int(pick_k[i] * len(options))])
+    # A separate stream: the main one, and so every known run, stays as it was.
+    side = np.random.default_rng([seed, _UNKNOWN_STREAM])
+    unknown = side.random(runs) < unknown_rate
+    any_complaint = side.integers(len(model.complaints), size=runs)
+    ks = list(model.complaints)
+    for i in np.flatnonzero(unknown):
+        causes[i] = UNKNOWN_CAUSE
+        complaints[i] = ks[int(any_complaint[i])]
     return Draws(tuple(causes), tuple(complaints), rng.random((runs, len(model.checks), 3)),
-                 rng.random((runs, len(model.repairs))), rng.random((runs, len(model.checks))))
+                 rng.random((runs, len(model.repairs))), rng.random((runs, len(model.checks))),
+                 tuple(bool(u) for u in unknown))
 
 
 @dataclass(frozen=True)
 class RunResult:
-    cause: str
+    """How one simulated call went under one policy."""
+
+    cause: str  # UNKNOWN_CAUSE for a cause outside the pack
     complaint: str
     checks: int
     minutes: float
@@ -115,11 +170,21 @@ class RunResult:
     first_repair_cured: bool
     top1: bool
     first_hit: bool
+    unknown: bool = False  # the true cause is outside the pack
+    escalated: bool = False  # the policy escalated or asked for a visit (not ran out, not cured)
+    repairs: int = 0  # repairs tried
+    unknown_top_before_repair: bool = False  # "unknown" led at the first repair or at the end
 
 
 @dataclass(frozen=True)
 class PolicyReport:
-    """The averages of one policy over all runs."""
+    """The averages of one policy: over the known-cause runs, and over the unknown ones.
+
+    ``runs`` counts every run; the figures from ``mean_checks`` to ``cured`` are
+    over the runs with a known cause (0.0 when there are none). The two
+    ``*_when_unknown`` figures are over the ``unknown_runs`` (``None`` when there
+    are none); ``to_dict`` carries them when ``unknown_rate`` > 0.
+    """
 
     policy: str
     runs: int
@@ -129,15 +194,29 @@ class PolicyReport:
     top1_accuracy: float
     first_repair_hits: float
     cured: float
+    unknown_rate: float = 0.0
+    unknown_runs: int = 0
+    escalated_when_unknown: float | None = None
+    wrong_repairs_when_unknown: float | None = None
 
     def to_dict(self) -> dict[str, Any]:
-        return {"policy": self.policy, "runs": self.runs,
-                "mean_checks": round(self.mean_checks, 4),
-                "mean_minutes": round(self.mean_minutes, 3),
-                "first_repair_success": round(self.first_repair_success, 4),
-                "top1_accuracy": round(self.top1_accuracy, 4),
-                "first_repair_hits": round(self.first_repair_hits, 4),
-                "cured": round(self.cured, 4)}
+        out: dict[str, Any] = {
+            "policy": self.policy, "runs": self.runs,
+            "mean_checks": round(self.mean_checks, 4),
+            "mean_minutes": round(self.mean_minutes, 3),
+            "first_repair_success": round(self.first_repair_success, 4),
+            "top1_accuracy": round(self.top1_accuracy, 4),
+            "first_repair_hits": round(self.first_repair_hits, 4),
+            "cured": round(self.cured, 4)}
+        if self.unknown_rate > 0:
+            out["unknown_runs"] = self.unknown_runs
+            out["escalated_when_unknown"] = _round(self.escalated_when_unknown, 4)
+            out["wrong_repairs_when_unknown"] = _round(self.wrong_repairs_when_unknown, 4)
+        return out
+
+
+def _round(x: float | None, digits: int) -> float | None:
+    return None if x is None else round(x, digits)
 
 
 @dataclass(frozen=True)
@@ -151,6 +230,7 @@ class SimulationReport:
     entropy_bound: float
     prior_entropy_bits: float
     policies: dict[str, PolicyReport] = field(default_factory=dict)
+    unknown_rate: float = 0.0
 
     @property
     def main(self) -> PolicyReport:
@@ -159,7 +239,10 @@ class SimulationReport:
 
     def to_dict(self) -> dict[str, Any]:
         out: dict[str, Any] = {"pack": self.pack, "runs": self.runs, "seed": self.seed,
-                               "noise": self.noise, **self.main.to_dict(),
+                               "noise": self.noise,
+                               **({"unknown_rate": self.unknown_rate}
+                                  if self.unknown_rate > 0 else {}),
+                               **self.main.to_dict(),
                                "entropy_bound": round(self.entropy_bound, 4),
                                "prior_entropy_bits": round(self.prior_entropy_bits, 4)}
         if len(self.policies) > 1:
@@ -182,7 +265,18 @@ class SimulationReport:
                 ("cured", "cured", "{:.3f}"))
         for label, key, fmt in rows:
             t.add_row(label, *(fmt.format(getattr(r, key)) for r in self.policies.values()))
+        if any(r.unknown_runs for r in self.policies.values()):
+            for label, key, fmt in (("unknown: escalated", "escalated_when_unknown", "{:.3f}"),
+                                    ("unknown: repairs", "wrong_repairs_when_unknown",
+                                     "{:.2f}")):
+                t.add_row(label, *("n/a" if getattr(r, key) is None
+                                   else fmt.format(getattr(r, key))
+                                   for r in self.policies.values()))
         yield t
+        if self.unknown_rate > 0:
+            yield (f"unknown cause in {self.main.unknown_runs} of {self.runs} runs "
+                   f"(rate {self.unknown_rate:g}); the figures above the 'unknown' rows "
+                   "are over the known-cause runs")
         yield (f"entropy bound: {self.entropy_bound:.2f} checks "
                f"({self.prior_entropy_bits:.2f} bits of cause prior)")
         if "planner" in self.policies and "chart" in self.policies:
@@ -198,17 +292,28 @@ class _Run:
                  check_pos: dict[str, int], repair_pos: dict[str, int]) -> None:
         self.model, self.draws, self.i, self.noise = model, draws, i, noise
         self.cause = draws.causes[i]
+        self.unknown = draws.is_unknown(i)
         self.evidence = Evidence(complaints=(draws.complaints[i],))
         self.check_pos, self.repair_pos = check_pos, repair_pos
         self.checks = 0
         self.minutes = 0.0
         self.cured = False
+        self.escalated = False
+        self.repairs = 0
         self.first: tuple[bool, bool, bool] | None = None  # cured, top1, hit
+        self.unknown_top = False  # "unknown" led the ranking when the first repair was chosen
 
-    def answer(self, cid: str) -> str:
+    def answer(self, cid: str, free: bool = False) -> str:
+        """Answer ``cid`` from the draws; it costs its minutes and any setup of the unit's state.
+
+        ``free``: observed in plain sight during a repair (no minutes).
+        """
         chk = self.model.checks[cid]
+        if not free:
+            self.minutes += setup_minutes(self.model, unit_state(self.model, self.evidence),
+                                          chk.requires)
         u = self.draws.answer[self.i, self.check_pos[cid]]
-        row = chk.effects.get(self.cause, chk.normal)
+        row = chk.normal if self.unknown else chk.effects.get(self.cause, chk.normal)
         probs = np.array([row.get(o, 0.0) for o in chk.outcomes], dtype=float)
         cum = np.cumsum(probs / probs.sum())
         k = min(int(np.searchsorted(cum, u[0], side="right")), len(chk.outcomes) - 1)
@@ -217,31 +322,45 @@ class _Run:
             k = others[int(u[2] * len(others))]
         outcome = chk.outcomes[k]
         self.evidence = self.evidence.with_outcome(cid, outcome)
-        self.checks += 1
-        self.minutes += chk.minutes
+        if not free:
+            self.checks += 1
+            self.minutes += chk.minutes
         return outcome
 
     def repair(self, rid: str, max_faults: int = 1) -> bool:
         r = self.model.repairs[rid]
-        hit = self.cause in r.fixes
+        hit = not self.unknown and self.cause in r.fixes
         cured = bool(hit and self.draws.cure[self.i, self.repair_pos[rid]] < r.success)
         if self.first is None:
             top = posterior(self.model, self.evidence, max_faults=max_faults).top()[0]
             self.first = (cured, top == self.cause, hit)
+            self.unknown_top = top == UNKNOWN_CAUSE
+        observed = [c for c in r.observes if c in self.model.checks
+                    and c not in self.evidence.done
+                    and only_if_matches(self.model, self.evidence, self.model.checks[c])]
+        for cid in observed:  # in plain sight while the brake is apart
+            self.answer(cid, free=True)
         self.evidence = self.evidence.with_repair(rid, cured)
         self.minutes += r.minutes
         self.cured = cured
+        self.repairs += 1
         return cured
 
     def prerequisites(self, needs: tuple[str, ...]) -> None:
         for cid in missing_prerequisites(self.model, self.evidence, needs)[0]:
             self.answer(cid)
 
-    def result(self, escalation: float) -> RunResult:
+    def result(self, escalation: float, max_faults: int = 1) -> RunResult:
         first = self.first or (False, False, False)
         minutes = self.minutes + (0.0 if self.cured else escalation)
+        unknown_top = self.unknown_top
+        if self.first is None:  # no repair: the ranking at the end of the run
+            top = posterior(self.model, self.evidence, max_faults=max_faults).top()[0]
+            unknown_top = top == UNKNOWN_CAUSE
         return RunResult(self.cause, self.draws.complaints[self.i], self.checks, minutes,
-                         self.cured, self.first is not None, *first)
+                         self.cured, self.first is not None, *first, unknown=self.unknown,
+                         escalated=self.escalated, repairs=self.repairs,
+                         unknown_top_before_repair=unknown_top)
 
 
 def _planner(run: _Run, settings: Settings, max_faults: int, limit: int) -> None:
@@ -253,6 +372,7 @@ def _planner(run: _Run, settings: Settings, max_faults: int, limit: int) -> None
             if run.repair(action.id, max_faults):
                 return
         else:
+            run.escalated = action.kind in ("escalate", "visit")
             return
 
 
@@ -336,18 +456,22 @@ def entropy_bound(model: Model) -> tuple[float, float]:
 
 def simulate(model: Model, *, runs: int, seed: int, noise: float = 0.0,
              policies: tuple[str, ...] = POLICIES, settings: Settings = DEFAULT,
-             max_faults: int = 1) -> SimulationReport:
+             max_faults: int = 1, unknown_rate: float = 0.0) -> SimulationReport:
     """Run ``runs`` simulated calls with each policy on the same draws.
 
+    ``unknown_rate`` is the share of calls whose true cause is outside the
+    pack (see the module docstring); 0 gives exactly the figures of a run
+    without unknown causes.
+
     Raises:
-        InputError: unknown policy, ``noise`` outside [0, 1), runs < 1.
+        InputError: unknown policy, ``noise`` or ``unknown_rate`` outside [0, 1), runs < 1.
     """
     bad = [p for p in policies if p not in POLICIES]
     if bad:
         raise InputError("policy", f"unknown policy {bad[0]!r}; known: {', '.join(POLICIES)}")
     if not 0.0 <= noise < 1.0:
         raise InputError("noise", f"expected a probability below 1, got {noise}")
-    draws = draw_cases(model, runs, seed)
+    draws = draw_cases(model, runs, seed, unknown_rate=unknown_rate)
     check_pos = {c: i for i, c in enumerate(model.checks)}
     repair_pos = {r: i for i, r in enumerate(model.repairs)}
     limit = len(model.checks) + len(model.repairs) + 5
@@ -369,17 +493,35 @@ def simulate(model: Model, *, runs: int, seed: int, noise: float = 0.0,
                 base = charts.setdefault(k, chart_order(model, k))
                 shuffle = np.argsort(draws.order[i, [check_pos[c] for c in base]])
                 _chart(run, tuple(base[j] for j in shuffle))
-            results.append(run.result(settings.escalation_minutes))
-        repaired = [r for r in results if r.repaired] or results[:1]
-        reports[policy] = PolicyReport(
-            policy, runs,
-            float(np.mean([r.checks for r in results])),
-            float(np.mean([r.minutes for r in results])),
-            float(np.mean([r.first_repair_cured for r in results])),
-            float(np.mean([r.top1 for r in repaired])) if any(r.repaired for r in results)
-            else 0.0,
-            float(np.mean([r.first_hit for r in repaired])) if any(r.repaired for r in results)
-            else 0.0,
-            float(np.mean([r.cured for r in results])))
+            results.append(run.result(settings.escalation_minutes,
+                                      max_faults if policy == "planner" else 1))
+        reports[policy] = policy_report(policy, results, unknown_rate)
     bound, bits = entropy_bound(model)
-    return SimulationReport(model.id, runs, seed, noise, bound, bits, reports)
+    return SimulationReport(model.id, runs, seed, noise, bound, bits, reports, unknown_rate)
+
+
+def policy_report(policy: str, results: list[RunResult],
+                  unknown_rate: float = 0.0) -> PolicyReport:
+    """The averages of ``results`` (see :class:`PolicyReport` and the module docstring)."""
+    known = [r for r in results if not r.unknown]
+    unknown = [r for r in results if r.unknown]
+
+    def mean(values: list[Any]) -> float:
+        return float(np.mean(values)) if values else 0.0
+
+    repaired = [r for r in known if r.repaired]
+    return PolicyReport(
+        policy, len(results),
+        mean([r.checks for r in known]),
+        mean([r.minutes for r in known]),
+        mean([r.first_repair_cured for r in known]),
+        mean([r.top1 for r in repaired]),
+        mean([r.first_hit for r in repaired]),
+        mean([r.cured for r in known]),
+        unknown_rate=unknown_rate,
+        unknown_runs=len(unknown),
+        escalated_when_unknown=(
+            mean([r.escalated or r.unknown_top_before_repair for r in unknown])
+            if unknown else None),
+        wrong_repairs_when_unknown=mean([r.repairs for r in unknown]) if unknown else None,
+    )

@@ -121,6 +121,7 @@ class Tables:
         self._flatten_checks()
         self._complaints: dict[str, np.ndarray] = {}
         self._logs: dict[tuple[str, str, Any], np.ndarray] = {}  # log-likelihoods, bounded
+        self._exclusions: dict[frozenset[str], np.ndarray] = {}  # nameplate exclusions
         # repairs: flattened (repair, hypothesis) pairs of "repair r fixes a cause in h"
         self.repair_ids: tuple[str, ...] = tuple(model.repairs)
         self.repair_index = {r: i for i, r in enumerate(self.repair_ids)}
@@ -147,6 +148,8 @@ class Tables:
         self.repair_phone = np.array([r.where == "phone" for r in reps], dtype=bool)
         self.repair_needs = tuple(tuple(r.needs) for r in reps)
         self.repairs_needing = tuple(i for i, r in enumerate(reps) if r.needs)
+        self.repairs_only_if = tuple(i for i, r in enumerate(reps) if r.only_if)
+        self.checks_requiring = tuple(i for i, c in enumerate(chks) if c.requires)
 
     @property
     def model(self) -> Model:
@@ -174,6 +177,29 @@ class Tables:
             return np.array(sorted(set(idx)), dtype=np.int64)
         mask = np.isin(self.members[:, 0], idx) | np.isin(self.members[:, 1], idx)
         return np.flatnonzero(mask)
+
+    def hypotheses_within(self, causes: frozenset[str] | set[str]) -> np.ndarray:
+        """Indices of the hypotheses (not "unknown") whose every cause is in ``causes``."""
+        inside = np.zeros(self.n_causes + 1, dtype=bool)  # last slot: "no second cause"
+        inside[-1] = True
+        for c in causes:
+            if c in self.cause_index:
+                inside[self.cause_index[c]] = True
+        a, b = self.members[:, 0], self.members[:, 1]
+        ok = (a >= 0) & inside[a] & inside[b]
+        return np.flatnonzero(ok)
+
+    def exclusion(self, causes: frozenset[str]) -> np.ndarray:
+        """0 for every hypothesis, −inf for those holding a cause in ``causes`` (cached)."""
+        vec = self._exclusions.get(causes)
+        if vec is None:
+            if len(self._exclusions) >= 64:
+                self._exclusions.clear()
+            vec = np.zeros(self.n_hyp)
+            vec[self.hypotheses_with(sorted(causes))] = -np.inf
+            vec.flags.writeable = False
+            self._exclusions[causes] = vec
+        return vec
 
     def repair_hypotheses(self, repair: str) -> np.ndarray:
         """Indices of the hypotheses in which ``repair`` fixes a present cause."""

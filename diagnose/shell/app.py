@@ -461,7 +461,8 @@ class Shell:
         return CheckCard(chk.id, chk.title, chk.minutes, tuple(chk.tools),
                          self.cautions(chk.cautions), why, instructions if shown else None,
                          outcomes, unit_text(chk.measurement.unit) if chk.measurement else "",
-                         "Ask the caller" if phone else "Check", many=_many(chk))
+                         "Ask the caller" if phone else "Check",
+                         needs=() if phone else self.session.setup_for(chk.id), many=_many(chk))
 
     def _why_check(self, chk: Check, action: Action | None) -> str:
         phone = self.session.mode == "phone"
@@ -640,6 +641,8 @@ class Shell:
             raise InputError("cured", "answer yes or no, or skip if it cannot be done now "
                              "(or choose another step with do CHECK or repair REPAIR)")
 
+        if s.mode == "site":
+            self.observe_during(repair_id)
         asked = ("Has the caller done it? Is the complaint cured?" if s.mode == "phone"
                  else "Repair done. Is the complaint cured?")
         cured = self.ask(f"{asked} (yes/no, skip): ", parse,
@@ -655,6 +658,41 @@ class Shell:
             self.say(f"  {rep.title}: cured.", style="green")
         else:
             self.say(f"  {rep.title}: not cured; the ranking is updated.", style="yellow")
+
+    def observe_during(self, repair_id: str) -> None:
+        """The checks in plain sight while the repair has the unit apart: no extra minutes.
+
+        Each answer is recorded as the check's answer, so a repair that does not
+        cure never needs a second removal just to look.
+        """
+        s = self.session
+        for chk in s.repair_observations(repair_id):
+            if chk.measurement is not None:
+                continue
+            outcomes: list[Choice] = [(o, chk.outcome_titles.get(o, "")) for o in chk.outcomes]
+            self.say(f"While it is apart, look at: {chk.title} (no extra minutes)",
+                     style="bold")
+            for i, (o, wording) in enumerate(outcomes, 1):
+                self.say(f"  {i}. {o}" + (f": {wording}" if wording else ""))
+
+            def parse(text: str, outcomes: list[Choice] = outcomes) -> str | None:
+                low = text.lower()
+                if low in ("skip", "not seen"):
+                    return None
+                if low.isdigit() and 1 <= int(low) <= len(outcomes):
+                    return outcomes[int(low) - 1][0]
+                found = answer_matches(text, outcomes)
+                if len(found) == 1:
+                    return found[0]
+                raise InputError(chk.id, "type the number or words of what you see, or skip "
+                                 "if you cannot see it")
+
+            seen = self.ask("What do you see? (number, words, or skip): ", parse,
+                            answers=tuple(outcomes) + (("skip", "not seen"),),
+                            empty="type what you see, or skip")
+            if seen is not None:
+                s.answer(chk.id, seen)
+                self.say(f"  {chk.title}: {seen}", style="dim")
 
     def skip_repair(self, repair_id: str) -> None:
         """The repair cannot be done now (no part, no access): the planner proposes another step."""

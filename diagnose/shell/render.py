@@ -183,7 +183,7 @@ class CheckCard:
         lines = [[("Time", minutes_text(self.minutes)),
                   ("Tools", ", ".join(self.tools) if self.tools else "none")]]
         if self.needs:
-            lines.append([("First", ", ".join(self.needs))])
+            lines.append([("First", "; ".join(self.needs))])
         yield _card(f"{self.label}: {self.title}", self.id, self.cautions, self.why, lines,
                     self.instructions, _answer_hint(self.outcomes, self.unit, self.many))
 
