@@ -521,6 +521,15 @@ class Session:
         """The state of the unit now (see :mod:`diagnose.reasoning.unitstate`)."""
         return unit_state(self.model, self._evidence)
 
+    def ruled_out(self, below: float = 0.02) -> tuple[tuple[str, ...], int]:
+        """The known causes of the complaints now below ``below``, and how many there are."""
+        tree: set[str] = set()
+        for k in self._evidence.complaints:
+            tree.update(self.model.tree_causes(k))
+        p = {e.cause: e.p for e in self.ranking().entries}
+        tree &= set(p)  # the nameplate's exclusions are not "ruled out" by the answers
+        return tuple(c for c in self.model.causes if c in tree and p[c] < below), len(tree)
+
     def setup_for(self, check_id: str) -> tuple[str, ...]:
         """What the unit's state needs first for ``check_id``, in words, with the minutes."""
         chk = self._check(check_id)

@@ -150,3 +150,69 @@ def test_not_a_pack_is_one_line(tmp_path, capsys):
     assert main(["kb", "lint", str(tmp_path)]) == 1
     out = capsys.readouterr().out
     assert "without pack.yaml" in out
+
+
+def _with_file(tmp_path: Path, name: str, text: str) -> Path:
+    dst = tmp_path / "pack"
+    shutil.copytree(MINI, dst)
+    (dst / name).write_text(text)
+    return dst
+
+
+VOLTS = """\
+checks:
+  - id: coil_volts
+    title: Coil volts
+    minutes: 5
+    ask: Measure the coil volts.
+    measure:
+      evaluator: supply
+      reading: volts
+      inputs: {{rated_voltage: 24 V, source: converter{extra}}}
+    normal: {{ok: 0.95, low: 0.02, absent: 0.01, high: 0.01, reversed: 0.01}}
+    effects:
+      coil_open: {{absent: 0.9}}
+"""
+
+
+def test_a_signature_no_row_names_is_a_warning_at_the_measure(tmp_path):
+    # the check maps the machine's supply voltage, so the evaluator can say coil_mismatch;
+    # no row says how likely that is: a reading with it would count for nothing
+    pack = _with_file(tmp_path, "volts.yaml", VOLTS.format(extra=", supply_voltage: 24 V"))
+    res = _problems(pack)
+    found = [p for p in res.problems if p.code == "outcome-unstated"]
+    assert len(found) == 1 and "'coil_mismatch'" in found[0].message
+    assert found[0].source.line == _line_of(pack / "volts.yaml", "measure:")
+    # without the input the signature cannot be returned, and nothing is said
+    plain = _with_file(tmp_path / "b", "volts.yaml", VOLTS.format(extra=""))
+    assert not [p for p in _problems(plain).problems if p.code == "outcome-unstated"]
+
+
+def test_only_if_on_a_cause_names_a_parameter_and_its_choices(tmp_path):
+    pack = _with_file(tmp_path, "more.yaml", "causes:\n  - id: odd\n    title: Odd\n"
+                      "    prior: 2\n    only_if: {gravity_lod: \"yes\"}\n")
+    res = _problems(pack)
+    assert any(p.code == "unknown-ref" and "gravity_lod" in p.message for p in res.errors)
+
+
+def test_requires_names_a_declared_state_and_value(tmp_path):
+    pack = _with_file(tmp_path, "more.yaml", """\
+states:
+  - id: power
+    title: Power
+    initial: "on"
+    values: {"on": {minutes: 3}, isolated: {minutes: 5}}
+checks:
+  - id: look
+    title: Look
+    minutes: 2
+    ask: Look.
+    requires: {power: dead}
+    outcomes: [seen, not_seen]
+    normal: {not_seen: 0.9}
+    effects:
+      coil_open: {seen: 0.9}
+""")
+    res = _problems(pack)
+    bad = [p for p in res.errors if "requires" in p.message]
+    assert bad and "'dead' is not a value of state 'power'" in bad[0].message

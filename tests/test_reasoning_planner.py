@@ -208,7 +208,7 @@ def test_phone_reasons_say_what_the_question_is_for():
     assert not any(w in a.reason for w in SITE_WORDS)
     assert next_action(m, WNR).reason in ("observing first saves minutes",
                                           "not yet sure enough to repair",
-                                          "no answer points at a cause yet: observe first")
+                                          "no answer points at a cause yet, so look first")
 
 
 @pytest.mark.parametrize("seed", range(6))

@@ -215,7 +215,9 @@ def test_policy_report_formulas():
     assert (r.runs, r.unknown_runs) == (6, 4)
     assert r.mean_minutes == pytest.approx(20.0)  # known runs only: (10 + 30) / 2
     assert r.cured == pytest.approx(0.5)
-    assert r.escalated_when_unknown == pytest.approx(2 / 4)  # escalated, or "unknown" on top
+    # ended before any repair, escalated or with "unknown" on top: only the second run
+    # (the first escalated only after two repairs)
+    assert r.escalated_when_unknown == pytest.approx(1 / 4)
     assert r.wrong_repairs_when_unknown == pytest.approx((2 + 0 + 3 + 1) / 4)
     none = policy_report("x", known, 0.5)
     assert none.unknown_runs == 0

@@ -258,3 +258,27 @@ def test_half_wave_volts_behind_a_bridge_blame_the_rectifier_not_the_supply():
     f = s.answer("coil_voltage", "103 V")  # 0.45 x 230 V: half-wave (Rashid, textbook)
     assert f.outcome == "half_wave"
     assert s.ranking().top.cause == "rectifier_diode_open"
+
+
+def test_why_says_a_failed_repair_and_the_open_world_rule_moved_the_ranking():
+    model = load_model("spring-applied-brake")
+    s = Session(model)
+    s.set_nameplate("gravity_load", "no")
+    s.add_complaint("will_not_hold")
+    s.answer("static_torque_test", "slips")
+    s.repair("replace_friction_disc", False)
+    x = s.explain_ranking(leading=8)
+    notes = {lead.cause: lead.notes for lead in x.leading}
+    fixed = set(model.repairs["replace_friction_disc"].fixes)
+    assert any("replace_friction_disc did not cure: ×0.07" in n
+               for cause, ns in notes.items() if cause in fixed for n in ns)
+    # the ranking in `why` is the ranking on screen
+    shown = [e.cause for e in s.ranking().entries[:8]]
+    assert [lead.cause for lead in x.leading] == shown
+
+
+def test_a_question_whose_own_default_would_rule_its_uses_out_is_still_asked():
+    # "over-excitation module fitted?" defaults to no, which rules out everything that
+    # uses it; the question must still be asked, since the answer can be yes
+    model = load_model("spring-applied-brake")
+    assert "overexcitation" in Session(model).open_parameters()

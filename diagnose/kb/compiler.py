@@ -506,6 +506,8 @@ def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
                 continue
             effects[cause] = _distribution(row, outcomes, ext, ("effects", cause),
                                            f"effects of {cause!r}", ctx)
+    if measurement is not None and spec is not None:
+        _unstated_outcomes(it, tuple(o for o in outcomes if o not in spec.verdicts), ctx)
     if "normal" in d:
         normal = _distribution(d["normal"], outcomes, it, ("normal",), "normal", ctx)
     elif d.get("preparation"):
@@ -530,6 +532,28 @@ def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
         requires=_state_map(it, "requires", ctx), leaves=_state_map(it, "leaves", ctx),
         replaces=str(d.get("replaces", "") or ""),
     )
+
+
+def _unstated_outcomes(it: _Item, outcomes: tuple[str, ...], ctx: _Ctx) -> None:
+    """Warn about a signature the evaluator can return that no row of the check names.
+
+    Such an outcome only gets the share an omitted outcome gets, under every
+    cause alike: a reading with that sharper verdict would count for nothing.
+    (A plain verdict left out shares what is left, as the trainer intends.)
+    """
+    named: set[str] = set(_map(it.data.get("normal")))
+    for row in _map(it.data.get("effects")).values():
+        named.update(_map(row))
+    for ext in ctx.extensions:
+        if ext.id == it.id:
+            for row in _map(ext.data.get("effects")).values():
+                named.update(_map(row))
+    for o in outcomes:
+        if o not in named:
+            ctx.warn(f"check {it.id!r}: the evaluator can return the signature {o!r}, but no "
+                     "row names it; say how likely it is in `normal` and under the causes "
+                     "that give it",
+                     it.at("measure"), "outcome-unstated")
 
 
 def _state_map(it: _Item, key: str, ctx: _Ctx) -> dict[str, str]:

@@ -69,10 +69,14 @@ class Leading:
     p: float
     prior: float
     factors: tuple[Factor, ...]
+    notes: tuple[str, ...] = ()  # the rules on top of Bayes' rule that moved it, in words
 
     def to_dict(self) -> dict[str, Any]:
-        return {"cause": self.cause, "p": round(self.p, 6), "prior": round(self.prior, 6),
-                "factors": [f.to_dict() for f in self.factors]}
+        out = {"cause": self.cause, "p": round(self.p, 6), "prior": round(self.prior, 6),
+               "factors": [f.to_dict() for f in self.factors]}
+        if self.notes:
+            out["notes"] = list(self.notes)
+        return out
 
 
 def _ratio_text(r: float) -> str:
@@ -108,6 +112,8 @@ class RankingExplanation:
                 t.add_row("  " + f.label, _ratio_text(f.ratio), arrow)
             if not x.factors:
                 t.add_row("  (no evidence yet: the prior alone)", "", "")
+            for note in x.notes:
+                t.add_row("  " + note, "", "")
             yield t
 
 
@@ -126,10 +132,11 @@ def explain_ranking(model: Model, evidence: Evidence, *, max_faults: int = 1,
     with np.errstate(divide="ignore"):
         logs = [np.log(it.likelihood) for it in items]
     total = tables.log_prior + (np.sum(logs, axis=0) if logs else 0.0)
-    p, bad = normalise(total)
-    if bad:
-        p = np.zeros(tables.n_hyp)
-        p[tables.unknown] = 1.0
+    post = posterior(model, evidence, max_faults=max_faults)
+    bayes = posterior(model, evidence, max_faults=max_faults, open_world=False)
+    if post.excluded:
+        total = total + tables.exclusion(post.excluded)
+    p = post.p
     prior = np.exp(tables.log_prior)
     out = []
     for h in np.argsort(-p, kind="stable")[:leading]:
@@ -146,8 +153,25 @@ def explain_ranking(model: Model, evidence: Evidence, *, max_faults: int = 1,
         label = tables.label(int(h))
         title = model.causes[label].title if label in model.causes else (
             "None of the known causes" if label == UNKNOWN_CAUSE else label.replace("+", " and "))
-        out.append(Leading(label, title, float(p[h]), float(prior[h]), tuple(factors)))
+        notes = _notes(model, evidence, label, float(p[h]), float(bayes.p[h]))
+        out.append(Leading(label, title, float(p[h]), float(prior[h]), tuple(factors), notes))
     return RankingExplanation(tuple(out))
+
+
+def _notes(model: Model, evidence: Evidence, label: str, p: float, p_bayes: float,
+           ) -> tuple[str, ...]:
+    """The rules on top of Bayes' rule that moved ``label``, in words."""
+    out = []
+    for rid, cured in evidence.repairs:
+        rep = model.repairs.get(rid)
+        if rep is not None and not cured and label in rep.fixes:
+            out.append(f"{rid} did not cure: ×{1 - rep.success:.2g} (1 − success "
+                       f"{rep.success:g})")
+    if label == UNKNOWN_CAUSE and p > p_bayes + 1e-6:
+        out.append(f"+{p - p_bayes:.2f} from causes no check left can see (open world)")
+    elif label != UNKNOWN_CAUSE and p < p_bayes - 1e-6:
+        out.append("no check left can see it: held at its share from the complaint")
+    return tuple(out)
 
 
 @dataclass(frozen=True)

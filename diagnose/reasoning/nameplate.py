@@ -160,6 +160,8 @@ def parameter_needed(model: Model, evidence: Evidence, param: str) -> bool:
     uses = parameter_uses(model, param)
     if not uses:
         return True
+    # whether the answer can still matter: judge its uses with this value open
+    evidence = evidence.with_nameplate(param, "unknown")
     excluded = excluded_causes(model, evidence)
     for x in uses:
         if x.id in model.causes and x.id in excluded:

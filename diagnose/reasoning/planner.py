@@ -28,17 +28,26 @@ Decision rule (``Settings``; tuned with ``diagnose simulate``):
 
 1. a repair cured the unit, or the session ended: done;
 2. "unknown" at or above ``threshold``: escalate;
+2a. no answer points at a known cause yet (see
+   :mod:`diagnose.reasoning.openworld`): no repair; the informative check with
+   the least ECO, counting an escalation after each outcome that points at no
+   cause, while that ECO is below an escalation; else escalate (by phone: ask
+   while a question is informative, then a site visit);
 3. some available repair fixes causes whose probability is at or above
    ``threshold``: do the best of those by p/c;
 4. the check with the least ECO, if it beats ECR (observing first is cheaper);
-5. else the best repair by p/c, if the probability of what it fixes is at
-   least ``act_floor``;
+5. else the best repair by p/c for the top cause, if it is at least
+   ``act_floor`` and being wrong costs less than the cheapest informative look
+   (``(1 − p) · c_repair ≤ c_check``);
 6. else, while a check still gives ``min_bits`` or more, that check;
-7. else repair the most likely cause, or escalate when "unknown" leads or no
-   repair is left.
+7. else by phone a site visit (an escalation when "unknown" is more likely
+   than every known cause together); on site repair the most likely cause, or
+   escalate when "unknown" leads or no repair is left.
 
 A check or repair whose prerequisites (``needs``) are not done is proposed
-as its first missing prerequisite. By phone only ``where: phone`` checks and
+as its first missing prerequisite. A check's minutes include the setup its
+state needs (:mod:`diagnose.reasoning.unitstate`); a check no setup step can
+bring about in the present state is not proposed. By phone only ``where: phone`` checks and
 repairs are offered, and the end is a site visit with the parts to bring; the
 reasons then say what a question to the caller is for (the likely causes it
 tells more about) and never speak of work on site. A repair skipped (cannot be
@@ -812,11 +821,12 @@ def _decide(model: Model, evidence: Evidence, post: Posterior, settings: Setting
                                       "repairing now is cheaper")
         return _check_action(pl, best_c, _phone_question(model, post, pl.check_ids[best_c])
                              if phone else "not yet sure enough to repair")
-    if not known:
-        return _escalate(post, _ON_PHONE["unknown leads"] if phone else
-                         "none of the known causes fits best")
-    if phone:
+    if phone:  # nothing more to learn by phone: the site checks are still to come
+        if post.unknown >= 0.5:
+            return _escalate(post, _ON_PHONE["fits none"])
         return _visit(model, evidence, post, "nothing more to learn by phone")
+    if not known:
+        return _escalate(post, "none of the known causes fits best")
     worth = live & (pl.p_cure * settings.escalation_minutes >= pl.repair_minutes)
     if worth.any():
         pick = worth & for_top if (worth & for_top).any() else worth
@@ -839,12 +849,12 @@ def _unsupported(model: Model, evidence: Evidence, post: Posterior, settings: Se
     worth = informative & (pl.check_eco < settings.escalation_minutes)
     if worth.any():
         best_c = int(np.argmin(np.where(worth, pl.check_eco, np.inf)))
-        return _check_action(pl, best_c, "no answer points at a cause yet: observe first")
-    if phone:
-        if pl.top.cause == UNKNOWN_CAUSE:
-            return _escalate(post, _ON_PHONE["all normal"])
-        return _visit(model, evidence, post, "nothing more to learn by phone; no answer "
-                      "points at a cause yet")
+        return _check_action(pl, best_c, "no answer points at a cause yet, so look first")
+    if phone:  # the site checks are still to come: a technician, unless nothing known fits
+        if post.unknown >= 0.5:
+            return _escalate(post, _ON_PHONE["fits none"])
+        return _visit(model, evidence, post, "no caller answer points at a cause: the site "
+                      "checks will tell")
     return _escalate(post, "every answer reads normal and no check left is worth its "
                            "minutes: none of the known causes is shown")
 
@@ -853,11 +863,7 @@ def _unsupported(model: Model, evidence: Evidence, post: Posterior, settings: Se
 _ON_PHONE = {
     "fits none": "the answers fit none of the known causes: a site visit with an "
                  "application engineer is needed",
-    "unknown leads": "none of the known causes fits best: a site visit with an application "
-                     "engineer is needed",
     "try now": "the caller can try this now, before a site visit is sent",
-    "all normal": "every answer from the caller reads normal: a site visit with an "
-                  "application engineer is needed",
 }
 
 

@@ -46,12 +46,10 @@ first-repair hits (the first repair fixes the true cause; same runs) and the
 share of runs cured (the rest were escalated); all of them over the runs with a
 known cause. Over the runs with an unknown cause (when there are any):
 
-* ``escalated_when_unknown``: the share of those runs that end in an
-  escalation (or, for the planner, a site visit) or that have "unknown" on top
-  of the posterior ranking before any repair (when the first repair is chosen,
-  or at the end of a run without repairs). The chart policies never escalate,
-  so for them only the second part can count: the posterior knew, the chart
-  did not ask;
+* ``escalated_when_unknown``: the share of those runs that end before any
+  repair is tried, in an escalation (or, for the planner by phone, a site
+  visit) or with "unknown" on top of the posterior ranking. The chart
+  policies always try a repair first, so they score 0;
 * ``wrong_repairs_when_unknown``: the mean number of repairs tried (none of
   them can cure).
 
@@ -521,7 +519,8 @@ def policy_report(policy: str, results: list[RunResult],
         unknown_rate=unknown_rate,
         unknown_runs=len(unknown),
         escalated_when_unknown=(
-            mean([r.escalated or r.unknown_top_before_repair for r in unknown])
+            mean([r.repairs == 0 and (r.escalated or r.unknown_top_before_repair)
+                  for r in unknown])
             if unknown else None),
         wrong_repairs_when_unknown=mean([r.repairs for r in unknown]) if unknown else None,
     )

@@ -156,9 +156,9 @@ class Shell:
         if s.ended:
             self._show_end_of_closed()
             return True
-        missing = [p for p in self.model.parameters if p not in ev.nameplate]
+        missing = s.open_parameters()
         if missing:
-            if len(missing) == len(self.model.parameters):
+            if not ev.nameplate:
                 self.heading("Unit identification: the nameplate")
                 self.say("Enter keeps the value in brackets; `defaults` keeps it for every "
                          "value still to come; `unknown` where allowed.", style="dim")
@@ -257,7 +257,8 @@ class Shell:
         return {"do": checks, "why": checks, "repair": repairs, "nameplate": params,
                 "mode": (("site", "a technician at the unit"), ("phone", "guiding a caller")),
                 "help": self.command_choices(), "ranking": (("all", "every cause"),),
-                "calc": tuple((e.name, e.title) for e in EVALUATORS.values())}
+                "calc": tuple((e.name, e.title) for e in EVALUATORS.values()),
+                "state": tuple((v.id, v.title) for v in self.model.states.values())}
 
     def on_end_of_input(self) -> None:
         """Ctrl-D (or the end of a script): ask whether to save and leave."""
@@ -317,9 +318,16 @@ class Shell:
     def _keep_defaults(self) -> list[tuple[str, str]]:
         """Set every nameplate value still open that has a default; those without are asked."""
         done = []
-        for pid, param in self.model.parameters.items():
-            if pid not in self.session.evidence.nameplate and param.default is not None:
-                done.append((pid, self.session.set_nameplate(pid, str(param.default))))
+        kept: set[str] = set()
+        while True:  # in order: an answer may make later questions moot
+            todo = [p for p in self.session.open_parameters() if p not in kept
+                    and self.model.parameters[p].default is not None]
+            if not todo:
+                break
+            pid = todo[0]
+            kept.add(pid)
+            default = str(self.model.parameters[pid].default)
+            done.append((pid, self.session.set_nameplate(pid, default)))
         if not done:
             raise InputError("defaults", "no value still to come has a default")
         return done
@@ -751,10 +759,15 @@ class Shell:
             head = ("Recommendation: a site visit with an application engineer; none of the "
                     "known causes fits." if phone else "None of the known causes fits: escalate "
                     "to an application engineer or the manufacturer.")
-            return EndView("unknown", head,
-                           (_sentence(action.reason),
-                            f"Leading known cause: {title} ({percent(top.p)})."),
-                           log=self.log_hint())
+            known = next((e for e in s.ranking().entries if e.cause in self.model.causes), None)
+            ruled, total = s.ruled_out()
+            lines = [_sentence(action.reason)]
+            if total:
+                lines.append(f"Ruled out: {len(ruled)} of the {total} known causes of the "
+                             "complaint (each below 2 %).")
+            if known is not None:
+                lines.append(f"Leading known cause: {known.title} ({percent(known.p)}).")
+            return EndView("unknown", head, tuple(lines), log=self.log_hint())
         return EndView("stopped", _sentence(action.reason) or "Nothing more to do.",
                        log=self.log_hint())
 
@@ -906,6 +919,26 @@ class Shell:
         if self._current is not None:  # show the card again: it may depend on the value
             self._forced = self._turn_forced
             raise _Restart
+
+    def unit_state(self, arg: str) -> None:
+        """Show the state of the unit, or record ``STATE VALUE`` (the technician changed it)."""
+        s = self.session
+        states = self.model.states
+        if not states:
+            self.say("This pack keeps no state of the unit.")
+            return
+        if arg:
+            var, _, value = arg.partition(" ")
+            var = self._pick(var, [(v.id, v.title) for v in states.values()], "state")
+            choices = list(states[var].values.items())
+            value = self._pick(value.strip(), choices, "value") if value.strip() else ""
+            if not value:
+                raise InputError("state", f"type: state {var} "
+                                 f"{'|'.join(states[var].values)}")
+            s.set_state(var, value)
+        now = s.unit_state()
+        for var, sv in states.items():
+            self.say(f"  {sv.title}: {sv.values.get(now.get(var, sv.initial), '')}")
 
     def add_note(self, text: str) -> None:
         self.session.note(text)

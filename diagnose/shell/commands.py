@@ -102,6 +102,12 @@ def nameplate(shell: Shell, arg: str) -> None:
     shell.nameplate(arg.strip())
 
 
+@command("state [STATE VALUE]")
+def state(shell: Shell, arg: str) -> None:
+    """Show the state of the unit (power, cover, brake), or say it changed: `state power on`."""
+    shell.unit_state(arg.strip())
+
+
 @command("undo")
 def undo(shell: Shell, arg: str) -> None:
     """Take back the last answer, repair or note; the ranking goes back with it."""
