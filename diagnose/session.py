@@ -23,7 +23,10 @@ unsure      check
 skip        check (the check cannot be done now)
 skip_repair repair (the repair cannot be done now: no part on the van, no access)
 ack         caution, item (the check or repair whose card it was acknowledged
-            for; not in older journals)
+            for; not in older journals), step (steps done when it was given;
+            not in older journals)
+reminder    item, cautions (acknowledged earlier and still valid: shown as a
+            one-line reminder on this card)
 repair      repair, cured
 note        text
 mode        mode ("site" or "phone")
@@ -71,10 +74,12 @@ from diagnose.reasoning.planner import (
 )
 from diagnose.reasoning.nameplate import only_if_matches, parameter_needed
 from diagnose.reasoning.posterior import Posterior, Ranking, posterior
+from diagnose.reasoning.safety import card_cautions, lapsed_since, renewals
 from diagnose.reasoning.unitstate import setup_steps, unit_state
 
 EVENT_KINDS = ("notice", "identity", "nameplate", "complaint", "answer", "reading", "unsure",
-               "skip", "skip_repair", "ack", "repair", "note", "mode", "state", "end", "undo")
+               "skip", "skip_repair", "ack", "reminder", "repair", "note", "mode", "state", "end",
+               "undo")
 UNDOABLE = frozenset({"identity", "nameplate", "complaint", "answer", "reading", "unsure",
                       "skip", "skip_repair", "repair", "note", "mode", "state"})
 END_RESULTS = ("resolved", "visit", "escalated", "abandoned")
@@ -158,7 +163,9 @@ def apply(evidence: Evidence, event: Event) -> Evidence:
         return evidence.with_skipped_repair(d["repair"])
     if k == "ack":
         item = d.get("item")
-        return evidence.with_acknowledgement(d["caution"], str(item) if item else None)
+        step = d.get("step")
+        return evidence.with_acknowledgement(d["caution"], str(item) if item else None,
+                                             int(step) if isinstance(step, int) else None)
     if k == "repair":
         return evidence.with_repair(d["repair"], bool(d["cured"]))
     if k == "note":
@@ -475,11 +482,19 @@ class Session:
             raise InputError("caution", f"unknown caution {caution_id!r}")
         data: dict[str, Any] = {"caution": caution_id}
         if item_id is not None:
-            item = self._item(item_id)
-            if caution_id not in item.cautions:
+            self._item(item_id)
+            if caution_id not in self.card_cautions(item_id):
                 raise InputError("caution", f"{item_id} does not carry the caution {caution_id}")
             data["item"] = item_id
+        data["step"] = len(self._evidence.steps)
         return self._record("ack", data)
+
+    def remind(self, item_id: str, cautions: Sequence[str]) -> Event | None:
+        """Record that the card of ``item_id`` showed ``cautions`` as one-line reminders."""
+        if not cautions:
+            return None
+        self._item(item_id)
+        return self._record("reminder", {"item": item_id, "cautions": list(cautions)})
 
     def repair(self, repair_id: str, cured: bool) -> Event:
         """Record a repair done and whether it cured the complaint."""
@@ -670,20 +685,42 @@ class Session:
         return explain_check(self.model, self._evidence, check_id, max_faults=self.max_faults,
                              settings=self.settings)
 
-    def pending_cautions(self, item_id: str) -> tuple[Caution, ...]:
-        """DANGER/WARNING cautions of a check or repair not yet acknowledged for that card.
+    def card_cautions(self, item_id: str) -> tuple[str, ...]:
+        """The cautions the card of a check or repair shows: its own and its hazards' here."""
+        return card_cautions(self.model, self._evidence, self._item(item_id))
 
-        Each card asks for its own acknowledgement: one given for another check
-        or repair, or one without an item (older journals), does not count.
+    def pending_cautions(self, item_id: str) -> tuple[Caution, ...]:
+        """DANGER/WARNING cautions of a card still to be acknowledged.
+
+        A caution is acknowledged once per hazard and state: an acknowledgement
+        given on any card stands until the unit moves into a state that renews
+        cautions (power restored, load support removed; see
+        :mod:`diagnose.reasoning.safety`). One from an older journal (no step
+        recorded) covers only the card it was given for; one without a card,
+        none.
         """
-        item = self._item(item_id)
-        done = self._evidence.acknowledged_for
+        return tuple(c for c, settled in self._ack_state(item_id) if not settled)
+
+    def reminders(self, item_id: str) -> tuple[Caution, ...]:
+        """DANGER/WARNING cautions of a card acknowledged earlier and still standing."""
+        return tuple(c for c, settled in self._ack_state(item_id) if settled)
+
+    def _ack_state(self, item_id: str) -> list[tuple[Caution, bool]]:
+        ev = self._evidence
+        renewed = renewals(self.model, ev)
         out = []
-        for cid in item.cautions:
+        for cid in self.card_cautions(item_id):
             c = self.model.cautions.get(cid)
-            if c is not None and c.needs_acknowledgement and (item_id, cid) not in done:
-                out.append(c)
-        return tuple(out)
+            if c is None or not c.needs_acknowledgement:
+                continue
+            settled = any(
+                caution == cid and (
+                    (step is not None
+                     and not lapsed_since(self.model, ev, step, item, renewed))
+                    or (step is None and item == item_id))
+                for caution, item, step in ev.acks)
+            out.append((c, settled))
+        return out
 
     def _item(self, item_id: str) -> Any:
         item: Any = self.model.checks.get(item_id) or self.model.repairs.get(item_id)

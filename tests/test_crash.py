@@ -108,9 +108,11 @@ class Shell:
 
 
 def _events(jpath: Path, sid: str | None = None) -> tuple[str, list[tuple[str, dict]]]:
+    """The session's events, less the reminders: those record which cards were on screen,
+    and a resumed shell shows its current card again (one more reminder, no lost answer)."""
     with Journal(jpath, readonly=True) as j:
         sid = sid or j.sessions()[0].id
-        return sid, [(e.kind, e.data) for e in j.load_events(sid)]
+        return sid, [(e.kind, e.data) for e in j.load_events(sid) if e.kind != "reminder"]
 
 
 def _report(jpath: Path, sid: str) -> str:

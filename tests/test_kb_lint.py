@@ -198,16 +198,16 @@ def test_only_if_on_a_cause_names_a_parameter_and_its_choices(tmp_path):
 def test_requires_names_a_declared_state_and_value(tmp_path):
     pack = _with_file(tmp_path, "more.yaml", """\
 states:
-  - id: power
-    title: Power
-    initial: "on"
-    values: {"on": {minutes: 3}, isolated: {minutes: 5}}
+  - id: cover
+    title: Cover
+    initial: closed
+    values: {closed: {minutes: 3}, open: {minutes: 5}}
 checks:
   - id: look
     title: Look
     minutes: 2
     ask: Look.
-    requires: {power: dead}
+    requires: {cover: ajar}
     outcomes: [seen, not_seen]
     normal: {not_seen: 0.9}
     effects:
@@ -215,4 +215,4 @@ checks:
 """)
     res = _problems(pack)
     bad = [p for p in res.errors if "requires" in p.message]
-    assert bad and "'dead' is not a value of state 'power'" in bad[0].message
+    assert bad and "'ajar' is not a value of state 'cover'" in bad[0].message

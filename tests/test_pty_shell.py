@@ -148,7 +148,7 @@ def test_a_whole_diagnosis_in_a_terminal(tmp_path):
     s.wait("| step 2 |")
     s.type("do fuse_state")
     s.wait("Check: Test the brake fuse for continuity")
-    s.wait("Type ack to confirm you have read the DANGER above")  # again: another card
+    s.wait("Type ack to confirm you have read the DANGER above")  # again: power was on
     s.type("ack")
     s.wait("Answer (intact/blown, unsure, skip)")
     s.type("intact")
@@ -158,9 +158,8 @@ def test_a_whole_diagnosis_in_a_terminal(tmp_path):
     # a repair that does not cure
     s.type("repair replace_disc")
     s.wait("Repair: Replace the friction disc and set the gap")
+    s.wait("(acknowledged, still applies)")  # still isolated since the fuse: a reminder
     s.wait("Parts: friction disc")
-    s.wait("Type ack to confirm you have read the DANGER above")
-    s.type("ack")
     s.wait("Is the complaint cured? (yes/no, skip)")
     s.type("no")
     s.wait("not cured; the ranking is updated")

@@ -280,22 +280,46 @@ def test_pending_cautions_lists_unacknowledged_dangers():
     assert s.pending_cautions("fuse") == ()
 
 
-def test_a_danger_is_acknowledged_for_each_card_that_carries_it():
+def test_a_danger_is_acknowledged_once_per_state_and_reminded_on_later_cards():
     sink = MemorySink()
     s = Session(tiny_model(), sink=sink, session_id="s")
     s.acknowledge("lockout", "fuse")
     assert s.pending_cautions("fuse") == ()
-    # the same caution on another check's card is asked for again
-    assert [c.id for c in s.pending_cautions("coil_ohms")] == ["lockout"]
-    s.acknowledge("lockout", "coil_ohms")
+    # the same caution on another card, the unit in the same state: a reminder, no new ack
     assert s.pending_cautions("coil_ohms") == ()
-    assert [e.data for e in sink.events["s"] if e.kind == "ack"] == [
-        {"caution": "lockout", "item": "fuse"}, {"caution": "lockout", "item": "coil_ohms"}]
+    assert [c.id for c in s.reminders("coil_ohms")] == ["lockout"]
+    s.remind("coil_ohms", ["lockout"])
+    assert [e.data for e in sink.events["s"] if e.kind in ("ack", "reminder")] == [
+        {"caution": "lockout", "item": "fuse", "step": 0},
+        {"item": "coil_ohms", "cautions": ["lockout"]}]
     assert fold(s.events) == s.evidence
     with pytest.raises(InputError, match="does not carry"):
         s.acknowledge("lockout", "listen_click")
     with pytest.raises(InputError):
         s.acknowledge("lockout", "no_such_card")
+
+
+def test_an_acknowledgement_lapses_when_power_is_restored():
+    from dataclasses import replace as dc_replace
+
+    from diagnose.kb.model import StateVar
+
+    m = tiny_model()
+    power = StateVar("power", "Power", {"on": "switched on", "isolated": "isolated"}, "on",
+                     {"on": 3.0, "isolated": 5.0}, renews=frozenset({"on"}))
+    checks = dict(m.checks)
+    checks["fuse"] = dc_replace(checks["fuse"], requires={"power": "isolated"})
+    checks["coil_ohms"] = dc_replace(checks["coil_ohms"], requires={"power": "isolated"})
+    checks["listen_click"] = dc_replace(checks["listen_click"], requires={"power": "on"})
+    m = dc_replace(m, states={"power": power}, checks=checks)
+    s = Session(m)
+    s.acknowledge("lockout", "fuse")
+    s.answer("fuse", "intact")            # isolated for it: the acknowledgement stands
+    assert s.pending_cautions("coil_ohms") == ()
+    s.answer("listen_click", "click")     # power restored for this one
+    assert [c.id for c in s.pending_cautions("coil_ohms")] == ["lockout"]  # asked again
+    s.acknowledge("lockout", "coil_ohms")
+    assert s.pending_cautions("coil_ohms") == ()
 
 
 def test_an_old_acknowledgement_without_item_covers_no_card():

@@ -64,9 +64,9 @@ def steps_of(session):
 def test_site_diagnosis_to_a_cure(model):
     shell, screen, status = drive(model, PRELUDE + [
         "do coil_resistance", "ack", "3.2 ohm",   # DANGER acknowledged, then a reading
+        "do listen_click", "silent",              # power on for it: the DANGER lapses
         "repair replace_disc", "ack", "no",       # a repair that does not cure
-        "do listen_click", "silent",
-        "repair replace_coil", "ack", "yes",      # the cure
+        "repair replace_coil", "ack", "yes",      # the cure: isolated again, acknowledged again
     ])
     s = shell.session
     assert status == 0
@@ -74,7 +74,8 @@ def test_site_diagnosis_to_a_cure(model):
     assert s.evidence.end["cause"] == "coil_shorted_turns"
     assert s.evidence.findings["coil_resistance"] == {"low": 1.0}
     assert s.evidence.repairs == (("replace_disc", False), ("replace_coil", True))
-    # the DANGER is acknowledged on each card that carries it, and the log says which
+    # the DANGER is acknowledged again after the power was restored (a live check, then the
+    # repair that put the unit back), and the log says on which card
     acks = [(e.data["caution"], e.data["item"]) for e in s.events if e.kind == "ack"]
     assert acks == [("lockout", "coil_resistance"), ("lockout", "replace_disc"),
                     ("lockout", "replace_coil")]
@@ -225,17 +226,17 @@ def test_escalation_when_nothing_known_fits(model):
     assert "None of the known causes fits" in screen
 
 
-def test_each_card_asks_for_its_own_acknowledgement(model):
+def test_a_caution_acknowledged_once_is_a_reminder_on_the_next_card(model):
     shell, screen, _ = drive(model, PRELUDE + [
-        "do coil_resistance", "ack", "3.2 ohm", "do fuse_state", "ack", "intact", "quit"])
-    assert screen.count("acknowledged: lockout") == 2  # the same DANGER, once per card
+        "do coil_resistance", "ack", "3.2 ohm", "do fuse_state", "intact", "quit"])
+    assert screen.count("acknowledged: lockout") == 1  # the same DANGER, the same state
     fuse_card = screen.index("Check: Test the brake fuse")
     instructions = "Isolate, pull the brake fuse and test it for continuity."
-    assert "Acknowledge the cautions above" in screen[fuse_card:screen.index(instructions)]
-    assert screen.index("acknowledged: lockout", fuse_card) < screen.index(instructions)
+    assert "(acknowledged, still applies)" in screen[fuse_card:screen.index(instructions)]
     acks = [e.data for e in shell.session.events if e.kind == "ack"]
-    assert acks == [{"caution": "lockout", "item": "coil_resistance"},
-                    {"caution": "lockout", "item": "fuse_state"}]
+    assert acks == [{"caution": "lockout", "item": "coil_resistance", "step": 0}]
+    reminders = [e.data for e in shell.session.events if e.kind == "reminder"]
+    assert reminders == [{"item": "fuse_state", "cautions": ["lockout"]}]
     assert shell.session.evidence.findings["fuse_state"] == {"intact": 1.0}
 
 

@@ -36,10 +36,11 @@ def test_stats(tmp_path, capsys):
     assert result.first_repair_rate == 0.5
     assert result.escalated == 1
     assert result.results == {"resolved": 2, "escalated": 1}
-    # Events 5 minutes apart; both cures are the 9th event (8 gaps = 40 min): notice, two
-    # nameplate values, complaint, listen_click, then two steps each after the lockout
-    # acknowledgement of its own card.
-    assert result.mean_minutes_to_cure == 40.0
+    # Events 5 minutes apart. The coil is cured at the 8th event (35 min): notice, two
+    # nameplate values, complaint, listen_click, the lockout acknowledged, the reading, the
+    # repair (still isolated: a reminder, no new acknowledgement). The fuse at the 9th
+    # (40 min): the failed cable repair put the power back, so the fuse repair asks again.
+    assert result.mean_minutes_to_cure == 37.5
     assert result.mean_work_minutes_to_cure == ((2 + 10 + 60) + (2 + 45 + 10)) / 2
 
     base = ["--journal", str(path), "--packs", str(FIXTURES)]

@@ -21,6 +21,8 @@ from diagnose.kb.model import (
     Check,
     Complaint,
     Gate,
+    Hazard,
+    HazardCaution,
     Measurement,
     Model,
     Parameter,
@@ -35,7 +37,7 @@ SUM_TOLERANCE = 0.001
 _NOUN = {
     "cautions": "caution", "parameters": "parameter", "complaints": "complaint",
     "events": "event", "causes": "cause", "checks": "check", "repairs": "repair",
-    "tests": "test case", "states": "state",
+    "tests": "test case", "states": "state", "hazards": "hazard",
 }
 
 
@@ -531,6 +533,8 @@ def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
         preparation=bool(d.get("preparation", False)),
         requires=_state_map(it, "requires", ctx), leaves=_state_map(it, "leaves", ctx),
         replaces=str(d.get("replaces", "") or ""),
+        hazards=_hazard_refs(it, ctx), hazards_declared="hazards" in d,
+        hazards_note=str(d.get("hazards_note", "") or ""),
     )
 
 
@@ -579,11 +583,61 @@ def _state(it: _Item, ctx: _Ctx) -> StateVar:
     titles = {str(v): str(_map(spec).get("title", v)) for v, spec in values.items()}
     setup = {str(v): _num(_map(spec).get("minutes"), 0.0) for v, spec in values.items()
              if "minutes" in _map(spec)}
+    renews = frozenset(str(v) for v, spec in values.items()
+                       if _map(spec).get("renews_cautions") is True)
     initial = str(d.get("initial", next(iter(titles), "")))
     if titles and initial not in titles:
         ctx.error(f"state {it.id!r}: initial value {initial!r} is not one of its values "
                   f"({', '.join(titles)})", it.at("initial"), "unknown-ref")
-    return StateVar(it.id, str(d.get("title", it.id)), titles, initial, setup, it.at())
+    return StateVar(it.id, str(d.get("title", it.id)), titles, initial, setup, it.at(), renews)
+
+
+def _hazard(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Hazard:
+    d = it.data
+    _check_only_if(it, ctx, params)
+    cautions: list[HazardCaution] = []
+    for j, raw in enumerate(_list(d.get("cautions"))):
+        spec = raw if isinstance(raw, Mapping) else {"caution": raw}
+        cid = spec.get("caution")
+        src = it.at("cautions", j)
+        if not ctx.ref(cid, ("cautions",), src, f"hazard {it.id!r} caution"):
+            continue
+        after = {str(k): tuple(str(o) for o in _list(v))
+                 for k, v in _map(spec.get("after")).items()}
+        for chk in after:
+            ctx.ref(chk, ("checks",), src, f"hazard {it.id!r} caution {cid!r} after")
+        verdicts = {str(k): tuple(str(o) for o in _list(v))
+                    for k, v in _map(spec.get("after_verdict")).items()}
+        from diagnose.physics.registry import EVALUATORS
+
+        for name, outs in verdicts.items():
+            ev = EVALUATORS.get(name)
+            if ev is None:
+                ctx.error(f"hazard {it.id!r} caution {cid!r}: unknown evaluator {name!r}", src,
+                          "evaluator")
+            elif any(o not in ev.all_verdicts for o in outs):
+                ctx.error(f"hazard {it.id!r} caution {cid!r}: evaluator {name!r} has no verdict "
+                          f"{[o for o in outs if o not in ev.all_verdicts][0]!r}", src,
+                          "evaluator")
+        cautions.append(HazardCaution(str(cid), _only_if_values(spec.get("only_if")), after,
+                                      verdicts))
+    safe = d.get("caller_safe", False)
+    caller_safe: bool | dict[str, tuple[str, ...]] = (
+        _only_if_values(safe) if isinstance(safe, Mapping) else bool(safe))
+    if isinstance(caller_safe, dict):
+        for key in caller_safe:
+            ctx.ref(key, ("parameters",), it.at("caller_safe", key),
+                    f"hazard {it.id!r} caller_safe")
+    return Hazard(it.id, str(d.get("title", it.id)), tuple(cautions),
+                  _only_if_values(d.get("only_if")), _state_map(it, "withhold_until", ctx),
+                  caller_safe, tuple(str(w).lower() for w in _list(d.get("words"))), it.at())
+
+
+def _hazard_refs(it: _Item, ctx: _Ctx) -> tuple[str, ...]:
+    """The ``hazards`` of a check or repair, each a declared hazard."""
+    what = f"{_NOUN[it.section]} {it.id!r} hazard"
+    return tuple(h for j, h in enumerate(_list(it.data.get("hazards")))
+                 if ctx.ref(h, ("hazards",), it.at("hazards", j), what))
 
 
 def _repair(it: _Item, ctx: _Ctx) -> Repair:
@@ -606,7 +660,9 @@ def _repair(it: _Item, ctx: _Ctx) -> Repair:
         confirm=confirm, needs=_list(d.get("needs")), ask=str(d.get("ask", "") or ""),
         where=str(d.get("where", "site")), source=it.at(),
         only_if=_only_if_values(d.get("only_if")), observes=_list(d.get("observes")),
-        leaves=_state_map(it, "leaves", ctx),
+        leaves=_state_map(it, "leaves", ctx), requires=_state_map(it, "requires", ctx),
+        hazards=_hazard_refs(it, ctx), hazards_declared="hazards" in d,
+        hazards_note=str(d.get("hazards_note", "") or ""),
     )
 
 
@@ -820,6 +876,7 @@ def _usage_checks(model: Model, ctx: _Ctx) -> None:
             ctx.warn(f"check {chk.id!r} observes no cause (give it `effects`, or mark it "
                      "`preparation: true`)", chk.source, "observes-nothing")
     used = {c for x in list(model.checks.values()) + list(model.repairs.values()) for c in x.cautions}
+    used |= {hc.caution for h in model.hazards.values() for hc in h.cautions}
     for caution in model.cautions.values():
         if caution.id not in used:
             ctx.warn(f"caution {caution.id!r} is not used by any check or repair", caution.source,
@@ -832,6 +889,76 @@ def _usage_checks(model: Model, ctx: _Ctx) -> None:
         ctx.error("checks need each other in a circle: "
                   + " -> ".join([cycle[0][0]] + [v for _, v in cycle]),
                   model.checks[cycle[0][0]].source, "needs")
+
+
+# ---------------------------------------------------------------------------------------------
+# safety
+
+
+#: Sentence openings that are cautions, which belong before the instruction.
+_CAUTION_OPENINGS = ("do not", "don't", "never", "stay clear", "keep clear", "keep away",
+                     "keep everyone", "keep fingers", "keep hands", "stay away", "if you see",
+                     "be ready", "mind ")
+
+
+def _safety_checks(model: Model, ctx: _Ctx) -> None:
+    """Hazards declared and their cautions shown; cautions before instructions in wordings."""
+    if not model.hazards:
+        return
+    requires: dict[str, set[str]] = {}  # caution -> hazards that require it
+    for hz in model.hazards.values():
+        for hc in hz.cautions:
+            requires.setdefault(hc.caution, set()).add(hz.id)
+    for item in list(model.checks.values()) + list(model.repairs.values()):
+        noun = "check" if item.id in model.checks else "repair"
+        src = item.source
+        for h in item.hazards:
+            hz = model.hazards.get(h)
+            for hc in (hz.cautions if hz else ()):
+                if not hc.only_if and not hc.after and not hc.after_verdict \
+                        and hc.caution not in item.cautions:
+                    ctx.error(f"{noun} {item.id!r} has hazard {h!r}, which requires caution "
+                              f"{hc.caution!r}: add it to its `cautions`", src,
+                              "missing-caution")
+        for c in item.cautions:
+            owners = requires.get(c, set())
+            if owners and not owners & set(item.hazards):
+                ctx.error(f"{noun} {item.id!r} shows caution {c!r} but declares no hazard that "
+                          f"requires it: add `hazards: [{sorted(owners)[0]}]`"
+                          + (f" (or one of {', '.join(sorted(owners)[1:])})"
+                             if len(owners) > 1 else ""), src, "undeclared-hazard")
+        text = " ".join((item.title, item.ask, getattr(item, "caller", ""))).lower()
+        hits = sorted({h.id for h in model.hazards.values()
+                       for w in h.words if _has_word(text, w) and h.id not in item.hazards})
+        if hits and not item.hazards_declared:
+            ctx.error(f"{noun} {item.id!r} reads as hazardous ({hits[0]}) but declares no "
+                      f"hazards: add `hazards: [{', '.join(hits)}]`, or `hazards: []` with a "
+                      "`hazards_note` saying why", src, "hazard-wording")
+        elif hits and not item.hazards and not item.hazards_note:
+            ctx.error(f"{noun} {item.id!r} reads as hazardous ({hits[0]}) with `hazards: []`: "
+                      "say why in `hazards_note`", src, "hazard-wording")
+        for field in ("ask", "caller"):
+            late = _late_caution(getattr(item, field, ""))
+            if late:
+                ctx.error(f"{noun} {item.id!r} `{field}`: the caution {late!r} comes after the "
+                          "instruction; put it first", src, "caution-last")
+
+
+def _has_word(text: str, word: str) -> bool:
+    import re
+
+    return re.search(r"(?<![a-z])" + re.escape(word), text) is not None
+
+
+def _late_caution(text: str) -> str:
+    """The first caution sentence that follows an instruction in ``text`` ("" when none)."""
+    import re
+
+    sentences = [x.strip() for x in re.split(r"(?<=[.?!:])\s+", " ".join(text.split())) if x]
+    for n, sentence in enumerate(sentences):
+        if n and sentence.lower().startswith(_CAUTION_OPENINGS):
+            return sentence[:60]
+    return ""
 
 
 # ---------------------------------------------------------------------------------------------
@@ -919,6 +1046,7 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
                            x.at()) for i, x in it["cautions"].items()}
     params = {i: _parameter(x, ctx) for i, x in it["parameters"].items()}
     states = {i: _state(x, ctx) for i, x in it["states"].items()}
+    hazards = {i: _hazard(x, ctx, params) for i, x in it["hazards"].items()}
     for section in ("parameters", "causes", "events"):
         for x in it[section].values():
             _check_only_if(x, ctx, params)
@@ -959,7 +1087,7 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
         id=top.id, title=str(manifest.get("title", top.id)), version=str(version),
         packs=tuple(s.id for s in sources), notice=str(manifest.get("notice", "") or ""),
         parameters=params, complaints=complaints, events=events, causes=causes, checks=checks,
-        repairs=repairs, cautions=cautions, cases=cases, states=states,
+        repairs=repairs, cautions=cautions, cases=cases, states=states, hazards=hazards,
         unknown_prior=_num(manifest.get("unknown_prior"), 5.0),
         leak=_num(manifest.get("leak"), 0.01), content_hash=digest.hexdigest()[:16],
         path=top.folder,
@@ -967,6 +1095,7 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
     if not any(p.level == "error" and p.code == "unknown-ref" for p in ctx.problems):
         if _tree_checks(model, ctx):
             _usage_checks(model, ctx)
+        _safety_checks(model, ctx)
     if any(p.level == "error" for p in ctx.problems):
         return None, ctx.problems
     if with_graph:

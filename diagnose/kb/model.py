@@ -62,6 +62,35 @@ class StateVar:
     initial: str
     setup: Mapping[str, float] = field(default_factory=dict)
     source: Source | None = None
+    renews: frozenset[str] = frozenset()  # moving into these values lapses acknowledgements
+
+
+@dataclass(frozen=True)
+class HazardCaution:
+    """A caution a hazard requires: on units the nameplate allows, after some findings."""
+
+    caution: str
+    only_if: Mapping[str, tuple[str, ...]] = field(default_factory=dict)
+    after: Mapping[str, tuple[str, ...]] = field(default_factory=dict)  # check -> outcomes
+    after_verdict: Mapping[str, tuple[str, ...]] = field(default_factory=dict)  # evaluator ->
+
+
+@dataclass(frozen=True)
+class Hazard:
+    """A kind of hazard a check or repair can bring, and what it requires.
+
+    ``caller_safe`` is True, False, or a mapping (parameter -> values): safe for
+    a caller only on a unit whose nameplate is known to match.
+    """
+
+    id: str
+    title: str
+    cautions: tuple[HazardCaution, ...] = ()
+    only_if: Mapping[str, tuple[str, ...]] = field(default_factory=dict)
+    withhold_until: Mapping[str, str] = field(default_factory=dict)
+    caller_safe: bool | Mapping[str, tuple[str, ...]] = False
+    words: tuple[str, ...] = ()
+    source: Source | None = None
 
 
 @dataclass(frozen=True)
@@ -162,6 +191,9 @@ class Check:
     requires: Mapping[str, str] = field(default_factory=dict)  # state -> value while done
     leaves: Mapping[str, str] = field(default_factory=dict)  # state -> value after
     replaces: str = ""  # the base pack's check this one took the place of
+    hazards: tuple[str, ...] = ()
+    hazards_declared: bool = False  # `hazards:` given (an empty list says: none)
+    hazards_note: str = ""
 
     @property
     def phone_ok(self) -> bool:
@@ -191,6 +223,10 @@ class Repair:
     only_if: Mapping[str, tuple[str, ...]] = field(default_factory=dict)
     observes: tuple[str, ...] = ()  # checks answered in plain sight during the repair
     leaves: Mapping[str, str] = field(default_factory=dict)  # default: the unit as found
+    requires: Mapping[str, str] = field(default_factory=dict)  # the state during the repair
+    hazards: tuple[str, ...] = ()
+    hazards_declared: bool = False
+    hazards_note: str = ""
 
 
 @dataclass(frozen=True)
@@ -248,6 +284,7 @@ class Model:
     cautions: Mapping[str, Caution]
     cases: Mapping[str, Case]
     states: Mapping[str, StateVar] = field(default_factory=dict)
+    hazards: Mapping[str, Hazard] = field(default_factory=dict)
     unknown_prior: float = 5.0  # "none of the known causes", per 1,000 service calls
     leak: float = 0.01  # P(complaint | a hypothesis whose tree does not produce it)
     content_hash: str = ""

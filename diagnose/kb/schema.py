@@ -137,6 +137,9 @@ CHECK = {
         "leaves": {**STATE_MAP, "description": "the state it leaves (default: as required)"},
         "replaces": {**ID, "description": "a check of a pack this one builds on that measures "
                                           "the same thing: this one takes its place"},
+        "hazards": {**IDS, "description": "the hazards of doing it; [] says it has none"},
+        "hazards_note": {**TEXT, "description": "why a step whose wording sounds hazardous "
+                                               "has none (with `hazards: []`)"},
         "preparation": {"type": "boolean",
                         "description": "a step that secures or prepares; observes no cause"},
         "outcomes": {
@@ -174,6 +177,10 @@ REPAIR = {
         "only_if": ONLY_IF,
         "observes": {**IDS, "description": "checks whose answer is in plain sight during this "
                                            "repair: asked on its card at no extra minutes"},
+        "hazards": {**IDS, "description": "the hazards of doing it; [] says it has none"},
+        "hazards_note": {**TEXT, "description": "why a repair whose wording sounds hazardous "
+                                               "has none (with `hazards: []`)"},
+        "requires": {**STATE_MAP, "description": "the state of the unit during the repair"},
         "leaves": {**STATE_MAP, "description": "the state the repair leaves (default: the "
                                                "unit put back as it was found)"},
     },
@@ -209,9 +216,53 @@ STATE = {
                     "minutes": {"type": "number", "minimum": 0, "maximum": 100000,
                                 "description": "minutes to bring the unit to this value; "
                                                "omitted: no plain setup step reaches it"},
+                    "renews_cautions": {"type": "boolean",
+                                        "description": "moving into this value (power "
+                                                       "restored, load support removed) "
+                                                       "makes earlier acknowledgements lapse"},
                 },
             },
         },
+    },
+}
+
+HAZARD = {
+    "type": "object",
+    "required": ["id", "title"],
+    "additionalProperties": False,
+    "description": "a kind of hazard a step can bring (energises the coil, releases the "
+                   "brake, works near a suspended load...) and the cautions it requires",
+    "properties": {
+        "id": ID,
+        "title": TEXT,
+        "only_if": {**ONLY_IF, "description": "the hazard exists only on such units (a "
+                                               "suspended load only where gravity_load is yes)"},
+        "cautions": {
+            "type": "array",
+            "description": "cautions every step with this hazard shows; each may hold only on "
+                           "some units, or only after an answer (a coil read as shorted)",
+            "items": {"anyOf": [ID, {
+                "type": "object", "required": ["caution"], "additionalProperties": False,
+                "properties": {"caution": ID, "only_if": ONLY_IF,
+                               "after": {"type": "object", "propertyNames": ID,
+                                         "additionalProperties": IDS,
+                                         "description": "check -> outcomes: only once one "
+                                                        "of them was found"},
+                               "after_verdict": {
+                                   "type": "object", "propertyNames": ID,
+                                   "additionalProperties": IDS,
+                                   "description": "evaluator -> verdicts: only once a reading "
+                                                  "of any check by that evaluator gave one "
+                                                  "(a coil read as shorted)"}}}]},
+        },
+        "withhold_until": {**STATE_MAP, "description": "steps with this hazard wait until the "
+                                                       "unit is in this state"},
+        "caller_safe": {"anyOf": [{"type": "boolean"}, ONLY_IF],
+                        "description": "may a caller be guided through a step with it? true, "
+                                       "false (default), or only on units whose nameplate "
+                                       "is known to match"},
+        "words": {"type": "array", "items": TEXT,
+                  "description": "wording that betrays this hazard, for lint"},
     },
 }
 
@@ -287,12 +338,13 @@ PACK_FILE_SCHEMA: dict[str, Any] = {
         "repairs": _section(REPAIR),
         "tests": _section(CASE),
         "states": _section(STATE),
+        "hazards": _section(HAZARD),
         "extend_checks": _section(EXTENSION),
     },
 }
 
 SECTIONS = ("cautions", "parameters", "complaints", "events", "causes", "checks", "repairs",
-            "tests", "states")
+            "tests", "states", "hazards")
 MANIFEST_KEYS = ("pack", "title", "version", "builds_on", "notice", "unknown_prior", "leak",
                  "description")
 

@@ -43,6 +43,8 @@ class Evidence:
         steps: ("check" | "repair" | "state", id) in the order done: what the
             state of the unit follows (see :mod:`diagnose.reasoning.unitstate`);
             for "state" the id is ``"var=value"`` (the technician says so).
+        acks: (caution, item, step) for each acknowledgement, ``step`` being
+            the number of steps done when it was given (None in older journals).
     """
 
     complaints: tuple[str, ...] = ()
@@ -59,6 +61,7 @@ class Evidence:
     identity: Mapping[str, str] = field(default_factory=dict)
     end: Mapping[str, object] | None = None
     steps: tuple[tuple[str, str], ...] = ()
+    acks: tuple[tuple[str, str | None, int | None], ...] = ()
 
     # --- questions --------------------------------------------------------------------
     @property
@@ -112,10 +115,15 @@ class Evidence:
         """``repair`` cannot be done now: not proposed again."""
         return replace(self, repairs_skipped=self.repairs_skipped | {repair})
 
-    def with_acknowledgement(self, caution: str, item: str | None = None) -> Evidence:
-        """``caution`` acknowledged before the instructions of ``item`` (None: of no card)."""
+    def with_acknowledgement(self, caution: str, item: str | None = None,
+                             step: int | None = None) -> Evidence:
+        """``caution`` acknowledged before the instructions of ``item`` (None: of no card).
+
+        ``step``: how many steps were done when it was given (None: not recorded).
+        """
         pairs = self.acknowledged_for | ({(item, caution)} if item else set())
-        return replace(self, acknowledged=self.acknowledged | {caution}, acknowledged_for=pairs)
+        return replace(self, acknowledged=self.acknowledged | {caution}, acknowledged_for=pairs,
+                       acks=self.acks + ((caution, item, step),))
 
     def with_nameplate(self, param: str, value: str) -> Evidence:
         return replace(self, nameplate={**self.nameplate, param: value})

@@ -76,6 +76,7 @@ from diagnose.reasoning.evidence import MODES, Evidence
 from diagnose.reasoning.nameplate import nameplate_value, only_if_matches
 from diagnose.reasoning.openworld import SUPPORT_MARGIN, any_support
 from diagnose.reasoning.posterior import Posterior, RankEntry, posterior
+from diagnose.reasoning.safety import caller_safe, missing_state, state_steps
 from diagnose.reasoning.tables import Tables, tables_for
 from diagnose.reasoning.unitstate import setup_minutes, setup_steps, unit_state
 
@@ -220,9 +221,10 @@ class RepairScore:
 
 
 _CHECK_STATUS = ("", "done", "unsure", "skipped", "site only", "not for this unit",
-                 "preparation", "one outcome", "blocked", "not in this state")
+                 "preparation", "one outcome", "blocked", "not in this state",
+                 "not for a caller")
 _REPAIR_STATUS = ("", "done", "site only", "blocked", "fixes nothing still possible",
-                  "skipped", "not for this unit")
+                  "skipped", "not for this unit", "not for a caller")
 
 
 @dataclass(frozen=True, eq=False)
@@ -684,8 +686,14 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
         elif extra > 0:
             cmin[i] += extra
             setups[i] = setup_steps(model, state, model.checks[tables.check_ids[i]].requires)
+    _withhold(model, evidence, tables.checks_withheld, tables.check_ids, model.checks, cmin,
+              code, 8, cneeds, cblocked)
     if phone:
         code[~tables.check_phone] = 4
+        for i in tables.checks_hazardous:
+            if code[i] != 4 and not caller_safe(model, evidence,
+                                                model.checks[tables.check_ids[i]]):
+                code[i] = 10
     for ids, c in ((evidence.skipped, 3), (evidence.unsure, 2), (evidence.findings, 1)):
         for cid in ids:
             if cid in pos:
@@ -697,6 +705,8 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
     rmin = tables.minutes.copy()
     rneeds, rblocked = _prerequisites(model, evidence, tables.repairs_needing,
                                       tables.repair_needs, rmin, rcode, 3)
+    _withhold(model, evidence, tables.repairs_withheld, tables.repair_ids, model.repairs, rmin,
+              rcode, 3, rneeds, rblocked)
     p_fix = np.bincount(tables.fix_repair, weights=p[tables.fix_hyp], minlength=R)
     rcode[(p_fix <= EPS) & (rcode == 0)] = 4
     for i in tables.repairs_only_if:
@@ -704,6 +714,10 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
             rcode[i] = 6
     if phone:
         rcode[~tables.repair_phone] = 2
+        for i in tables.repairs_hazardous:
+            if rcode[i] != 2 and not caller_safe(model, evidence,
+                                                 model.repairs[tables.repair_ids[i]]):
+                rcode[i] = 7
     for rid in evidence.repairs_skipped:
         if rid in tables.repair_index:
             rcode[tables.repair_index[rid]] = 5
@@ -745,6 +759,34 @@ def _neutral_outcomes(model: Model, tables: Tables, cand: np.ndarray, width: int
             out[row, j] = not any(r.get(o, 0.0) > base for c, r in chk.effects.items()
                                   if c not in excluded)
     return out
+
+
+def _withhold(model: Model, evidence: Evidence, which: tuple[int, ...], ids: tuple[str, ...],
+              items: Any, minutes: np.ndarray, code: np.ndarray, blocked_code: int,
+              needs: dict[int, tuple[str, ...]], blocked: dict[int, str]) -> None:
+    """Items whose hazards wait for a state (the load supported): that step comes first.
+
+    The preparation step that leaves the unit in that state is proposed first,
+    even when it was done before and the state has changed since; with none,
+    the item is blocked until the state is recorded (``state`` in the shell).
+    """
+    for i in which:
+        missing = missing_state(model, evidence, items[ids[i]])
+        if not missing:
+            continue
+        steps = state_steps(model, missing)
+        if not steps:
+            blocked[i] = "waiting for " + ", ".join(f"{k}: {v}" for k, v in missing.items())
+            code[i] = blocked_code
+            continue
+        first = steps[0]
+        if evidence.mode == "phone" and not model.checks[first].phone_ok:
+            blocked[i] = f"needs {first} (site only)"
+            code[i] = blocked_code
+            continue
+        if first not in needs.get(i, ()):
+            needs[i] = (first,) + needs.get(i, ())
+            minutes[i] += model.checks[first].minutes
 
 
 def _prerequisites(model: Model, evidence: Evidence, which: tuple[int, ...],

@@ -150,6 +150,11 @@ class Tables:
         self.repairs_needing = tuple(i for i, r in enumerate(reps) if r.needs)
         self.repairs_only_if = tuple(i for i, r in enumerate(reps) if r.only_if)
         self.checks_requiring = tuple(i for i, c in enumerate(chks) if c.requires)
+        waits = {h.id for h in model.hazards.values() if h.withhold_until}
+        self.checks_withheld = tuple(i for i, c in enumerate(chks) if waits & set(c.hazards))
+        self.repairs_withheld = tuple(i for i, r in enumerate(reps) if waits & set(r.hazards))
+        self.checks_hazardous = tuple(i for i, c in enumerate(chks) if c.hazards)
+        self.repairs_hazardous = tuple(i for i, r in enumerate(reps) if r.hazards)
 
     @property
     def model(self) -> Model:

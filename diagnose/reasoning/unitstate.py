@@ -57,6 +57,7 @@ def unit_state(model: Model, evidence: Evidence) -> dict[str, str]:
         elif kind == "repair":
             rep = model.repairs.get(ident)
             if rep is not None:
+                _update(state, rep.requires, model)
                 _update(state, rep.leaves or initial_state(model), model)
         elif kind == "state" and "=" in ident:
             var, value = ident.split("=", 1)

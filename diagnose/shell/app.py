@@ -455,11 +455,18 @@ class Shell:
                 rows.append(row)
         return RankingView(tuple(rows), unknown, top=top)
 
-    def cautions(self, ids: Sequence[str]) -> tuple[CautionView, ...]:
+    def cautions(self, ids: Sequence[str], reminded: Sequence[str] = ()
+                 ) -> tuple[CautionView, ...]:
+        """Cautions most serious first; those in ``reminded`` as one-line reminders."""
         order = {"DANGER": 0, "WARNING": 1, "CAUTION": 2, "NOTICE": 3}
         found = [self.model.cautions[c] for c in ids if c in self.model.cautions]
-        found.sort(key=lambda c: order.get(c.level, 9))
-        return tuple(CautionView(c.level, c.text) for c in found)
+        found.sort(key=lambda c: (c.id in reminded, order.get(c.level, 9)))
+        return tuple(CautionView(c.level, c.text, c.id in reminded) for c in found)
+
+    def card_cautions(self, item_id: str) -> tuple[CautionView, ...]:
+        """A card's cautions now: its own and its hazards', standing ones as reminders."""
+        s = self.session
+        return self.cautions(s.card_cautions(item_id), [c.id for c in s.reminders(item_id)])
 
     def check_card(self, chk: Check, action: Action | None, *, shown: bool) -> CheckCard:
         phone = self.session.mode == "phone"
@@ -467,7 +474,7 @@ class Shell:
         outcomes = tuple((o, chk.outcome_titles.get(o, "")) for o in chk.outcomes)
         instructions = (chk.caller or chk.ask) if phone else chk.ask
         return CheckCard(chk.id, chk.title, chk.minutes, tuple(chk.tools),
-                         self.cautions(chk.cautions), why, instructions if shown else None,
+                         self.card_cautions(chk.id), why, instructions if shown else None,
                          outcomes, unit_text(chk.measurement.unit) if chk.measurement else "",
                          "Ask the caller" if phone else "Check",
                          needs=() if phone else self.session.setup_for(chk.id), many=_many(chk))
@@ -527,6 +534,9 @@ class Shell:
         ``card(shown)`` makes the card with (True) or without (False) its
         instructions. Returns False when the person chose to skip it instead.
         """
+        standing = self.session.reminders(item_id)
+        if standing:  # shown as one-line reminders: on the record too
+            self.session.remind(item_id, [c.id for c in standing])
         if not self.session.pending_cautions(item_id):
             self.console.print(card(True))
             return True
@@ -626,7 +636,7 @@ class Shell:
         if rep.confirm and rep.confirm in self.model.checks:
             confirm = f"confirm with: {self.model.checks[rep.confirm].title}"
         return RepairCard(rep.id, rep.title, rep.minutes, tuple(rep.parts),
-                          self.cautions(rep.cautions), fixes, why,
+                          self.card_cautions(rep.id), fixes, why,
                           rep.ask if shown else None, confirm,
                           "The caller tries" if self.session.mode == "phone" else "Repair")
 

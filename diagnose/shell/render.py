@@ -111,17 +111,23 @@ class RankingView:
 
 @dataclass(frozen=True)
 class CautionView:
-    """One caution: its signal word first, then its text."""
+    """One caution: its signal word first, then its text.
+
+    ``reminder``: acknowledged earlier in this state; shown on one line.
+    """
 
     level: str
     text: str
+    reminder: bool = False
 
     def __rich_console__(self, console: Any, options: Any) -> Any:
         from rich.text import Text
 
-        line = Text()
+        line = Text(no_wrap=self.reminder, overflow="ellipsis")
         line.append(f"{_LEVEL_MARK.get(self.level, '  ')}{self.level}",
                     style=_LEVEL_STYLE.get(self.level, "bold"))
+        if self.reminder:
+            line.append(" (acknowledged, still applies)", style="dim")
         line.append(f"  {self.text}")
         yield line
 
