@@ -40,8 +40,10 @@ Decision rule (``Settings``; tuned with ``diagnose simulate``):
    ``act_floor`` and being wrong costs less than the cheapest informative look
    (``(1 − p) · c_repair ≤ c_check``);
 6. else, while a check still gives ``min_bits`` or more, that check;
-7. else by phone a site visit (an escalation when "unknown" is more likely
-   than every known cause together); on site repair the most likely cause, or
+7. else by phone the caller's own repair for the top cause when it is at
+   least ``act_floor``, or a site visit (an escalation when "unknown" is more
+   likely than every known cause together); on site repair the most likely
+   cause, or
    escalate when "unknown" leads or no repair is left.
 
 A check or repair whose prerequisites (``needs``) are not done is proposed
@@ -864,6 +866,9 @@ def _decide(model: Model, evidence: Evidence, post: Posterior, settings: Setting
         return _check_action(pl, best_c, _phone_question(model, post, pl.check_ids[best_c])
                              if phone else "not yet sure enough to repair")
     if phone:  # nothing more to learn by phone: the site checks are still to come
+        if known and top.p >= settings.act_floor and for_top.any():
+            best = int(np.argmax(np.where(for_top, ratio, -np.inf)))
+            return _repair_action(pl, best, _ON_PHONE["try now"])
         if post.unknown >= 0.5:
             return _escalate(post, _ON_PHONE["fits none"])
         return _visit(model, evidence, post, "nothing more to learn by phone")
