@@ -168,14 +168,18 @@ def test_readonly_never_creates(tmp_path):
 
 @pytest.mark.parametrize("command", [["sessions"], ["stats"], ["report", "1"]])
 def test_reading_an_empty_file_given_as_journal(tmp_path, capsys, command):
+    """A 0-byte journal reads like a missing one: no sessions (exit 0), no report (exit 1)."""
     from diagnose.cli import main
 
     empty = tmp_path / "empty.sqlite3"
     empty.write_bytes(b"")
-    assert main(["--journal", str(empty)] + command) == 1
-    err = capsys.readouterr().err
-    assert "is empty: nothing was recorded" in err and len(err.strip().splitlines()) == 1
-    assert empty.read_bytes() == b""
+    missing = tmp_path / "missing.sqlite3"
+    code = main(["--journal", str(empty)] + command)
+    out, err = capsys.readouterr()
+    assert code == main(["--journal", str(missing)] + command)
+    assert code == (1 if command[0] == "report" else 0)
+    assert "Traceback" not in err and len(err.strip().splitlines()) == code
+    assert empty.read_bytes() == b"" and not missing.exists()
 
 
 def test_backup_is_a_full_copy(filled, tmp_path):

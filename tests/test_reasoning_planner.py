@@ -227,7 +227,7 @@ def test_no_phone_action_speaks_of_work_on_site(seed):
 
 
 def test_phone_escalation_recommends_a_site_visit():
-    m = tiny_model(unknown_prior=995)
+    m = tiny_model(unknown_prior=5000)  # "none of the known causes" above the threshold
     a = next_action(m, replace(WNR, mode="phone"))
     assert a.kind == "escalate" and "site visit" in a.reason
 

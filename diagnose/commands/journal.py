@@ -14,7 +14,7 @@ import argparse
 import json
 from typing import Any
 
-from diagnose.commands import write_output
+from diagnose.commands import add_output_arguments, output_options, write_output
 from diagnose.errors import InputError, JournalError
 
 
@@ -45,7 +45,7 @@ def register(sub: Any) -> None:
     p.add_argument("session_id", metavar="ID")
     p.add_argument("--format", choices=("md", "html", "json"), default="md",
                    help="md (default), html (one self-contained file) or json")
-    p.add_argument("-o", "--output", metavar="FILE", help="write to FILE instead of the screen")
+    add_output_arguments(p)
     p.set_defaults(handler=_report)
 
     p = sub.add_parser("learn", help="refine a pack's cause priors from confirmed cures",
@@ -68,9 +68,15 @@ def register(sub: Any) -> None:
     p.set_defaults(handler=_stats)
 
     p = sub.add_parser("backup", help="copy the journal safely, even while it is in use",
-                       description="Copy the whole journal to FILE with SQLite's online backup "
-                       "(a consistent copy even while a diagnosis is writing to it).")
+                       description="Check the journal's integrity, then copy the whole journal "
+                       "to FILE with the database's online backup (a consistent copy even while "
+                       "a diagnosis is writing to it). The copy is written beside FILE and "
+                       "renamed into place. A damaged journal is not copied.")
     p.add_argument("target", metavar="FILE")
+    p.add_argument("--force", action="store_true",
+                   help="replace FILE if it is an earlier backup or another journal (never the "
+                   "journal itself, another program's database or a path through a symbolic "
+                   "link)")
     p.set_defaults(handler=_backup)
 
 
@@ -84,11 +90,15 @@ def _path(args: argparse.Namespace) -> Any:
 
 
 def _reader(args: argparse.Namespace) -> Any:
-    """The journal opened for reading, or None when there is no journal file yet."""
-    from diagnose.journal.store import Journal
+    """The journal opened for reading, or None when nothing was recorded there yet.
+
+    A missing file, a 0-byte file and a journal never written to are alike:
+    no sessions. A damaged file raises ``JournalError``.
+    """
+    from diagnose.journal.store import Journal, inspect
 
     path = _path(args)
-    if not path.exists():
+    if inspect(path) == 0:
         return None
     return Journal(path, readonly=True)
 
@@ -133,6 +143,7 @@ def _sessions(args: argparse.Namespace) -> int:
     infos = []
     if journal is not None:
         with journal:
+            journal.verify_events()  # a row altered by hand is named, not listed as sound
             infos = journal.sessions(args.status, pack_id=args.pack)
     if args.json:
         print(json.dumps([i.to_dict() for i in infos], indent=2, ensure_ascii=False))
@@ -163,6 +174,7 @@ def _resume(args: argparse.Namespace) -> int:
     journal = _need_reader(args)
     with journal:
         info = journal.session(args.session_id)
+        journal.verify_events(info.id)
     ensure_open(info)
     try:
         from diagnose.shell.app import resume
@@ -195,13 +207,14 @@ def _report(args: argparse.Namespace) -> int:
 
     with _need_reader(args) as journal:
         info = journal.session(args.session_id)
+        journal.verify_events(info.id)  # no log from an event altered by hand
         model = _model(args, info.pack_id)
         if model is None:  # a pack given by its folder: the folder its notice recorded
             folder = recorded_folder(journal.load_events(info.id))
             found = _model(args, folder) if folder else None
             model = found if getattr(found, "id", None) == info.pack_id else None
         record = session_record(journal, info.id, model)
-    write_output(render_report(record, args.format), args.output)
+    write_output(render_report(record, args.format), args.output, **output_options(args))
     return 0
 
 
@@ -250,6 +263,7 @@ def _stats(args: argparse.Namespace) -> int:
 
 def _backup(args: argparse.Namespace) -> int:
     with _need_reader(args) as journal:
-        target = journal.backup(args.target)
+        target = journal.backup(args.target, force=args.force)
+    print("integrity: ok")
     print(f"journal {_path(args)} copied to {target}")
     return 0

@@ -8,7 +8,7 @@ import sys
 from importlib import import_module
 from typing import Any
 
-from diagnose.commands import write_output
+from diagnose.commands import add_output_arguments, output_options, write_output
 
 
 def register(sub: Any) -> None:
@@ -34,11 +34,11 @@ def register(sub: Any) -> None:
     p = ks.add_parser("graph", help="export the compiled graph")
     p.add_argument("pack", metavar="PACK")
     p.add_argument("--format", choices=("dot", "mermaid", "graphml", "json"), default="dot")
-    p.add_argument("-o", "--output", metavar="FILE", help="write to FILE instead of the screen")
+    add_output_arguments(p)
     p.set_defaults(handler=_graph)
 
     p = ks.add_parser("schema", help="print the JSON Schema of pack files (for your editor)")
-    p.add_argument("-o", "--output", metavar="FILE")
+    add_output_arguments(p)
     p.set_defaults(handler=_schema)
 
     p = ks.add_parser("test", help="run the knowledge test cases stored in a pack")
@@ -174,14 +174,14 @@ def _graph(args: argparse.Namespace) -> int:
     from diagnose.kb.export import export
 
     model = load(args, args.pack)
-    write_output(export(model.graph, args.format), args.output)
+    write_output(export(model.graph, args.format), args.output, **output_options(args))
     return 0
 
 
 def _schema(args: argparse.Namespace) -> int:
     from diagnose.kb.schema import pack_schema
 
-    write_output(json.dumps(pack_schema(), indent=2) + "\n", args.output)
+    write_output(json.dumps(pack_schema(), indent=2) + "\n", args.output, **output_options(args))
     return 0
 
 
@@ -205,8 +205,13 @@ def _test(args: argparse.Namespace) -> int:
 
 
 def _list(args: argparse.Namespace) -> int:
-    from diagnose.kb.locate import available
+    import sys
 
-    for pid, folder in available(args.packs).items():
+    from diagnose.kb.locate import scan
+
+    packs, problems = scan(args.packs)
+    for pid, folder in packs.items():
         print(f"{pid}\t{folder}")
+    for problem in problems:  # one line per broken manifest; the others are listed
+        print(f"diagnose: {problem}", file=sys.stderr)
     return 0

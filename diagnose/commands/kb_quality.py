@@ -14,7 +14,9 @@ from typing import Any
 
 
 def add_analyze_parser(ks: Any) -> None:
-    """``kb analyze PACK [--complaint ID] [--json] [--format md|html] [-o FILE]``."""
+    """``kb analyze PACK [--complaint ID] [--json] [--format md|html] [-o FILE [--force]]``."""
+    from diagnose.commands import add_output_arguments
+
     p = ks.add_parser(
         "analyze", help="fault-tree, testability and effort analysis of a pack",
         description="Per complaint and for the pack: minimal cut sets, top-event probability "
@@ -26,7 +28,7 @@ def add_analyze_parser(ks: Any) -> None:
     p.add_argument("--json", action="store_true", help="one JSON object (to FILE with -o)")
     p.add_argument("--format", choices=("md", "html"),
                    help="a Markdown or HTML report (default with -o: from the file's suffix)")
-    p.add_argument("-o", "--output", metavar="FILE", help="write to FILE instead of the screen")
+    add_output_arguments(p)
     p.add_argument("--threshold", type=float, default=0.1, metavar="TV",
                    help="total variation above which two outcome rows count as told apart "
                    "(default 0.1)")
@@ -78,17 +80,20 @@ def analyze_command(args: argparse.Namespace) -> int:
     result = analyze(model, complaint=args.complaint, threshold=args.threshold,
                      effort=not args.no_effort, runs=args.runs, unknown_rate=rate)
     if args.json:
-        from diagnose.commands import write_output
+        from diagnose.commands import output_options, write_output
 
-        write_output(json.dumps(result.to_dict(), indent=2) + "\n", args.output)
+        write_output(json.dumps(result.to_dict(), indent=2) + "\n", args.output,
+                     **output_options(args))
         if args.output:
             print(f"wrote {args.output}", file=sys.stderr)
     elif args.format or args.output:
-        from diagnose.report_analysis import render_analysis, write_analysis
+        from diagnose.commands import output_options, write_output
+        from diagnose.report_analysis import render_analysis
 
         if args.output:
-            path = write_analysis(result, args.output, args.format)
-            print(f"wrote {path}", file=sys.stderr)
+            fmt = args.format or _format_of(args.output)
+            write_output(render_analysis(result, fmt), args.output, **output_options(args))
+            print(f"wrote {args.output}", file=sys.stderr)
         else:
             sys.stdout.write(render_analysis(result, args.format))
     else:
@@ -98,11 +103,19 @@ def analyze_command(args: argparse.Namespace) -> int:
     return 0
 
 
+def _format_of(output: str) -> str:
+    """The report format a file name asks for: html for .html and .htm, else md."""
+    from pathlib import Path
+
+    return "html" if Path(output).suffix.lower() in (".htm", ".html") else "md"
+
+
 def new_command(args: argparse.Namespace) -> int:
     from diagnose.kb.scaffold import pack_folder, write_skeleton
 
     folder = pack_folder(args.pack)
-    path = write_skeleton(folder, args.kind, args.id, file=args.file, evaluator=args.evaluator)
+    path = write_skeleton(folder, args.kind, args.id, file=args.file, evaluator=args.evaluator,
+                          journal=getattr(args, "journal", None))
     todo = sum(1 for line in path.read_text(encoding="utf-8").splitlines() if "TODO" in line)
     print(f"wrote {args.kind} {args.id} to {path}; fill the lines marked TODO "
           f"({todo} in the file), then run `diagnose kb lint {folder}`")

@@ -58,15 +58,20 @@ def register(sub: Any) -> None:
 def read_answers(path: str) -> dict[str, Any]:
     """The answers file as data (YAML 1.2 booleans; JSON is read as YAML).
 
+    The file is read within the bounds of :mod:`diagnose.kb.yamlpos`: at most
+    :data:`~diagnose.kb.yamlpos.ANSWERS_FILE_BYTES`, no anchors or aliases,
+    limited nesting and integer length.
+
     Raises:
-        InputError: unreadable, not YAML, or not a mapping with the known keys.
+        InputError: unreadable, too large, not YAML, or not a mapping with the known keys.
     """
     from diagnose.errors import InputError
-    from diagnose.kb.yamlpos import read_yaml
+    from diagnose.kb.yamlpos import ANSWERS_FILE_BYTES, read_text, read_yaml
+    from diagnose.physics.units import excerpt
     from diagnose.session import END_RESULTS
 
     try:
-        text = Path(path).read_text(encoding="utf-8")
+        text = read_text(Path(path), ANSWERS_FILE_BYTES)
     except (OSError, UnicodeDecodeError) as exc:
         reason = getattr(exc, "strerror", None) or exc
         raise InputError("answers", f"cannot read {path}: {reason}") from None
@@ -81,14 +86,14 @@ def read_answers(path: str) -> dict[str, Any]:
         raise InputError("answers", f"{path}: expected a mapping with nameplate, complaints, steps")
     extra = set(data) - ANSWER_KEYS
     if extra:
-        raise InputError("answers", f"{path}: unknown key {min(extra)!r}")
+        raise InputError("answers", f"{path}: unknown key {excerpt(min(extra, key=str))}")
     for key, kind in (("nameplate", dict), ("complaints", list), ("steps", list),
                       ("identity", dict), ("notes", list)):
         if key in data and not isinstance(data[key], kind):
             raise InputError("answers", f"{path}: `{key}` must be a {kind.__name__}")
     if "end" in data and data["end"] not in END_RESULTS:
         raise InputError("answers", f"{path}: `end` must be one of {', '.join(END_RESULTS)}, "
-                                    f"not {data['end']!r}")
+                                    f"not {excerpt(data['end'])}")
     return data
 
 

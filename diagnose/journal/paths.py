@@ -11,13 +11,22 @@ The journal is one SQLite file. Its place, first match wins:
 
 Learned priors are JSON files beside the journal, one a pack:
 ``<journal folder>/learned/<pack>.json``.
+
+Every file the program writes (a report, a graph, a backup, a new pack
+file) first passes ``writable_target``, which never lets it land on the
+journal, on a database or through a symbolic link, and then is written by
+``replace_atomically``: a temporary file in the same folder, synced, then
+renamed into place.
 """
 
 from __future__ import annotations
 
+import errno
 import os
+import secrets
+import stat
 import sys
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from pathlib import Path
 
 ENV_JOURNAL = "DIAGNOSE_JOURNAL"
@@ -68,3 +77,232 @@ def overlay_path(journal: str | os.PathLike[str], pack_id: str) -> Path:
     '/data/learned/spring-applied-brake.json'
     """
     return Path(journal).parent / LEARNED_DIR / f"{pack_id}.json"
+
+
+# --- where the program may write ----------------------------------------------------------
+#
+# Every file the program writes goes through ``writable_target`` (may this path be
+# written at all?) and ``replace_atomically`` (a temporary file in the same folder,
+# synced, then renamed over the target): a reader sees the old file or the new one,
+# never half of one, and a failure leaves the old file as it was.
+
+_WAL_MAGIC = (b"\x37\x7f\x06\x82", b"\x37\x7f\x06\x83")  # a write-ahead log's first 4 bytes
+_SIDE_FILES = ("-wal", "-shm", "-journal")  # what a database keeps beside its main file
+
+
+def writable_target(target: str | os.PathLike[str], *,
+                    journal: str | os.PathLike[str] | None = None, force: bool = False,
+                    field: str = "--output", journal_copy: bool = False) -> Path:
+    """``target`` as a file the program may write, or the reason it may not.
+
+    Refused always: a path reached through a symbolic link (the file itself or
+    a folder on the way), the journal in use (``journal``, or the one
+    ``journal_path`` finds when None; also when reached by another path or a
+    hard link) and its side files, a database file, a folder and any other
+    file that is not a regular one. Refused unless ``force``: an existing
+    file. With ``journal_copy`` (a backup) an existing diagnose journal may be
+    replaced with ``force``, unless its write-ahead log shows it is in use.
+
+    Raises:
+        InputError: the target is refused; ``field`` names the option that gave it.
+
+    >>> import tempfile
+    >>> folder = Path(tempfile.mkdtemp())
+    >>> writable_target(folder / "log.md", journal=folder / "j.sqlite3").name
+    'log.md'
+    """
+    from diagnose.errors import InputError
+
+    def refuse(why: str) -> InputError:
+        return InputError(field, f"{target} {why}")
+
+    absolute = os.path.abspath(os.fspath(target))
+    link = _first_link(absolute)
+    # realpath of the path as given: "link/../x" goes through the link as the system would.
+    if link is not None or os.path.realpath(os.fspath(target)) != absolute:
+        through = "" if link is None or link == absolute else f" ({link} is one)"
+        raise refuse(f"is reached through a symbolic link{through}; it is never written: "
+                     "give the real path")
+    journal_file = os.path.realpath(journal_path(journal))
+    if any(absolute == journal_file + side for side in ("", *_SIDE_FILES)):
+        raise refuse("is the journal in use; it is never written over")
+    try:
+        st: os.stat_result | None = os.lstat(absolute)
+    except FileNotFoundError:
+        st = None
+    except OSError as exc:
+        raise refuse(f"cannot be written: {exc.strerror}") from None
+    if st is None:
+        return Path(target)
+    if _same_file(st, journal_file):
+        raise refuse("is the journal in use (by another path); it is never written over")
+    if stat.S_ISDIR(st.st_mode):
+        raise refuse("is a folder; give a file name")
+    if not stat.S_ISREG(st.st_mode):
+        raise refuse("is not a regular file; it is never written over")
+    head = _head(absolute)
+    if head is None:
+        raise refuse("cannot be read; it is never written over")
+    if head[:4] in _WAL_MAGIC:
+        raise refuse("is the write-ahead log of a database; it is never written over")
+    if head.startswith(b"SQLite format 3\x00"):
+        if not (journal_copy and _is_journal(head)):
+            raise refuse("is a database file; it is never written over")
+        if _in_use(absolute):
+            raise refuse(f"is a journal in use ({target}-wal is beside it); close what uses it "
+                         "or give another file")
+    if not force:
+        raise refuse("exists already; give --force to replace it")
+    return Path(target)
+
+
+def replace_atomically(target: str | os.PathLike[str], fill: Callable[[Path], None], *,
+                       field: str = "--output") -> Path:
+    """Write ``target`` at once: ``fill`` writes a temporary file, which then takes its place.
+
+    The temporary file is made in the target's folder (so the rename cannot
+    cross file systems), synced to disk and renamed over ``target``; the folder
+    is synced too. On any failure the temporary file is removed and ``target``
+    is left as it was. An existing target keeps its permission bits. Check
+    the target with ``writable_target`` first.
+
+    Raises:
+        InputError: the file cannot be written (``field`` names the option);
+            whatever ``fill`` raises goes through unchanged.
+
+    References:
+        POSIX.1-2017, ``rename()`` (atomic replacement of a directory entry)
+        and ``fsync()``.
+    """
+    from diagnose.errors import InputError
+
+    path = Path(os.path.abspath(os.fspath(target)))
+    tmp: Path | None = None
+    try:
+        try:
+            mode: int | None = stat.S_IMODE(os.stat(path).st_mode)
+        except FileNotFoundError:
+            mode = None
+        tmp = _temporary_beside(path)
+        fill(tmp)
+        _sync_file(tmp)
+        if mode is not None:
+            os.chmod(tmp, mode)
+        os.replace(tmp, path)
+        tmp = None
+    except OSError as exc:
+        raise InputError(field, _write_failure(target, exc)) from None
+    finally:
+        if tmp is not None:
+            _remove_temporary(tmp)
+    _sync_folder(path.parent)
+    return Path(target)
+
+
+def write_text_atomically(target: str | os.PathLike[str], text: str, *,
+                          field: str = "--output") -> Path:
+    """``text`` (UTF-8) written to ``target`` with ``replace_atomically``."""
+    data = text.encode("utf-8")
+    return replace_atomically(target, lambda tmp: tmp.write_bytes(data), field=field)
+
+
+def _first_link(absolute: str) -> str | None:
+    """The first component of ``absolute`` that is a symbolic link, or None."""
+    current = Path(absolute)
+    chain = [*reversed(current.parents), current]
+    for part in chain:
+        try:
+            if stat.S_ISLNK(os.lstat(part).st_mode):
+                return str(part)
+        except FileNotFoundError:
+            return None  # nothing further down exists either
+        except OSError:
+            continue
+    return None
+
+
+def _same_file(st: os.stat_result, other: str) -> bool:
+    """``st`` (an existing file) and the file at ``other`` (or its side files) are one file."""
+    for side in ("", *_SIDE_FILES):
+        try:
+            o = os.stat(other + side)
+        except OSError:
+            continue
+        if (st.st_ino, st.st_dev) == (o.st_ino, o.st_dev):
+            return True
+    return False
+
+
+def _head(path: str) -> bytes | None:
+    """The first 100 bytes of ``path`` (a database header's length), or None if unreadable."""
+    try:
+        with open(path, "rb") as fh:
+            return fh.read(100)
+    except OSError:
+        return None
+
+
+def _is_journal(head: bytes) -> bool:
+    """A database header whose application id (bytes 68-71) marks a diagnose journal."""
+    from diagnose.journal.store import APPLICATION_ID
+
+    return len(head) >= 72 and int.from_bytes(head[68:72], "big") == APPLICATION_ID
+
+
+def _in_use(path: str) -> bool:
+    """A write-ahead log with content lies beside the database ``path``."""
+    try:
+        return os.stat(path + "-wal").st_size > 0
+    except OSError:
+        return False
+
+
+def _temporary_beside(path: Path) -> Path:
+    """A new empty file in ``path``'s folder, created exclusively (never an existing one)."""
+    for _ in range(100):
+        tmp = path.with_name(f".{path.name}.{secrets.token_hex(4)}.tmp")
+        try:
+            fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
+        except FileExistsError:
+            continue
+        os.close(fd)
+        return tmp
+    raise FileExistsError(errno.EEXIST, "no free temporary name", str(path))
+
+
+def _sync_file(path: Path) -> None:
+    fd = os.open(path, os.O_RDWR)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def _sync_folder(folder: Path) -> None:
+    """Make the rename durable; some systems cannot open a folder, which is no failure."""
+    try:
+        fd = os.open(folder, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)
+
+
+def _remove_temporary(tmp: Path) -> None:
+    for side in ("", *_SIDE_FILES):
+        try:
+            os.unlink(f"{tmp}{side}")
+        except OSError:
+            pass
+
+
+def _write_failure(target: str | os.PathLike[str], exc: OSError) -> str:
+    """One line on a failed write; the disk being full is said plainly."""
+    if exc.errno in (errno.ENOSPC, getattr(errno, "EDQUOT", errno.ENOSPC)):
+        return (f"cannot write {target}: the disk is full: nothing was written and the file is "
+                "as it was; free space and try again")
+    return f"cannot write {target}: {exc.strerror or exc}"

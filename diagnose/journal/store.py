@@ -19,6 +19,15 @@ Safety rules, in the order ``Journal`` applies them:
   old file is kept beside it (``journal.sqlite3.schema1.bak``).
 * Writers wait for each other (``busy_timeout`` and a bounded retry), so two
   sessions writing at once lose nothing.
+* A full disk stops the write that did not fit and says so; what was
+  committed before stays, and the session resumes once there is space.
+* Events are read back checked: a row altered by hand (data that is not a
+  JSON object, a ranking that is no list) raises ``JournalError`` naming the
+  session and the event number; ``verify_events`` also finds events that lack
+  what replaying them needs.
+* ``backup`` checks the journal's integrity first and writes the copy
+  beside its target, renaming it into place; it never writes over the
+  journal, another program's database or a path through a symbolic link.
 
 References:
     SQLite, "Write-Ahead Logging" (https://sqlite.org/wal.html) and
@@ -29,8 +38,10 @@ References:
 from __future__ import annotations
 
 import dataclasses
+import errno
 import json
 import os
+import shutil
 import sqlite3
 import time as _time
 from collections.abc import Iterator, Mapping
@@ -48,6 +59,19 @@ HEADER = b"SQLite format 3\x00"
 BUSY_TIMEOUT_MS = 5000
 _RETRIES = 4  # on top of busy_timeout: a writer waits up to about 20 s in all
 STATUSES = ("open", "closed")
+_LOW_SPACE = 1 << 20  # bytes free below which an I/O error is taken for a full disk
+DISK_FULL = "the disk is full: nothing more was written; free space and resume"
+
+# What replaying a session reads from an event's data with no default
+# (``diagnose.session.apply``, ``diagnose.journal.record``): an event without it
+# was altered by hand. A reading needs its verdict or its weights besides.
+EVENT_KEYS: dict[str, tuple[str, ...]] = {
+    "nameplate": ("param", "value"), "complaint": ("complaint",),
+    "answer": ("check", "outcome"), "reading": ("check",), "unsure": ("check",),
+    "skip": ("check",), "skip_repair": ("repair",), "ack": ("caution",),
+    "repair": ("repair", "cured"), "mode": ("mode",), "state": ("state", "value"),
+    "undo": ("index",),
+}
 
 # _MIGRATIONS[n] takes a journal from schema n to n + 1. Append only; never edit one
 # that has shipped.
@@ -229,6 +253,8 @@ def inspect(path: Path, *, thorough: bool = False) -> int:
         tables = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type='table'")}
         if app not in (0, APPLICATION_ID) or (app == 0 and (tables or version)):
             raise _damaged(path, "another program's database")
+        if version == 0 and tables:  # a schema version set back by hand: not an empty journal
+            raise _damaged(path, "it holds tables but no schema version")
         if version > SCHEMA_VERSION:
             raise JournalError(
                 f"the journal {path} was written by a newer diagnose (schema {version}; this "
@@ -250,6 +276,8 @@ def inspect(path: Path, *, thorough: bool = False) -> int:
 def _translate(path: Path, exc: sqlite3.Error) -> JournalError:
     text = str(exc)
     low = text.lower()
+    if is_disk_full(exc, path):  # first: a full disk can look like a read-only or I/O failure
+        return JournalError(f"cannot write the journal {path}: {DISK_FULL}")
     if "readonly" in low or "read-only" in low or "unable to open" in low:
         return JournalError(
             f"cannot write the journal {path}: the file or its folder is read-only. Choose "
@@ -259,9 +287,30 @@ def _translate(path: Path, exc: sqlite3.Error) -> JournalError:
                             "try again")
     if "malformed" in low or "not a database" in low or "corrupt" in low:
         return _damaged(path, text)
-    if "full" in low:
-        return JournalError(f"cannot write the journal {path}: the disk is full")
     return JournalError(f"journal {path}: {text}")
+
+
+def is_disk_full(exc: BaseException, path: Path) -> bool:
+    """Whether ``exc``, raised while writing the file ``path``, comes of a full disk.
+
+    It does when the database says so ("database or disk is full"), when the
+    system says ENOSPC (or EDQUOT), and when an I/O error or a file that
+    cannot be opened strikes with (almost) no space left in ``path``'s folder:
+    the database reports a full disk met while writing its log that way.
+    """
+    if isinstance(exc, OSError):
+        return exc.errno in (errno.ENOSPC, getattr(errno, "EDQUOT", errno.ENOSPC))
+    low = str(exc).lower()
+    name = str(getattr(exc, "sqlite_errorname", ""))
+    if "database or disk is full" in low or name == "SQLITE_FULL":
+        return True
+    if "disk i/o error" in low or "unable to open" in low or name.startswith(
+            ("SQLITE_IOERR", "SQLITE_CANTOPEN")):
+        try:
+            return shutil.disk_usage(path.parent).free < _LOW_SPACE
+        except OSError:
+            return False
+    return False
 
 
 def _is_busy(exc: sqlite3.Error) -> bool:
@@ -346,8 +395,15 @@ class Journal:
     def _keep_copy(self, version: int) -> None:
         """Copy the journal aside before a migration changes it."""
         target = self.path.with_name(f"{self.path.name}.schema{version}.bak")
-        if not target.exists():
-            self.backup(target)
+        if os.path.lexists(target):
+            return
+        from diagnose.errors import InputError
+
+        try:
+            self._copy_to(target, field="journal")
+        except InputError as exc:
+            raise JournalError(f"cannot keep a copy of the journal before upgrading it: "
+                               f"{exc.message}") from None
 
     def _migrate(self) -> None:
         with self._transaction() as conn:
@@ -383,7 +439,10 @@ class Journal:
             conn.execute("COMMIT")
         except BaseException as exc:
             if conn.in_transaction:
-                conn.execute("ROLLBACK")
+                try:
+                    conn.execute("ROLLBACK")
+                except sqlite3.Error:
+                    pass  # the database rolled back itself (a full disk does that)
             if isinstance(exc, sqlite3.Error):
                 raise _translate(self.path, exc) from None
             raise
@@ -475,18 +534,71 @@ class Journal:
                 raise JournalError(f"no session {session_id} in the journal {self.path}")
 
     def load_events(self, session_id: str) -> list[Any]:
-        """The events of a session in the order they were written (for ``Session.replay``)."""
+        """The events of a session in the order they were written (for ``Session.replay``).
+
+        Raises:
+            JournalError: no such session, or an event was damaged (altered by hand).
+        """
         self.session(session_id)
         make = _event_type()
-        rows = self._read("SELECT kind, data, time FROM event WHERE session_id = ? ORDER BY seq",
-                          (session_id,))
-        return [make(kind=k, data=json.loads(d), time=t) for k, d, t in rows]
+        events = []
+        for row in self._read("SELECT seq, kind, data, time, ranking FROM event "
+                              "WHERE session_id = ? ORDER BY seq", (session_id,)):
+            data, _ = self._decode(session_id, row, complete=False)
+            events.append(make(kind=row[1], data=data, time=row[3]))
+        return events
 
     def load_rankings(self, session_id: str) -> list[list[dict[str, Any]] | None]:
-        """The ranking kept beside each event (None where none was), in event order."""
-        rows = self._read("SELECT ranking FROM event WHERE session_id = ? ORDER BY seq",
-                          (session_id,))
-        return [None if r[0] is None else json.loads(r[0]) for r in rows]
+        """The ranking kept beside each event (None where none was), in event order.
+
+        Raises:
+            JournalError: an event was damaged (altered by hand).
+        """
+        rows = self._read("SELECT seq, kind, data, time, ranking FROM event "
+                          "WHERE session_id = ? ORDER BY seq", (session_id,))
+        return [self._decode(session_id, row, complete=False)[1] for row in rows]
+
+    def verify_events(self, session_id: str | None = None) -> None:
+        """Check the stored events before a session is replayed or listed.
+
+        Beyond what ``load_events`` checks, each event of a kind the session
+        records must hold what replaying it needs (``EVENT_KEYS``). One
+        session's events are all read and checked; for the whole journal
+        (``session_id`` None) the database's own JSON functions first pick
+        out the rows worth a closer look, so that a long journal lists quickly.
+
+        Raises:
+            JournalError: the first damaged event, by session and number.
+        """
+        select = "SELECT session_id, seq, kind, data, time, ranking FROM event"
+        if session_id is not None:
+            rows = self._read(f"{select} WHERE session_id = ? ORDER BY seq", (session_id,))
+        else:
+            try:
+                rows = self._conn.execute(
+                    f"{select} WHERE {_SUSPECT} ORDER BY session_id, seq").fetchall()
+            except sqlite3.OperationalError as exc:
+                if "no such function" not in str(exc):
+                    raise _translate(self.path, exc) from None
+                rows = self._read(f"{select} ORDER BY session_id, seq")  # no JSON functions
+            except sqlite3.Error as exc:
+                raise _translate(self.path, exc) from None
+        for sid, *row in rows:
+            self._decode(sid, tuple(row), complete=True)
+
+    def _decode(self, session_id: str, row: tuple[Any, ...], *,
+                complete: bool) -> tuple[dict[str, Any], Any]:
+        """The data and ranking of a stored event row ``(seq, kind, data, time, ranking)``."""
+        seq, kind, text, when, ranked = row
+        try:
+            data = json.loads(text) if isinstance(text, (str, bytes)) else None
+            ranking = None if ranked is None else json.loads(ranked)
+        except ValueError as exc:
+            raise _damaged_event(self.path, session_id, seq, f"not JSON: {exc}") from None
+        why = event_problem(kind, data, when, complete=complete) or _ranking_problem(ranking)
+        if why:
+            raise _damaged_event(self.path, session_id, seq, why)
+        return data, ranking
 
     def session(self, session_id: str) -> SessionInfo:
         """One session's metadata.
@@ -524,22 +636,145 @@ class Journal:
             f"FROM session s {clause} ORDER BY s.started DESC, s.rowid DESC", params)
         return [SessionInfo(*r) for r in rows]
 
-    def backup(self, target: str | os.PathLike[str]) -> Path:
-        """Copy the whole journal, consistently, to ``target`` (SQLite's online backup)."""
-        dest = Path(target)
-        if dest.resolve() == self.path.resolve():
-            raise JournalError("the backup must go to another file than the journal itself")
+    def integrity(self) -> list[str]:
+        """What ``PRAGMA integrity_check`` finds (``["ok"]`` for a sound journal; up to 5 lines).
+
+        References:
+            SQLite, "PRAGMA integrity_check", https://sqlite.org/pragma.html.
+        """
         try:
-            out = sqlite3.connect(dest)
-        except sqlite3.Error as exc:
-            raise JournalError(f"cannot write the backup {dest}: {exc}") from None
+            return [str(r[0]) for r in self._conn.execute("PRAGMA integrity_check(5)")]
+        except sqlite3.DatabaseError as exc:  # damage bad enough to stop the check itself
+            if _is_busy(exc):
+                raise _translate(self.path, exc) from None
+            return [str(exc)]
+
+    def backup(self, target: str | os.PathLike[str], *, force: bool = False) -> Path:
+        """Copy the whole journal, consistently, to ``target`` (the online backup).
+
+        The journal's integrity is checked first; the copy is written beside
+        ``target``, checked, synced and renamed into place. An existing
+        target is replaced only with ``force`` and only if it is a diagnose
+        journal not in use; the journal itself, another program's database
+        and a path through a symbolic link never are.
+
+        Raises:
+            InputError: the target is refused or cannot be written.
+            JournalError: the journal is damaged, or the copy cannot be made.
+        """
+        from diagnose.journal.paths import writable_target
+
+        dest = writable_target(target, journal=self.path, force=force, field="FILE",
+                               journal_copy=True)
+        found = self.integrity()
+        if found != ["ok"]:
+            raise JournalError(
+                f"the journal {self.path} is damaged (integrity: {'; '.join(found)}); no copy "
+                "was made, as a copy of a damaged journal is no backup. Restore an earlier "
+                "backup, or move the file away for repair")
+        return self._copy_to(dest, field="FILE")
+
+    def _copy_to(self, dest: Path, *, field: str) -> Path:
+        """The online backup into a file beside ``dest``, renamed over it once complete."""
+        from diagnose.journal.paths import replace_atomically
+
+        def fill(tmp: Path) -> None:
+            out = sqlite3.connect(tmp, isolation_level=None)
+            try:
+                self._conn.backup(out)
+                if [r[0] for r in out.execute("PRAGMA quick_check(1)")] != ["ok"]:
+                    raise JournalError(f"the copy {dest} did not read back sound; it was not "
+                                       "kept. Try again")
+            finally:
+                out.close()
+
         try:
-            self._conn.backup(out)
+            return replace_atomically(dest, fill, field=field)
         except sqlite3.Error as exc:
-            raise JournalError(f"cannot write the backup {dest}: {exc}") from None
-        finally:
-            out.close()
-        return dest
+            why = ("the disk is full: the copy was not kept; free space and try again"
+                   if is_disk_full(exc, dest) else str(exc))
+            raise JournalError(f"cannot write the backup {dest}: {why}") from None
+
+
+def event_problem(kind: Any, data: Any, when: Any = "", *, complete: bool = True) -> str:
+    """What is wrong with a stored event, or "" when it can be read back.
+
+    ``complete`` also asks for the keys a replay needs (``EVENT_KEYS``).
+
+    >>> event_problem("complaint", {"complaint": "will_not_release"})
+    ''
+    >>> event_problem("answer", {"check": "fuse_state"})
+    'the answer event has no outcome'
+    >>> event_problem("answer", {"check": "fuse_state"}, complete=False)
+    ''
+    >>> event_problem("note", ["not", "an", "object"])
+    'its data is not a JSON object'
+    """
+    if not isinstance(kind, str) or not kind:
+        return "it has no kind"
+    if not isinstance(when, str):
+        return "its time is not text"
+    if not isinstance(data, dict):
+        return "its data is not a JSON object"
+    missing = [k for k in EVENT_KEYS.get(kind, ()) if k not in data] if complete else []
+    if complete and kind == "reading" and "verdict" not in data and "weights" not in data:
+        missing.append("verdict")
+    if missing:
+        return f"the {kind} event has no {' and no '.join(missing)}"
+    index = data.get("index")
+    if kind == "undo" and "index" in data and (isinstance(index, bool)
+                                                or not isinstance(index, int)):
+        return "the undo event's index is not a whole number"
+    weights = data.get("weights")
+    if weights is not None and not (isinstance(weights, dict) and all(
+            _is_number(w) for w in weights.values())):
+        return "its weights are not numbers by outcome"
+    return ""
+
+
+def _ranking_problem(ranking: Any) -> str:
+    if ranking is None:
+        return ""
+    if not isinstance(ranking, list) or not all(
+            isinstance(r, dict) and _is_number(r.get("p", 0)) for r in ranking):
+        return "its ranking is not a list of causes with numbers"
+    return ""
+
+
+def _is_number(value: Any) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool)
+
+
+def _damaged_event(path: Path, session_id: str, seq: Any, why: str) -> JournalError:
+    return JournalError(
+        f"the journal {path} is damaged: session {session_id}, event {seq}: {why} (altered by "
+        "hand?); it was left as it is. Restore a backup, or mend or delete that event")
+
+
+def _suspect_rows() -> str:
+    """An SQL condition, quick to test, for the event rows worth checking in Python.
+
+    It holds for text that is not a JSON object, a ranking that is not a
+    JSON list, and an event of a kind in ``EVENT_KEYS`` whose text does not
+    name one of its keys. It may hold for sound rows too (JSON with NaN or
+    Infinity, which the database's parser refuses): every row it picks is
+    checked again with ``event_problem``.
+    """
+    arms = ["WHEN typeof(kind) != 'text' OR typeof(time) != 'text' THEN 1",
+            "WHEN NOT json_valid(data) THEN 1",
+            "WHEN json_type(data) != 'object' THEN 1",
+            "WHEN ranking IS NOT NULL AND NOT json_valid(ranking) THEN 1",
+            "WHEN ranking IS NOT NULL AND json_type(ranking) != 'array' THEN 1",
+            "WHEN kind = 'reading' AND instr(data, '\"verdict\"') = 0 "
+            "AND instr(data, '\"weights\"') = 0 THEN 1",
+            "WHEN kind = 'undo' THEN 1"]  # few, and the index must be a whole number
+    for kind, keys in EVENT_KEYS.items():
+        absent = " OR ".join(f"instr(data, '\"{k}\"') = 0" for k in keys)
+        arms.append(f"WHEN kind = '{kind}' AND ({absent}) THEN 1")
+    return "CASE " + " ".join(arms) + " ELSE 0 END"
+
+
+_SUSPECT = _suspect_rows()
 
 
 def _end_fields(data: Mapping[str, Any]) -> tuple[str | None, str | None]:

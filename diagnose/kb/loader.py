@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, Any
 
 from diagnose.errors import KnowledgeError, Problem, Source
 from diagnose.kb.locate import MANIFEST, find_pack
-from diagnose.kb.yamlpos import Document, read_yaml
+from diagnose.kb.yamlpos import PACK_FILE_BYTES, Document, read_text, read_yaml
 
 if TYPE_CHECKING:
     from diagnose.kb.model import Model
@@ -43,7 +43,11 @@ def display_path(path: Path | str) -> str:
 
 
 def read_pack(folder: Path) -> tuple[PackSource, list[Problem]]:
-    """Read ``pack.yaml`` first, then every other ``*.yaml``/``*.yml`` file, sorted by name."""
+    """Read ``pack.yaml`` first, then every other ``*.yaml``/``*.yml`` file, sorted by name.
+
+    Each file is read within the bounds of :mod:`diagnose.kb.yamlpos` (at most
+    :data:`~diagnose.kb.yamlpos.PACK_FILE_BYTES`, no aliases, limited nesting).
+    """
     problems: list[Problem] = []
     source = PackSource(id=folder.name, folder=display_path(folder))
     try:
@@ -58,7 +62,7 @@ def read_pack(folder: Path) -> tuple[PackSource, list[Problem]]:
     for f in files:
         shown = display_path(f)
         try:
-            text = f.read_text(encoding="utf-8")
+            text = read_text(f, PACK_FILE_BYTES)
         except UnicodeDecodeError:
             problems.append(Problem("error", "not UTF-8 text", Source(shown), "yaml"))
             continue

@@ -13,7 +13,7 @@ import difflib
 import os
 from pathlib import Path
 
-from diagnose.errors import InputError
+from diagnose.errors import InputError, Problem, Source
 
 MANIFEST = "pack.yaml"
 ENV = "DIAGNOSE_PACKS"
@@ -35,24 +35,44 @@ def search_path(extra: list[str] | None = None) -> list[Path]:
     return dirs
 
 
-def _manifest_id(folder: Path) -> str | None:
-    import yaml
+def _manifest_id(folder: Path) -> tuple[str | None, Problem | None]:
+    """The ``pack:`` id in ``folder``'s manifest, and the problem when it cannot be read.
 
+    The manifest is read within the bounds of :mod:`diagnose.kb.yamlpos`, so that a
+    hostile or broken manifest costs no more than a good one.
+    """
+    from diagnose.kb.loader import display_path
+    from diagnose.kb.yamlpos import PACK_FILE_BYTES, read_text, read_yaml
+
+    shown = display_path(folder / MANIFEST)
     try:
-        with open(folder / MANIFEST, encoding="utf-8") as fh:
-            head = yaml.safe_load(fh)
-    except (OSError, yaml.YAMLError, UnicodeDecodeError):
-        return None
-    return head.get("pack") if isinstance(head, dict) else None
+        text = read_text(folder / MANIFEST, PACK_FILE_BYTES)
+    except UnicodeDecodeError:
+        return None, Problem("error", "not UTF-8 text", Source(shown), "yaml")
+    except OSError as exc:
+        return None, Problem("error", f"cannot read: {exc.strerror or exc}", Source(shown), "io")
+    doc, problems = read_yaml(text, shown)
+    errors = [p for p in problems if p.level == "error"]
+    if doc is None or errors:
+        return None, (errors or problems or [Problem("error", "cannot be read", Source(shown))])[0]
+    head = doc.data
+    pid = head.get("pack") if isinstance(head, dict) else None
+    return (pid if isinstance(pid, str) and pid else None), None
 
 
-def available(extra: list[str] | None = None) -> dict[str, Path]:
-    """Every pack id on the search path and its folder (earlier folders win)."""
+def scan(extra: list[str] | None = None) -> tuple[dict[str, Path], list[Problem]]:
+    """Every pack id on the search path and its folder, and a problem per unreadable manifest.
+
+    Earlier folders win. A pack whose manifest cannot be read is listed under
+    its folder name (so that ``kb lint`` can still find it and say why) and
+    has one problem, which names the file and the place in it.
+    """
     found: dict[str, Path] = {}
+    problems: list[Problem] = []
     for d in search_path(extra):
-        if not d.is_dir():
-            continue
         try:
+            if not d.is_dir():
+                continue
             subs = sorted(d.iterdir())
         except OSError:  # a folder we may not list holds no pack we can use
             continue
@@ -62,9 +82,16 @@ def available(extra: list[str] | None = None) -> dict[str, Path]:
                     continue
             except OSError:
                 continue
-            pid = _manifest_id(sub) or sub.name
-            found.setdefault(pid, sub)
-    return found
+            pid, problem = _manifest_id(sub)
+            if problem is not None:
+                problems.append(problem)
+            found.setdefault(pid or sub.name, sub)
+    return found, problems
+
+
+def available(extra: list[str] | None = None) -> dict[str, Path]:
+    """Every pack id on the search path and its folder (earlier folders win)."""
+    return scan(extra)[0]
 
 
 def find_pack(ref: str, extra: list[str] | None = None) -> Path:

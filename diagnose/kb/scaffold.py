@@ -14,6 +14,7 @@ section when the file already has one).
 
 from __future__ import annotations
 
+import os
 import re
 from pathlib import Path
 from typing import Any
@@ -190,17 +191,24 @@ def write_skeleton(
     *,
     file: str | Path | None = None,
     evaluator: str | None = None,
+    journal: str | os.PathLike[str] | None = None,
 ) -> Path:
     """Write a skeleton into pack ``folder``; return the file written.
 
     Without ``file`` a new file ``<kind>s-<id>.yaml`` is made; with it the
     entry is appended to that file (a bare name is taken in the pack folder),
     into its section when the file has one. The rest of the file is kept as written.
+    The file is written at once (a temporary file renamed into place); it is
+    never the journal in use (``journal``, else the one DIAGNOSE_JOURNAL or the
+    data folder names), a database file or a path through a symbolic link.
 
     Raises:
         InputError: bad kind, id or evaluator; the id is already used in the
-            pack; the new file exists; the named file cannot take the entry.
+            pack; the new file exists; the named file cannot take the entry
+            or is refused.
     """
+    from diagnose.journal.paths import writable_target, write_text_atomically
+
     folder = Path(folder)
     item = skeleton(kind, id, evaluator=evaluator)
     _check_unused(folder, id)
@@ -218,10 +226,10 @@ def write_skeleton(
             raise InputError("--file", f"cannot read {target}: {reason}") from None
         text = append_entry(old, KINDS[kind], item) if old.strip() else \
             skeleton_file(kind, id, evaluator=evaluator)
-    try:
-        target.write_text(text, encoding="utf-8")
-    except OSError as exc:
-        raise InputError("--file", f"cannot write {target}: {exc.strerror}") from None
+    field = "--file" if file is not None else "ID"
+    # Appending is what --file asks for, so an existing file is no surprise there.
+    writable_target(target, journal=journal, force=file is not None, field=field)
+    write_text_atomically(target, text, field=field)
     return target
 
 

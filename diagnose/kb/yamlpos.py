@@ -8,10 +8,25 @@ can point at a line.
 Only the YAML 1.2 booleans ``true``/``false`` are booleans here: ``yes``,
 ``no``, ``on`` and ``off`` stay text, because trainers use them as outcome
 ids and answers.
+
+Reading is bounded, because packs and answers files come from other people:
+a file larger than its limit is not read (:func:`read_text`); anchors and
+aliases are refused (packs do not need them, and a few levels of aliases
+expand into billions of values); a document may hold at most
+:data:`MAX_NODES` values nested at most :data:`MAX_DEPTH` deep; an integer
+has at most :data:`MAX_INT_DIGITS` digits. These checks run on the parser's
+events, before anything is built from them.
+
+References:
+    YAML 1.2.2 specification, section 3.2.2.2 "Anchors and Aliases".
+    CVE-2003-1564 and the "billion laughs" expansion attack on XML entities,
+    of which an alias bomb is the YAML form.
 """
 
 from __future__ import annotations
 
+import errno
+import os
 import re
 from dataclasses import dataclass, field
 from typing import Any
@@ -21,6 +36,23 @@ import yaml
 from diagnose.errors import Problem, Source
 
 Path = tuple[Any, ...]
+
+#: Most bytes read from one pack file.
+PACK_FILE_BYTES = 5_000_000
+#: Most bytes read from one answers file.
+ANSWERS_FILE_BYTES = 1_000_000
+#: Most values (scalars, lists, mappings) in one document; a large pack holds a few thousand.
+MAX_NODES = 200_000
+#: Deepest nesting of lists and mappings; packs use fewer than ten levels.
+MAX_DEPTH = 64
+#: Most digits in an integer; Python refuses to convert more than 4,300 by default.
+MAX_INT_DIGITS = 30
+
+_TAG = "tag:yaml.org,2002:"
+# Scalar types whose constructor can fail on text the parser accepts ("!!int abc",
+# "2001-13-45"): each such value is built once on its own while scanning, so that
+# a failure points at its line.
+_CHECKED = {_TAG + kind: kind for kind in ("int", "float", "bool", "null", "timestamp")}
 
 
 _BASE = getattr(yaml, "CSafeLoader", yaml.SafeLoader)  # libyaml when present: ten times faster
@@ -63,11 +95,48 @@ def _mark(path: str, node: yaml.Node) -> Source:
     return Source(path, node.start_mark.line + 1, node.start_mark.column + 1)
 
 
+def read_text(path: str | os.PathLike[str], limit: int) -> str:
+    """The UTF-8 text of the file at ``path``, if it is at most ``limit`` bytes long.
+
+    Raises:
+        OSError: the file cannot be read, or is larger than ``limit``
+            (``errno.EFBIG``, with a ``strerror`` that gives both sizes).
+        UnicodeDecodeError: the file is not UTF-8 text.
+    """
+    with open(path, encoding="utf-8") as fh:
+        size = os.fstat(fh.fileno()).st_size
+        if size > limit:
+            raise OSError(errno.EFBIG, _too_large(size, limit), str(path))
+        text = fh.read(limit + 1)  # a device or a growing file may say size 0
+    if len(text) > limit:
+        raise OSError(errno.EFBIG, _too_large(None, limit), str(path))
+    return text
+
+
+def _too_large(size: int | None, limit: int) -> str:
+    what = f"{size:,} bytes" if size is not None else "more than that"
+    return f"file too large ({what}; at most {limit:,} bytes are read)"
+
+
 def read_yaml(text: str, path: str) -> tuple[Document | None, list[Problem]]:
-    """Parse ``text`` safely; return the document and any problems (syntax, duplicate keys)."""
+    """Parse ``text`` safely; return the document and any problems (syntax, duplicate keys).
+
+    Anchors and aliases, more than :data:`MAX_NODES` values, nesting deeper
+    than :data:`MAX_DEPTH` and integers of more than :data:`MAX_INT_DIGITS`
+    digits are refused with one problem at their place, and no document.
+
+    >>> doc, problems = read_yaml("a: &x [1]\\nb: *x\\n", "f.yaml")
+    >>> doc is None, str(problems[0])[:62]
+    (True, 'f.yaml:1:4: error: YAML anchor &x: anchors and aliases are not')
+    """
+    if len(text) > PACK_FILE_BYTES:
+        return None, [Problem("error", _too_large(len(text), PACK_FILE_BYTES), Source(path), "io")]
     problems: list[Problem] = []
     loader = _Loader(text)
     try:
+        refused = _scan(text, path)
+        if refused is not None:
+            return None, [refused]
         node = loader.get_single_node()
         data = loader.construct_document(node) if node is not None else None
         doc = Document(path, {} if data is None else data)
@@ -78,13 +147,109 @@ def read_yaml(text: str, path: str) -> tuple[Document | None, list[Problem]]:
         mark = exc.problem_mark or exc.context_mark
         src = Source(path, mark.line + 1, mark.column + 1) if mark else Source(path)
         what = " ".join(s for s in (exc.context, exc.problem) if s) or "not valid YAML"
-        return None, [Problem("error", f"YAML syntax: {what}", src, "yaml")]
+        return None, [Problem("error", f"YAML syntax: {_one_line(what)}", src, "yaml")]
+    except yaml.reader.ReaderError as exc:  # a character YAML does not allow, at an offset
+        first = str(exc).splitlines()[0] if str(exc) else "not valid YAML"
+        return None, [Problem("error", f"YAML: {_one_line(first)}",
+                              _offset_source(text, path, exc.position), "yaml")]
     except yaml.YAMLError as exc:
-        return None, [Problem("error", f"YAML: {exc}", Source(path), "yaml")]
+        return None, [Problem("error", f"YAML: {_one_line(str(exc))}", Source(path), "yaml")]
     except RecursionError:
         return None, [Problem("error", "YAML: nested too deeply", Source(path), "yaml")]
+    except (ValueError, TypeError, KeyError, IndexError, AttributeError, OverflowError) as exc:
+        # the scan builds every value that can fail; this is a last guard
+        return None, [Problem("error", f"YAML: a value cannot be read ({type(exc).__name__})",
+                              Source(path), "yaml")]
     finally:
         loader.dispose()
+
+
+def _scan(text: str, path: str) -> Problem | None:
+    """The first thing in ``text`` that is refused before building it, or None.
+
+    Walks the parser's events: an alias or an anchor, the value after
+    :data:`MAX_NODES`, nesting below :data:`MAX_DEPTH`, and a scalar its
+    type cannot hold (an integer too long, "!!int abc", a date 2001-13-45).
+    Syntax errors propagate as ``yaml.YAMLError``.
+    """
+    loader = _Loader(text)
+    nodes = depth = 0
+    try:
+        while loader.check_event():
+            event = loader.get_event()
+            at = _event_mark(path, event)
+            if isinstance(event, yaml.AliasEvent):
+                return Problem("error", f"YAML alias *{_short(event.anchor)}: {_NO_ALIASES}",
+                               at, "yaml")
+            if isinstance(event, yaml.NodeEvent) and event.anchor is not None:
+                return Problem("error", f"YAML anchor &{_short(event.anchor)}: {_NO_ALIASES}",
+                               at, "yaml")
+            if isinstance(event, yaml.CollectionStartEvent):
+                nodes += 1
+                depth += 1
+                if depth > MAX_DEPTH:
+                    return Problem("error", f"YAML: nested too deeply (more than {MAX_DEPTH} "
+                                            "levels of lists and mappings)", at, "yaml")
+            elif isinstance(event, yaml.CollectionEndEvent):
+                depth -= 1
+            elif isinstance(event, yaml.ScalarEvent):
+                nodes += 1
+                bad = _bad_scalar(loader, event)
+                if bad:
+                    return Problem("error", bad, at, "yaml")
+            if nodes > MAX_NODES:
+                return Problem("error", f"YAML: too many values (more than {MAX_NODES:,} "
+                                        "in one file)", at, "yaml")
+        return None
+    finally:
+        loader.dispose()
+
+
+_NO_ALIASES = "anchors and aliases are not allowed in packs and answers files; write the value out"
+
+
+def _one_line(text: str, limit: int = 200) -> str:
+    """A parser's message on one line and cut short (it may quote a whole tag or key)."""
+    text = " ".join(text.split())
+    return text if len(text) <= limit else f"{text[:limit]}..."
+
+
+def _offset_source(text: str, path: str, offset: int) -> Source:
+    line = text.count("\n", 0, offset) + 1
+    return Source(path, line, offset - (text.rfind("\n", 0, offset) + 1) + 1)
+
+
+def _event_mark(path: str, event: yaml.Event) -> Source:
+    mark = event.start_mark
+    return Source(path, mark.line + 1, mark.column + 1) if mark else Source(path)
+
+
+def _short(text: str, limit: int = 40) -> str:
+    return text if len(text) <= limit else f"{text[:limit]}... ({len(text)} characters)"
+
+
+def _bad_scalar(loader: Any, event: yaml.ScalarEvent) -> str | None:
+    """Why the scalar of ``event`` cannot be built as its type, or None when it can."""
+    tag = event.tag
+    if tag is None or tag == "!":
+        tag = loader.resolve(yaml.ScalarNode, event.value, event.implicit)
+    kind = _CHECKED.get(tag)
+    if kind is None:
+        return None
+    value = event.value
+    if kind == "int":
+        digits = sum(ch.isalnum() for ch in value)
+        if digits > MAX_INT_DIGITS:
+            return (f"integer of {digits:,} digits: at most {MAX_INT_DIGITS} are read; "
+                    "write a large number as a float (1e40) or in quotes")
+    elif len(value) > 1000:
+        return f"a {kind} of {len(value):,} characters is too long"
+    try:
+        loader.yaml_constructors[tag](loader, yaml.ScalarNode(tag, value))
+    except (ValueError, TypeError, KeyError, IndexError, AttributeError, OverflowError,
+            yaml.YAMLError):
+        return f"{_short(value)!r} is not a valid {kind}"
+    return None
 
 
 def _walk(node: yaml.Node, at: Path, doc: Document, problems: list[Problem], path: str,

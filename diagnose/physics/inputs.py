@@ -2,6 +2,11 @@
 
 Each evaluator calls :func:`read_inputs` first; it returns plain floats in
 each input's default unit, so the physics below works on numbers alone.
+
+Every value is bounded before it is read: one value by
+:data:`~diagnose.physics.units.MAX_TEXT`, a list of readings by
+:data:`MAX_READINGS` items and :data:`MAX_READINGS_TEXT` characters; a
+message shows a value cut short (:func:`~diagnose.physics.units.excerpt`).
 """
 
 from __future__ import annotations
@@ -12,6 +17,11 @@ from typing import Any, Collection, Mapping
 from diagnose.errors import InputError
 from diagnose.physics import units
 from diagnose.physics.registry import EVALUATORS, InputSpec
+
+#: Most readings in one input ("0.62 0.65 0.60 mm" is three).
+MAX_READINGS = 100
+#: Longest text of one input of several readings.
+MAX_READINGS_TEXT = 2000
 
 _TRUE = frozenset({"yes", "y", "true", "1", "on"})
 _FALSE = frozenset({"no", "n", "false", "0", "off"})
@@ -41,8 +51,10 @@ def read_inputs(
     known = {s.name for s in spec.inputs}
     for name in values:
         if name not in known:
-            raise InputError(name, f"not an input of {evaluator}; "
-                                   f"known: {', '.join(sorted(known))}")
+            shown = name if isinstance(name, str) and len(name) <= units.ECHO \
+                else units.excerpt(name)
+            raise InputError(shown, f"not an input of {evaluator}; "
+                                    f"known: {', '.join(sorted(known))}")
     out: dict[str, Any] = {}
     for inp in spec.inputs:
         raw = values.get(inp.name)
@@ -83,7 +95,14 @@ def _read(inp: InputSpec, raw: Any, positive: Collection[str], negative: Collect
 
 def _positive(number: float, raw: Any, field: str) -> None:
     if not number > 0:
-        raise InputError(field, f"must be above zero, got {raw}")
+        raise InputError(field, f"must be above zero, got {_plain(raw)}")
+
+
+def _plain(raw: Any) -> str:
+    """A short value as typed (24 V), a long one cut short with its length."""
+    if isinstance(raw, str) and len(raw.strip()) <= units.ECHO:
+        return raw.strip()
+    return units.excerpt(raw)
 
 
 def split_readings(raw: Any, field: str = "readings") -> list[Any]:
@@ -93,7 +112,16 @@ def split_readings(raw: Any, field: str = "readings") -> list[Any]:
     ['0.62 mm', '0.65 mm', '0.60 mm']
     >>> split_readings(["0.1 mm", "0.004", "in"])
     ['0.1 mm', '0.004 in']
+
+    Raises:
+        InputError: more than :data:`MAX_READINGS` readings, text longer than
+            :data:`MAX_READINGS_TEXT`, or a unit that follows no number.
     """
+    if isinstance(raw, str) and len(raw) > MAX_READINGS_TEXT:
+        raise InputError(field, f"too long: {units.excerpt(raw)}; at most "
+                                f"{MAX_READINGS_TEXT} characters of readings are read")
+    if isinstance(raw, (list, tuple)) and len(raw) > 2 * MAX_READINGS:  # numbers and units
+        raise InputError(field, f"{len(raw)} items; at most {MAX_READINGS} readings are read")
     if isinstance(raw, str):
         items: list[Any] = [t for t in re.split(r"[\s,;]+", raw.strip()) if t]
     elif isinstance(raw, (list, tuple)):
@@ -105,7 +133,7 @@ def split_readings(raw: Any, field: str = "readings") -> list[Any]:
     for item in items:
         if isinstance(item, str) and units.is_unit(item):
             if not bare:
-                raise InputError(field, f"unit {item!r} follows no number")
+                raise InputError(field, f"unit {units.excerpt(item)} follows no number")
             for i in bare:
                 out[i] = f"{out[i]} {item.strip()}"
             bare = []
@@ -113,6 +141,8 @@ def split_readings(raw: Any, field: str = "readings") -> list[Any]:
         if isinstance(item, (int, float, str)) and units.unit_of(item) is None:
             bare.append(len(out))
         out.append(item)
+    if len(out) > MAX_READINGS:
+        raise InputError(field, f"{len(out)} readings; at most {MAX_READINGS} are read")
     return out
 
 
@@ -122,12 +152,13 @@ def read_choice(raw: Any, choices: tuple[str, ...], field: str) -> str:
     >>> read_choice("Half_Wave", ("half-wave", "bridge"), "type")
     'half-wave'
     """
-    if isinstance(raw, str):
+    if isinstance(raw, str) and len(raw) <= units.MAX_TEXT:
         key = _squash(raw)
         for choice in choices:
             if _squash(choice) == key:
                 return choice
-    raise InputError(field, f"unknown choice {raw!r}; expected one of: {', '.join(choices)}")
+    raise InputError(field, f"unknown choice {units.excerpt(raw)}; "
+                            f"expected one of: {', '.join(choices)}")
 
 
 def _squash(text: str) -> str:
@@ -138,9 +169,10 @@ def read_flag(raw: Any, field: str) -> bool:
     """A yes/no answer: a bool, or text such as yes, no, true, false, 1, 0."""
     if isinstance(raw, bool):
         return raw
-    if isinstance(raw, str) and raw.strip().lower() in _TRUE | _FALSE:
-        return raw.strip().lower() in _TRUE
-    raise InputError(field, f"expected yes or no, got {raw!r}")
+    word = raw.strip().lower() if isinstance(raw, str) and len(raw) <= units.MAX_TEXT else None
+    if word in _TRUE | _FALSE:
+        return word in _TRUE
+    raise InputError(field, f"expected yes or no, got {units.excerpt(raw)}")
 
 
 def require(condition: bool, field: str, message: str) -> None:

@@ -9,6 +9,13 @@ Temperatures in degC or degF are offset units: they are built with
 ``Quantity(value, "degC")`` and converted with ``.to()``, never multiplied,
 so 104 degF is 40 degC and not 104 * 5/9.
 
+pint never sees text that this module has not parsed first. A value is at
+most :data:`MAX_TEXT` characters; its number has an exponent of at most
+three digits; its unit must follow a small grammar (:func:`parse_unit`):
+unit names joined by ``*``, ``/``, a space or parentheses, each with an
+optional whole power from -4 to 4. Only the text the grammar rebuilds is
+given to pint, whose own expression parser would evaluate ``ohm**(9**9**9)``.
+
 References:
     pint documentation, "Temperature conversion" (offset units).
     NIST SP 811 (2008), appendix B: 1 in = 25.4 mm exactly.
@@ -26,10 +33,28 @@ from diagnose.errors import InputError
 #: Words a meter or a person uses for an open circuit (infinite resistance).
 OPEN_WORDS = frozenset({"ol", "o.l.", "o.l", "inf", "+inf", "infinity", "open", "∞", "+∞"})
 
-_NUMBER = re.compile(r"^\s*([+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)\s*(.*?)\s*$")
+#: Longest text read as one value ("0.62 mm"); longer text is refused before any parsing.
+MAX_TEXT = 200
+#: Largest power of a unit, either sign ("mm**2", "J/(kg*K)", "s**-1").
+MAX_POWER = 4
+#: Deepest nesting of parentheses in a unit.
+MAX_GROUPS = 4
+#: Characters of a refused value shown in a message.
+ECHO = 60
+
+_NUMBER = re.compile(r"^\s*([+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d{1,3}(?!\d))?)\s*(.*?)\s*$")
+_LONG_EXPONENT = re.compile(r"^[eE][+-]?\d{4}")
+
+_SUPERSCRIPT = str.maketrans("\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079",
+                             "-0123456789")
+
+
+def _superscript(match: re.Match[str]) -> str:
+    return "**" + match.group().translate(_SUPERSCRIPT)
+
 
 # Spellings pint does not know, in the order they are applied.
-_SPELLINGS: tuple[tuple[re.Pattern[str], str], ...] = tuple(
+_SPELLINGS: tuple[tuple[re.Pattern[str], Any], ...] = tuple(
     (re.compile(pattern), repl)
     for pattern, repl in (
         (r"°\s*C\b", "degC"),
@@ -43,8 +68,8 @@ _SPELLINGS: tuple[tuple[re.Pattern[str], str], ...] = tuple(
         (r"\br/min\b|\bmin-1\b|\bmin\^-1\b|\bmin⁻¹", "rpm"),
         (r"\brevs?\b", "revolution"),
         (r"\b([kmµu]?V)\s*(?:DC|AC|dc|ac|d\.c\.|a\.c\.)(?=\s|$)", r"\1"),
-        (r"²", "**2"),
-        (r"³", "**3"),
+        # superscript powers: m² -> m**2, s⁻¹ -> s**-1
+        ("\u207b?[\u2070\u00b9\u00b2\u00b3\u2074-\u2079]+", _superscript),
         (r"[·⋅]", "*"),
         (r"(?<=[A-Za-z])([23])\b", r"**\1"),  # mm2 -> mm**2, m3 -> m**3
         (r"%", "percent"),
@@ -90,13 +115,163 @@ def normalize_unit(text: str) -> str:
     return text
 
 
+def excerpt(value: Any) -> str:
+    """``value`` as a message shows it: quoted, cut to :data:`ECHO` characters with its length.
+
+    >>> excerpt("24 V"), excerpt("9" * 5000)[-24:]
+    ("'24 V'", "99'... (5000 characters)")
+    """
+    if isinstance(value, str):
+        text = value.strip()
+        if len(text) <= ECHO:
+            return repr(text)
+        return f"{text[:ECHO]!r}... ({len(value)} characters)"
+    try:
+        text = str(value)
+    except (ValueError, RecursionError):  # an integer too long to print, a cycle
+        return f"a {type(value).__name__}"
+    return text if len(text) <= ECHO else f"{text[:ECHO]}... ({len(text)} characters)"
+
+
+_TOKEN = re.compile(r"""
+    (?P<space>\s+)
+  | (?P<name>[A-Za-z_\u00b5\u03bc\u03a9\u2126]+)        # letters, micro, ohm
+  | (?P<power>\*\*|\^)
+  | (?P<op>[*/])
+  | (?P<open>\()
+  | (?P<close>\))
+  | (?P<sign>[+-])
+  | (?P<int>\d+)
+""", re.VERBOSE)
+
+
+def parse_unit(text: str) -> str:
+    """Check a unit expression against the grammar; return it rebuilt for pint.
+
+    The grammar, after :func:`normalize_unit` (which turns "mm2", "m²", "°C",
+    "%" and the like into plain names and powers)::
+
+        unit   := term { ("*" | "/" | " ") term }
+        term   := factor [ ("**" | "^") int | "**(" int ")" ]
+        factor := name | "1" | "(" unit ")"
+        int    := ["+" | "-"] digits, from -4 to 4
+
+    A name is letters, "_", "µ" and "Ω". Parentheses nest at most
+    :data:`MAX_GROUPS` deep. Whether a name is a unit pint knows is not
+    checked here.
+
+    Raises:
+        ValueError: the text is too long or does not follow the grammar; the
+            message says what is wrong, in a few words.
+
+    >>> parse_unit("J/(kg*K)"), parse_unit("kg m2"), parse_unit("min⁻¹")
+    ('J / (kg * K)', 'kg * m**2', 'rpm')
+    """
+    if len(text) > MAX_TEXT:
+        raise ValueError(f"longer than {MAX_TEXT} characters")
+    normal = normalize_unit(text)
+    tokens = _tokens(normal)
+    if not tokens:
+        return ""
+    out, at = _unit(tokens, 0, 0)
+    if at < len(tokens):
+        kind, value = tokens[at]
+        raise ValueError("a ')' without its '('" if kind == "close" else f"unexpected {value!r}")
+    return out
+
+
+def _tokens(text: str) -> list[tuple[str, str]]:
+    tokens: list[tuple[str, str]] = []
+    at = 0
+    while at < len(text):
+        match = _TOKEN.match(text, at)
+        if match is None:
+            raise ValueError(f"{text[at]!r} is not part of a unit")
+        kind = match.lastgroup or ""
+        if kind != "space":
+            tokens.append((kind, match.group()))
+        at = match.end()
+    return tokens
+
+
+def _unit(tokens: list[tuple[str, str]], at: int, depth: int) -> tuple[str, int]:
+    """``unit`` from ``tokens[at]``: the rebuilt text and the position after it."""
+    out, at = _term(tokens, at, depth)
+    while at < len(tokens):
+        kind, value = tokens[at]
+        if kind == "op":
+            term, at = _term(tokens, at + 1, depth)
+            out = f"{out} {value} {term}"
+        elif kind in ("name", "open", "int"):  # a space between two units multiplies them
+            term, at = _term(tokens, at, depth)
+            out = f"{out} * {term}"
+        else:
+            break
+    return out, at
+
+
+def _term(tokens: list[tuple[str, str]], at: int, depth: int) -> tuple[str, int]:
+    if at >= len(tokens):
+        raise ValueError("a unit name is missing at the end")
+    kind, value = tokens[at]
+    if kind == "name":
+        factor, at = value, at + 1
+    elif kind == "int" and value == "1":  # "1/s"
+        factor, at = value, at + 1
+    elif kind == "open":
+        if depth >= MAX_GROUPS:
+            raise ValueError(f"parentheses nested more than {MAX_GROUPS} deep")
+        inner, at = _unit(tokens, at + 1, depth + 1)
+        if at >= len(tokens) or tokens[at][0] != "close":
+            raise ValueError("a '(' without its ')'")
+        factor, at = f"({inner})", at + 1
+    else:
+        raise ValueError(f"expected a unit name, got {value!r}")
+    if at < len(tokens) and tokens[at][0] == "power":
+        power, at = _exponent(tokens, at + 1)
+        return f"{factor}**{power}", at
+    return factor, at
+
+
+def _exponent(tokens: list[tuple[str, str]], at: int) -> tuple[int, int]:
+    """The whole power after "**" or "^", bare or in parentheses, and the position after it."""
+    grouped = at < len(tokens) and tokens[at][0] == "open"
+    at += grouped
+    text = ""
+    if at < len(tokens) and tokens[at][0] == "sign":
+        text, at = tokens[at][1], at + 1
+    if at >= len(tokens) or tokens[at][0] != "int":
+        raise ValueError(_POWER_RULE)
+    text, at = text + tokens[at][1], at + 1
+    if grouped:
+        if at >= len(tokens) or tokens[at][0] != "close":
+            raise ValueError(_POWER_RULE)
+        at += 1
+    return _power(text), at
+
+
+_POWER_RULE = f"a power is a whole number from -{MAX_POWER} to {MAX_POWER}, as in mm**2 or s^-1"
+
+
+def _power(text: str) -> int:
+    digits = text.lstrip("+-")
+    if not digits or len(digits) > 2 or abs(int(text)) > MAX_POWER:
+        raise ValueError(_POWER_RULE)
+    return int(text)
+
+
 @lru_cache(maxsize=256)
 def _units(text: str) -> Any:
-    """pint units for a unit text; raises ValueError when the text is not a unit."""
+    """pint units for a unit text; raises ValueError when the text is not a unit.
+
+    The text is checked with :func:`parse_unit` first; pint sees only what
+    that rebuilds.
+    """
+    unit = parse_unit(text)
     try:
-        return registry().parse_units(normalize_unit(text))
-    except Exception as exc:  # pint raises several kinds (tokenize, assertion, undefined)
-        raise ValueError(str(exc)) from None
+        return registry().parse_units(unit)
+    except Exception:  # pint raises several kinds (tokenize, assertion, undefined)
+        raise ValueError() from None  # no reason to add: the name is simply not known
 
 
 def _kind(units: Any) -> tuple[str, str]:
@@ -121,6 +296,8 @@ def fits(unit_text: str, input_unit: str) -> bool:
     >>> fits("mm", "in"), fits("degF", "degC"), fits("%", ""), fits("kg", "mm")
     (True, True, True, False)
     """
+    if not isinstance(unit_text, str) or not isinstance(input_unit, str):
+        return False
     try:
         return bool(_units(unit_text).dimensionality == _units(input_unit).dimensionality)
     except ValueError:
@@ -128,8 +305,13 @@ def fits(unit_text: str, input_unit: str) -> bool:
 
 
 def unit_of(value: Any) -> str | None:
-    """The unit a person typed with ``value`` ("0.006 in" -> "in"); None for a bare number."""
+    """The unit a person typed with ``value`` ("0.006 in" -> "in"); None for a bare number.
+
+    Text longer than :data:`MAX_TEXT` has no unit here: reading it is refused later.
+    """
     if isinstance(value, str):
+        if len(value) > MAX_TEXT:
+            return None
         match = _NUMBER.match(value)
         if match and match.group(2):
             return normalize_unit(match.group(2))
@@ -141,7 +323,7 @@ def unit_of(value: Any) -> str | None:
 
 def is_unit(text: str) -> bool:
     """Whether ``text`` is a unit alone, with no number ("mm", "in")."""
-    if not isinstance(text, str) or not text.strip() or _NUMBER.match(text):
+    if not isinstance(text, str) or len(text) > MAX_TEXT or not text.strip() or _NUMBER.match(text):
         return False
     try:
         _units(text)
@@ -153,8 +335,8 @@ def is_unit(text: str) -> bool:
 def is_open(value: Any) -> bool:
     """Whether ``value`` is an open-circuit reading: "OL", "inf", "open" or infinity."""
     if isinstance(value, str):
-        return value.strip().lower() in OPEN_WORDS
-    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return len(value) <= MAX_TEXT and value.strip().lower() in OPEN_WORDS
+    if isinstance(value, float):  # an int is never infinite (and may be too large for a float)
         return math.isinf(value) and value > 0
     return False
 
@@ -175,14 +357,22 @@ def parse_quantity(
     are refused unless ``negative``; a temperature may be below zero degC
     but not below absolute zero.
 
+    Text is read only if it is at most :data:`MAX_TEXT` characters long, its
+    exponent has at most three digits and its unit follows :func:`parse_unit`;
+    messages show at most :data:`ECHO` characters of it (:func:`excerpt`).
+
     Raises:
-        InputError: not a number, an unknown unit, the wrong dimension (a length
-            given in kilograms), NaN, infinity where no open reading makes
-            sense, a negative value where none is possible.
+        InputError: text too long, not a number, an unknown unit or one that
+            does not follow the grammar, the wrong dimension (a length given
+            in kilograms), NaN, infinity where no open reading makes sense, a
+            negative value where none is possible.
 
     >>> parse_quantity("0.5mm2", "mm**2", "area"), round(parse_quantity("104 degF", "degC", "t"), 9)
     (0.5, 40.0)
     """
+    if isinstance(value, str) and len(value) > MAX_TEXT:
+        raise InputError(field, f"too long: {excerpt(value)}; a value has at most "
+                                f"{MAX_TEXT} characters")
     if isinstance(value, bool) or value is None:
         raise InputError(field, f"expected {_expected(default_unit)}, got {value!r}")
     if is_open(value):
@@ -208,20 +398,25 @@ def parse_quantity(
 
 
 def _show(value: Any) -> str:
-    return repr(value.strip()) if isinstance(value, str) else str(value)
+    return excerpt(value)
 
 
 def _to_quantity(value: Any, target: Any, field: str, default_unit: str) -> Any:
     ureg = registry()
     if isinstance(value, (int, float)):
-        if math.isnan(value) or math.isinf(value):
-            raise InputError(field, f"expected a finite number, got {value}")
-        return ureg.Quantity(float(value), target)
+        try:
+            number = float(value)
+        except OverflowError:  # an int beyond the range of a float
+            raise InputError(field, f"expected a finite number, got {_show(value)}") from None
+        if math.isnan(number) or math.isinf(number):
+            raise InputError(field, f"expected a finite number, got {_show(value)}")
+        return ureg.Quantity(number, target)
     if hasattr(value, "units") and hasattr(value, "magnitude"):
         try:
-            return ureg.Quantity(float(value.magnitude), str(value.units))
-        except (TypeError, ValueError):
-            raise InputError(field, f"expected {_expected(default_unit)}, got {value}") from None
+            return ureg.Quantity(float(value.magnitude), _units(str(value.units)))
+        except (TypeError, ValueError, OverflowError):
+            raise InputError(field, f"expected {_expected(default_unit)}, "
+                                    f"got {_show(value)}") from None
     if not isinstance(value, str):
         raise InputError(field, f"expected {_expected(default_unit)}, got {value!r}")
     match = _NUMBER.match(value)
@@ -230,14 +425,17 @@ def _to_quantity(value: Any, target: Any, field: str, default_unit: str) -> Any:
             raise InputError(field, f"expected a finite number, got {_show(value)}")
         raise InputError(field, f"expected {_expected(default_unit)}, got {_show(value)}")
     number, unit_text = float(match.group(1)), match.group(2)
+    if _LONG_EXPONENT.match(unit_text):
+        raise InputError(field, f"an exponent has at most 3 digits, got {_show(value)}")
     if not unit_text:
         return ureg.Quantity(number, target)
     if unit_text in ("C", "F") and target.dimensionality == _units("K").dimensionality:
         unit_text = "deg" + unit_text  # "40 C" on a temperature input means degC, not coulomb
     try:
         units = _units(unit_text)
-    except ValueError:
-        raise InputError(field, f"unknown unit {unit_text!r}; "
+    except ValueError as exc:
+        why = f": {exc}" if str(exc) else ""
+        raise InputError(field, f"unknown unit {excerpt(unit_text)}{why}; "
                                 f"expected {_expected(default_unit)}") from None
     return ureg.Quantity(number, units)
 

@@ -37,8 +37,8 @@ Decision rule (``Settings``; tuned with ``diagnose simulate``):
    ``threshold``: do the best of those by p/c;
 4. the check with the least ECO, if it beats ECR (observing first is cheaper);
 5. else the best repair by p/c for the top cause, if it is at least
-   ``act_floor`` and being wrong costs less than the cheapest informative look
-   (``(1 − p) · c_repair ≤ c_check``);
+   ``act_floor`` and being wrong costs less than a share of the cheapest
+   informative look (``(1 − p) · c_repair ≤ regret_share · c_check``);
 6. else, while a check still gives ``min_bits`` or more, that check;
 7. else by phone the caller's own repair for the top cause when it is at
    least ``act_floor``, or a site visit (an escalation when "unknown" is more
@@ -96,13 +96,14 @@ class Settings:
 
     threshold: float = 0.97
     act_floor: float = 0.9
-    min_bits: float = 0.05
+    min_bits: float = 0.035
     escalation_minutes: float = 480.0
+    regret_share: float = 0.25  # below threshold: repair when (1 - p)·c ≤ this × the cheapest look
 
     def __post_init__(self) -> None:
         if not 0 < self.threshold <= 1 or not 0 <= self.act_floor <= 1:
             raise InputError("threshold", "expected probabilities in (0, 1]")
-        if not self.escalation_minutes > 0 or self.min_bits < 0:
+        if not self.escalation_minutes > 0 or self.min_bits < 0 or self.regret_share < 0:
             raise InputError("settings", "escalation minutes must be positive, min_bits >= 0")
 
 
@@ -860,7 +861,7 @@ def _decide(model: Model, evidence: Evidence, post: Posterior, settings: Setting
             # below the threshold, repair only when being wrong costs less than a look
             regret = (1.0 - top.p) * float(pl.repair_minutes[best])
             cheapest = float(np.min(np.where(informative, pl.check_minutes, np.inf)))
-            if top.p >= thr or regret <= cheapest:
+            if top.p >= thr or regret <= settings.regret_share * cheapest:
                 return _repair_action(pl, best, _ON_PHONE["try now"] if phone else
                                       "repairing now is cheaper")
         return _check_action(pl, best_c, _phone_question(model, post, pl.check_ids[best_c])

@@ -31,6 +31,7 @@ from diagnose.errors import DiagnoseError, InputError, JournalError
 from diagnose.shell import commands
 from diagnose.shell.complete import Choice, CompletionState, choose
 from diagnose.shell.render import (
+    CautionsView,
     CautionView,
     CheckCard,
     EndView,
@@ -62,6 +63,15 @@ PHONE_HINT = ("Phone mode: every card is a question for the caller, safe without
               "opening covers; the end is a recommendation: resolved, or a site visit with "
               "the parts to bring.")
 _MAX_FAILURES = 5  # unexpected errors in a row without new input before the shell gives up
+#: Lines a terminal prompt keeps for the completion menu, its own last line included:
+#: three completions at a time (they scroll), so that a card keeps its room above.
+MENU_ROWS = 4
+#: Lines of the bottom toolbar under the prompt.
+TOOLBAR_ROWS = 1
+#: Commands whose output pushes the card up: its cautions are drawn again after them.
+REDRAW_AFTER = frozenset({"ranking", "why", "checks", "help", "nameplate", "state", "calc"})
+#: Typed at a card's prompt: the whole card (a compact card cuts lines short).
+MORE_WORD = "more"
 
 
 class Leave(Exception):
@@ -101,6 +111,8 @@ class Shell:
         self._forced: tuple[str, str] | None = None  # ("check"|"repair", id) chosen by the person
         self._turn_forced: tuple[str, str] | None = None  # what this turn was chosen to be
         self._current: tuple[str, str] | None = None  # what the current question is about
+        # the card of the current question: (id, card(shown)), for `more` and the redraw
+        self._card: tuple[str, Callable[[bool], Any]] | None = None
         self._closing_offered = False
 
     # --- the loop ------------------------------------------------------------------------
@@ -205,12 +217,14 @@ class Shell:
         ``empty``: the one-line explanation for an empty line (None: an empty line
         is passed to ``parse``). ``parse`` raises InputError to refuse.
         """
-        state = CompletionState(answers=tuple(answers), commands=self.command_choices(),
-                                arguments=self.argument_choices())
         answer_ids = {a.lower() for a, _ in answers}
+        more = self._card_now() is not None and MORE_WORD not in answer_ids
+        offered = tuple(answers) + (((MORE_WORD, "show the whole card"),) if more else ())
+        state = CompletionState(answers=offered, commands=self.command_choices(),
+                                arguments=self.argument_choices())
         while True:
             try:
-                line = self.reader.ask(message, state, default)
+                line = self.reader.ask(wrap_prompt(message, self.console.width), state, default)
             except KeyboardInterrupt:
                 continue
             except EOFError:
@@ -222,25 +236,76 @@ class Shell:
                     self.error(empty)
                     continue
             else:
+                if more and text.lower() == MORE_WORD:
+                    self.show_more()
+                    continue
                 word, _, rest = text.partition(" ")
                 cmd = commands.find(word)
                 if cmd is not None and text.lower() not in answer_ids:
-                    self.run_command(cmd, rest)
+                    if self.run_command(cmd, rest) and cmd.name in REDRAW_AFTER:
+                        self.redraw_cautions()
                     continue
             try:
                 return parse(text)
             except InputError as exc:
                 self.error(_message(exc))
 
-    def run_command(self, cmd: commands.Command, arg: str) -> None:
+    def run_command(self, cmd: commands.Command, arg: str) -> bool:
+        """Run a command typed at a question; False when it was refused (one line said why)."""
         try:
             cmd(self, arg)
         except (_Restart, Leave):
             raise
         except InputError as exc:
             self.error(_message(exc))
+            return False
         except DiagnoseError as exc:
             self.error(str(exc))
+            return False
+        return True
+
+    # --- the card on screen ------------------------------------------------------------------
+    def _card_now(self) -> tuple[str, Callable[[bool], Any]] | None:
+        """The card of the question being asked, or None (no card, or a stale one)."""
+        if self._card is None or self._current is None or self._current[1] != self._card[0]:
+            return None
+        return self._card
+
+    def card_room(self, prompt: str) -> int:
+        """The screen lines a card may take so that it and ``prompt`` are on screen together.
+
+        At a terminal the prompt keeps :data:`MENU_ROWS` lines for the completion
+        menu (its own last line included) above the toolbar; a prompt wrapped to
+        several lines takes the lines above its last.
+        """
+        lines = wrap_prompt(prompt, self.console.width).count("\n") + 1
+        return max(self.console.height - (lines - 1) - MENU_ROWS - TOOLBAR_ROWS, 1)
+
+    def show_more(self) -> None:
+        """`more` at a card's prompt: the whole card; its cautions again if it is too tall."""
+        found = self._card_now()
+        if found is None:
+            return
+        item_id, card = found
+        whole = card(not self.session.pending_cautions(item_id))
+        self.console.print(whole)
+        if len(self.console.render_lines(whole, pad=False)) > self.card_room(""):
+            self.redraw_cautions()
+
+    def redraw_cautions(self) -> None:
+        """The current card's cautions again, just above the prompt that is asked again.
+
+        Pending DANGER/WARNING in full, the others on one line each; nothing when
+        no card is being asked or it has no cautions.
+        """
+        found = self._card_now()
+        if found is None:
+            return
+        item_id, card = found
+        shown = card(not self.session.pending_cautions(item_id))
+        if shown.cautions:
+            self.console.print(CautionsView(f"{shown.label}: {shown.title}",
+                                            tuple(shown.cautions)))
 
     def command_choices(self) -> tuple[Choice, ...]:
         return tuple((c.name, c.help) for c in commands.COMMANDS.values())
@@ -264,8 +329,9 @@ class Shell:
         """Ctrl-D (or the end of a script): ask whether to save and leave."""
         self.say("")
         try:
-            line = self.reader.ask("Save and leave? (yes / no to stay / abandon to close "
-                                   "the diagnosis unsolved) ", CompletionState(
+            line = self.reader.ask(wrap_prompt("Save and leave? (yes / no to stay / abandon to "
+                                               "close the diagnosis unsolved) ",
+                                               self.console.width), CompletionState(
                                        answers=(("yes", "leave; resume later"),
                                                 ("no", "stay"),
                                                 ("abandon", "close without a result"))))
@@ -421,6 +487,7 @@ class Shell:
         s = self.session
         forced, self._forced = self._forced, None
         self._turn_forced = forced
+        self._card = None
         if forced is not None:
             kind, item = forced
             action = None
@@ -505,8 +572,7 @@ class Shell:
         pending = self.session.pending_cautions(item_id)
         if not pending:
             return True
-        levels = " and ".join(sorted({c.level for c in pending},
-                                     key=lambda lv: ("DANGER", "WARNING").index(lv)))
+        levels = _levels(pending)
 
         def parse(text: str) -> bool:
             word = text.lower()
@@ -517,7 +583,7 @@ class Shell:
             raise InputError("acknowledge", f"type ack to confirm you have read the {levels} "
                              "above, or skip")
 
-        ok = self.ask(f"Type ack to confirm you have read the {levels} above (or skip): ", parse,
+        ok = self.ask(self.ack_prompt(item_id), parse,
                       answers=(("ack", "I have read the cautions"),
                                ("skip", "cannot be done now")),
                       empty=f"type ack to confirm you have read the {levels} above")
@@ -528,19 +594,30 @@ class Shell:
         self.say(f"  acknowledged: {', '.join(c.id for c in pending)}", style="dim")
         return True
 
-    def present(self, item_id: str, card: Callable[[bool], Any]) -> bool:
+    def ack_prompt(self, item_id: str) -> str:
+        """The question that asks for the acknowledgement of the card's pending cautions."""
+        levels = _levels(self.session.pending_cautions(item_id))
+        return f"Type ack to confirm you have read the {levels} above (or skip): "
+
+    def present(self, item_id: str, card: Callable[[bool], Any], prompt: str = "") -> bool:
         """Show the card of a check or repair; instructions only once its cautions are acknowledged.
 
         ``card(shown)`` makes the card with (True) or without (False) its
-        instructions. Returns False when the person chose to skip it instead.
+        instructions; ``prompt`` is the question asked after it. The card is
+        compact (see ``render.SHORTENING``), so that it is on screen together with
+        the acknowledgement's prompt, or with ``prompt``; ``more`` shows it whole.
+        Returns False when the person chose to skip it instead.
         """
+        from dataclasses import replace
+
+        self._card = (item_id, card)
         standing = self.session.reminders(item_id)
         if standing:  # shown as one-line reminders: on the record too
             self.session.remind(item_id, [c.id for c in standing])
         if not self.session.pending_cautions(item_id):
-            self.console.print(card(True))
+            self.console.print(replace(card(True), fit=self.card_room(prompt)))
             return True
-        self.console.print(card(False))
+        self.console.print(replace(card(False), fit=self.card_room(self.ack_prompt(item_id))))
         if not self.acknowledge(item_id):
             return False
         self.console.print(card(True).instructions_view())
@@ -550,7 +627,12 @@ class Shell:
         s = self.session
         chk = self.model.checks[check_id]
         self._current = ("check", check_id)
-        if not self.present(check_id, lambda shown: self.check_card(chk, action, shown=shown)):
+        if chk.measurement is not None:
+            msg = f"Reading ({chk.measurement.unit} if no unit is given), unsure or skip: "
+        else:
+            msg = f"Answer ({'/'.join(chk.outcomes)}, unsure, skip): "
+        if not self.present(check_id, lambda shown: self.check_card(chk, action, shown=shown),
+                            msg):
             s.skip(check_id)
             self.say(f"  skipped {check_id}: another check is proposed", style="dim")
             return
@@ -594,11 +676,6 @@ class Shell:
                 raise InputError(exc.field, f"{exc.message}{more} (or unsure, skip, help)"
                                  ) from None
 
-        if measured:
-            assert chk.measurement is not None
-            msg = f"Reading ({chk.measurement.unit} if no unit is given), unsure or skip: "
-        else:
-            msg = f"Answer ({'/'.join(chk.outcomes)}, unsure, skip): "
         finding = self.ask(msg, parse, answers=answers,
                            empty="type the answer, unsure or skip (Tab completes; help "
                            "lists the commands)")
@@ -644,7 +721,10 @@ class Shell:
         s = self.session
         rep = self.model.repairs[repair_id]
         self._current = ("repair", repair_id)
-        if not self.present(repair_id, lambda shown: self.repair_card(rep, action, shown=shown)):
+        asked = ("Has the caller done it? Is the complaint cured?" if s.mode == "phone"
+                 else "Repair done. Is the complaint cured?")
+        if not self.present(repair_id, lambda shown: self.repair_card(rep, action, shown=shown),
+                            f"{asked} (yes/no, skip): "):
             self.skip_repair(repair_id)
             return
 
@@ -661,8 +741,6 @@ class Shell:
 
         if s.mode == "site":
             self.observe_during(repair_id)
-        asked = ("Has the caller done it? Is the complaint cured?" if s.mode == "phone"
-                 else "Repair done. Is the complaint cured?")
         cured = self.ask(f"{asked} (yes/no, skip): ", parse,
                          answers=(("yes", "cured"), ("no", "not cured"),
                                   ("skip", "cannot be done now: propose another step")),
@@ -836,7 +914,8 @@ class Shell:
         self.console.print(HelpView(rows, (
             ("To answer a check: type an outcome (or its number), a reading with its unit "
             "(3.2 ohm, 23.5V, OL), unsure, or skip. Tab completes; Ctrl-C clears the line; "
-            "Ctrl-D asks whether to save and leave."),)))
+            "Ctrl-D asks whether to save and leave."),
+            "At a check or repair, more shows the whole card (a long one is cut short).")))
 
     def show_why(self, arg: str) -> None:
         s = self.session
@@ -1041,6 +1120,44 @@ def _has_words(typed: str, text: str) -> bool:
     return all(w in words for w in re.findall(r"\w+", typed.lower()))
 
 
+def wrap_prompt(message: str, width: int) -> str:
+    """``message`` with line breaks between words, so that no line is wider than ``width - 1``.
+
+    A terminal prompt breaks a long message anywhere, even inside a word; this
+    breaks it between words first. The trailing space (before the answer) stays.
+
+    >>> wrap_prompt("Supply (converter/battery/rectified) [converter]: ", 30)
+    'Supply\\n(converter/battery/rectified)\\n[converter]: '
+    >>> wrap_prompt("Short: ", 80)
+    'Short: '
+    """
+    limit = max(width - 1, 10)
+    body = message.rstrip(" ")
+    tail = message[len(body):]
+    if all(len(line) <= limit for line in (body + tail).split("\n")):
+        return message
+    out: list[str] = []
+    for para in body.split("\n"):
+        line = ""
+        for word in para.split(" "):
+            if line and len(line) + 1 + len(word) > limit:
+                out.append(line)
+                line = word
+            else:
+                line = f"{line} {word}" if line else word
+        out.append(line)
+    if len(out[-1]) + len(tail) > limit and " " in out[-1]:  # room for the trailing space
+        head, _, last = out[-1].rpartition(" ")
+        out[-1:] = [head, last]
+    return "\n".join(out) + tail
+
+
+def _levels(pending: Sequence[Any]) -> str:
+    """ "DANGER", "WARNING" or "DANGER and WARNING": the signal words to acknowledge."""
+    return " and ".join(sorted({c.level for c in pending},
+                               key=lambda lv: ("DANGER", "WARNING").index(lv)))
+
+
 def _width() -> int:
     """The terminal's width in columns (80 when unknown)."""
     import shutil
@@ -1078,7 +1195,8 @@ def _reader(console: Any, holder: list[Shell]) -> Any:
     from prompt_toolkit.output import ColorDepth
 
     depth = ColorDepth.MONOCHROME if os.environ.get("NO_COLOR") else None
-    session: Any = PromptSession(history=file_history(), color_depth=depth)
+    session: Any = PromptSession(history=file_history(), color_depth=depth,
+                                 reserve_space_for_menu=MENU_ROWS)
     return PromptReader(session, toolbar=lambda: holder[0].toolbar() if holder else "")
 
 

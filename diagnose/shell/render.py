@@ -9,8 +9,8 @@ the same without colour (NO_COLOR, a pipe, a log file).
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, field
-from typing import Any
+from dataclasses import dataclass, field, replace
+from typing import Any, NamedTuple
 
 #: Width of the probability bars in the ranking, in characters.
 BAR_WIDTH = 20
@@ -22,6 +22,17 @@ UNKNOWN_SHOWN_FROM = 0.05
 _LEVEL_STYLE = {"DANGER": "bold white on red", "WARNING": "bold black on dark_orange",
                 "CAUTION": "bold black on yellow", "NOTICE": "bold white on blue"}
 _LEVEL_MARK = {"DANGER": "!! ", "WARNING": "! ", "CAUTION": "! ", "NOTICE": "i "}
+#: Signal words whose cautions are acknowledged before the instructions are shown.
+ACKNOWLEDGED_LEVELS = frozenset({"DANGER", "WARNING"})
+#: How a compact card is shortened when it does not fit its screen lines, in this order:
+#: the fixed causes to a count, why to one line, the parts to one line, every fact to
+#: one line, no why, the answer hint to one line, no "acknowledge" line.
+SHORTENING = ("fixes", "why", "parts", "facts", "no_why", "hint", "no_note")
+#: At most this many lines of why, and of the labelled facts, on a compact card.
+WHY_LINES = 2
+FACT_LINES = 3
+#: Marks a line cut short on a compact card: the rest is behind ``more``.
+MORE = "… (more)"
 
 
 def bar(share: float, width: int = BAR_WIDTH) -> str:
@@ -114,11 +125,19 @@ class CautionView:
     """One caution: its signal word first, then its text.
 
     ``reminder``: acknowledged earlier in this state; shown on one line.
+    ``brief``: shown on one line, cut with an ellipsis (a CAUTION or NOTICE on a
+    compact card; ``more`` shows the whole card).
     """
 
     level: str
     text: str
     reminder: bool = False
+    brief: bool = False
+
+    @property
+    def pending(self) -> bool:
+        """A DANGER or WARNING still to be read in full (not a reminder)."""
+        return self.level in ACKNOWLEDGED_LEVELS and not self.reminder
 
     def __rich_console__(self, console: Any, options: Any) -> Any:
         from rich.text import Text
@@ -129,7 +148,19 @@ class CautionView:
         if self.reminder:
             line.append(" (acknowledged, still applies)", style="dim")
         line.append(f"  {self.text}")
+        if self.brief and not self.reminder:
+            line = _clip(line, console, options.max_width, 1)
         yield line
+
+
+def compact_cautions(cautions: Sequence[CautionView]) -> tuple[CautionView, ...]:
+    """The cautions as a compact card shows them: pending DANGER/WARNING in full, others brief.
+
+    >>> shown = compact_cautions([CautionView("DANGER", "a"), CautionView("CAUTION", "b")])
+    >>> [c.brief for c in shown]
+    [False, True]
+    """
+    return tuple(c if c.pending else replace(c, brief=True) for c in cautions)
 
 
 def why_text(gain: float | None, minutes: float, *, phone: bool = False) -> str:
@@ -159,12 +190,22 @@ def why_text(gain: float | None, minutes: float, *, phone: bool = False) -> str:
             f"for {cost} ({rate:.2g} bits/min)")
 
 
+class _Fact(NamedTuple):
+    """A labelled fact of a card ("Time", "2 min"); ``folded`` stands for it when space is short."""
+
+    label: str
+    value: str
+    folded: str = ""
+
+
 @dataclass(frozen=True)
 class CheckCard:
     """A proposed check: title, why, minutes, tools, then the cautions FIRST, then what to do.
 
     ``instructions`` is None while a DANGER or WARNING caution still waits for
     its acknowledgement: the card then says so instead of the instructions.
+    ``fit``: the screen lines the card may take (a compact card, see
+    :data:`SHORTENING`); None shows the whole card.
     """
 
     id: str
@@ -179,72 +220,197 @@ class CheckCard:
     label: str = "Check"
     needs: tuple[str, ...] = ()
     many: bool = False  # a measurement that takes several readings
+    fit: int | None = None
 
     def instructions_view(self) -> InstructionsView:
-        """The instructions alone (after the acknowledgement of the cautions)."""
+        """The instructions alone (once acknowledged), below the cautions on one line each."""
         return InstructionsView(self.title, self.instructions or "",
-                                _answer_hint(self.outcomes, self.unit, self.many))
+                                _answer_hint(self.outcomes, self.unit, self.many),
+                                _one_line(self.cautions))
 
     def __rich_console__(self, console: Any, options: Any) -> Any:
-        lines = [[("Time", minutes_text(self.minutes)),
-                  ("Tools", ", ".join(self.tools) if self.tools else "none")]]
+        lines = [[_Fact("Time", minutes_text(self.minutes)),
+                  _Fact("Tools", ", ".join(self.tools) if self.tools else "none")]]
         if self.needs:
-            lines.append([("First", "; ".join(self.needs))])
-        yield _card(f"{self.label}: {self.title}", self.id, self.cautions, self.why, lines,
-                    self.instructions, _answer_hint(self.outcomes, self.unit, self.many))
+            lines.append([_Fact("First", "; ".join(self.needs))])
+        yield _fitted(_CardLayout(f"{self.label}: {self.title}", self.id, self.cautions,
+                                 self.why, lines, self.instructions,
+                                 _answer_hint(self.outcomes, self.unit, self.many)),
+                      self.fit, console, options)
 
 
-def _card(title: str, subtitle: str, cautions: Sequence[Any], why: str,
-          lines: Sequence[Sequence[tuple[str, str]]], instructions: str | None,
-          hint: str) -> Any:
-    """A card: the cautions FIRST, why, labelled facts, then the instructions and the hint.
+@dataclass(frozen=True)
+class _CardLayout:
+    """What a card shows, before it is laid out: the cautions FIRST, why, facts, then what to do.
 
-    ``instructions`` None: a DANGER or WARNING still waits for its acknowledgement,
-    and the card says so instead of showing what to do.
+    ``instructions`` None: a DANGER or WARNING still waits for its
+    acknowledgement, and the card says so instead of showing what to do.
     """
-    from rich.console import Group
-    from rich.panel import Panel
+
+    title: str
+    subtitle: str
+    cautions: Sequence[CautionView]
+    why: str
+    lines: Sequence[Sequence[_Fact]]
+    instructions: str | None
+    hint: str
+
+    def panel(self, console: Any, width: int, shortened: frozenset[str] | None) -> Any:
+        """The card as a panel ``width`` columns wide; ``shortened`` None: the whole card.
+
+        Otherwise a compact card: pending DANGER/WARNING in full, other cautions on
+        one line, why on at most :data:`WHY_LINES` lines, with the steps of
+        :data:`SHORTENING` named in ``shortened`` applied.
+        """
+        from rich.console import Group
+        from rich.panel import Panel
+        from rich.text import Text
+
+        inner = max(width - 4, 10)  # the border and the padding
+        compact = shortened is not None
+        cut = shortened or frozenset()
+        parts: list[Any] = list(compact_cautions(self.cautions) if compact else self.cautions)
+        if self.why and "no_why" not in cut:
+            why = Text()
+            why.append("Why: ", style="bold")
+            why.append(self.why)
+            if compact:
+                why = _clip(why, console, inner, 1 if "why" in cut else WHY_LINES)
+            parts.append(why)
+        parts += self.fact_lines(console, inner, cut if compact else None)
+        if self.instructions is None:
+            if "no_note" not in cut:
+                parts.append(Text("Acknowledge the cautions above to see the instructions.",
+                                  style="italic"))
+        else:
+            if self.instructions:
+                parts.append(Text(self.instructions, style="bold"))
+            if self.hint:
+                hint = Text(self.hint, style="dim")
+                parts.append(_clip(hint, console, inner, 1) if "hint" in cut else hint)
+        return Panel(Group(*parts), title=self.title, title_align="left",
+                     subtitle=self.subtitle, subtitle_align="right", expand=True)
+
+    def fact_lines(self, console: Any, inner: int, cut: frozenset[str] | None) -> list[Any]:
+        """The labelled facts, a line of text each (they wrap unless ``cut`` shortens them)."""
+        from rich.text import Text
+
+        out = []
+        for line in self.lines:
+            text = Text()
+            for i, fact in enumerate(line):
+                text.append(("   " if i else "") + f"{fact.label}: ", style="bold")
+                folded = cut is not None and "fixes" in cut and fact.label == "Fixes"
+                text.append(fact.folded if folded and fact.folded else fact.value)
+            labels = {fact.label for fact in line}
+            if cut is not None and ("facts" in cut or ("parts" in cut and "Parts" in labels)):
+                text = _clip(text, console, inner, 1)
+            out.append(text)
+        return out
+
+    def count_fact_lines(self, console: Any, width: int, cut: frozenset[str]) -> int:
+        """How many screen lines the labelled facts take on a compact card."""
+        inner = max(width - 4, 10)
+        return sum(len(t.wrap(console, inner)) for t in self.fact_lines(console, inner, cut))
+
+
+def _fitted(layout: _CardLayout, fit: int | None, console: Any, options: Any) -> Any:
+    """The card laid out to take at most ``fit`` lines (None: the whole card).
+
+    The whole card when it fits; else a compact card (CAUTION, NOTICE and
+    reminders on one line each, why on at most :data:`WHY_LINES` lines, the facts
+    down to :data:`FACT_LINES` lines), then the steps of :data:`SHORTENING` in
+    order until it fits. The pending DANGER and WARNING cautions are never
+    shortened.
+    """
+    width = options.max_width
+    whole = layout.panel(console, width, None)
+    measure = options.update(height=None)
+    if fit is None or len(console.render_lines(whole, measure, pad=False)) <= fit:
+        return whole
+    cut: set[str] = set()
+    for step in ("fixes", "parts", "facts"):
+        if layout.count_fact_lines(console, width, frozenset(cut)) <= FACT_LINES:
+            break
+        cut.add(step)
+    panel = layout.panel(console, width, frozenset(cut))
+    for step in SHORTENING:
+        if len(console.render_lines(panel, measure, pad=False)) <= fit:
+            break
+        if step not in cut:
+            cut.add(step)
+            panel = layout.panel(console, width, frozenset(cut))
+    return panel
+
+
+def _clip(text: Any, console: Any, width: int, lines: int) -> Any:
+    """``text`` wrapped to ``width`` and cut to its first ``lines`` lines, marked :data:`MORE`."""
     from rich.text import Text
 
-    parts: list[Any] = list(cautions)
-    head = Text()
-    if why:
-        head.append("Why: ", style="bold")
-        head.append(why + "\n")
-    for n, line in enumerate(lines):
-        for i, (label, value) in enumerate(line):
-            head.append(("   " if i else ("\n" if n else "")) + f"{label}: ", style="bold")
-            head.append(value)
-    parts.append(head)
-    if instructions is None:
-        parts.append(Text("Acknowledge the cautions above to see the instructions.",
-                          style="italic"))
-    else:
-        if instructions:
-            parts.append(Text(instructions, style="bold"))
-        if hint:
-            parts.append(Text(hint, style="dim"))
-    return Panel(Group(*parts), title=title, title_align="left", subtitle=subtitle,
-                 subtitle_align="right", expand=True)
+    wrapped = text.wrap(console, width)
+    if len(wrapped) <= lines:
+        return text
+    kept = list(wrapped[:lines])
+    last = kept[-1]
+    last.rstrip()
+    last.truncate(width - len(MORE), overflow="crop")
+    last.rstrip()
+    last.append(MORE, style="dim")
+    out = Text("\n").join(kept)
+    out.no_wrap = True
+    out.overflow = "crop"
+    return out
+
+
+def _one_line(cautions: Sequence[CautionView]) -> tuple[CautionView, ...]:
+    """Every caution on one line: acknowledged ones as reminders, the others cut short."""
+    return tuple(replace(c, brief=True) for c in cautions)
 
 
 @dataclass(frozen=True)
 class InstructionsView:
-    """What to do, shown on its own once the cautions of a card are acknowledged."""
+    """What to do, shown on its own once the cautions of a card are acknowledged.
+
+    ``cautions`` (on one line each) stay above the instructions, so that they are on
+    screen together with the answer's prompt.
+    """
 
     title: str
     text: str
     hint: str = ""
+    cautions: tuple[CautionView, ...] = ()
 
     def __rich_console__(self, console: Any, options: Any) -> Any:
         from rich.console import Group
         from rich.panel import Panel
         from rich.text import Text
 
-        parts: list[Any] = [Text(self.text or "(no instructions in the pack)", style="bold")]
+        parts: list[Any] = list(self.cautions)
+        parts.append(Text(self.text or "(no instructions in the pack)", style="bold"))
         if self.hint:
             parts.append(Text(self.hint, style="dim"))
         yield Panel(Group(*parts), title=f"Do: {self.title}", title_align="left", expand=True)
+
+
+@dataclass(frozen=True)
+class CautionsView:
+    """The cautions of the card being asked, drawn again just above its prompt.
+
+    Shown after a command's output pushed the card up: pending DANGER/WARNING in
+    full, the others on one line each.
+    """
+
+    title: str
+    cautions: tuple[CautionView, ...]
+    subtitle: str = "more: the whole card"
+
+    def __rich_console__(self, console: Any, options: Any) -> Any:
+        from rich.console import Group
+        from rich.panel import Panel
+
+        yield Panel(Group(*compact_cautions(self.cautions)), title=self.title,
+                    title_align="left", subtitle=self.subtitle, subtitle_align="right",
+                    expand=True)
 
 
 def _answer_hint(outcomes: Sequence[tuple[str, str]], unit: str, many: bool = False) -> str:
@@ -262,7 +428,10 @@ def _answer_hint(outcomes: Sequence[tuple[str, str]], unit: str, many: bool = Fa
 
 @dataclass(frozen=True)
 class RepairCard:
-    """A proposed or chosen repair: parts, minutes and cautions first, then what to do."""
+    """A proposed or chosen repair: parts, minutes and cautions first, then what to do.
+
+    ``fit``: the screen lines the card may take (a compact card); None: the whole card.
+    """
 
     id: str
     title: str
@@ -274,22 +443,27 @@ class RepairCard:
     instructions: str | None = None
     confirm: str = ""
     label: str = "Repair"
+    fit: int | None = None
 
     def _hint(self) -> str:
         confirm = f" ({self.confirm})" if self.confirm else ""
         return f"When done: is the complaint cured{confirm}? yes / no (skip: cannot be done now)"
 
     def instructions_view(self) -> InstructionsView:
-        """The instructions alone (after the acknowledgement of the cautions)."""
-        return InstructionsView(self.title, self.instructions or "", self._hint())
+        """The instructions alone (once acknowledged), below the cautions on one line each."""
+        return InstructionsView(self.title, self.instructions or "", self._hint(),
+                                _one_line(self.cautions))
 
     def __rich_console__(self, console: Any, options: Any) -> Any:
-        lines = [[("Time", minutes_text(self.minutes))],
-                 [("Parts", "; ".join(self.parts) if self.parts else "none")]]
+        lines = [[_Fact("Time", minutes_text(self.minutes)),
+                  _Fact("Parts", "; ".join(self.parts) if self.parts else "none")]]
         if self.fixes:
-            lines.append([("Fixes", "; ".join(self.fixes))])
-        yield _card(f"{self.label}: {self.title}", self.id, self.cautions, self.why, lines,
-                    self.instructions, self._hint())
+            n = len(self.fixes)
+            lines.append([_Fact("Fixes", "; ".join(self.fixes),
+                               f"{n} cause{'s' if n != 1 else ''} (more)")])
+        yield _fitted(_CardLayout(f"{self.label}: {self.title}", self.id, self.cautions,
+                                 self.why, lines, self.instructions, self._hint()),
+                      self.fit, console, options)
 
 
 @dataclass(frozen=True)
