@@ -708,12 +708,19 @@ class Session:
     def _ack_state(self, item_id: str) -> list[tuple[Caution, bool]]:
         ev = self._evidence
         renewed = renewals(self.model, ev)
+        # a card whose own setup moves the unit into a renewing state (restores the power)
+        # asks again: the change is about to happen with it
+        now = self.unit_state()
+        item = self._item(item_id)
+        renewing = any(now.get(var) != value and value in self.model.states[var].renews
+                       for var, value in getattr(item, "requires", {}).items()
+                       if var in self.model.states)
         out = []
         for cid in self.card_cautions(item_id):
             c = self.model.cautions.get(cid)
             if c is None or not c.needs_acknowledgement:
                 continue
-            settled = any(
+            settled = not renewing and any(
                 caution == cid and (
                     (step is not None
                      and not lapsed_since(self.model, ev, step, item, renewed))

@@ -98,7 +98,7 @@ class Settings:
     act_floor: float = 0.9
     min_bits: float = 0.035
     escalation_minutes: float = 480.0
-    regret_share: float = 0.25  # below threshold: repair when (1 - p)·c ≤ this × the cheapest look
+    regret_share: float = 0.5  # below threshold: repair when (1 - p)·c ≤ this × the cheapest look
 
     def __post_init__(self) -> None:
         if not 0 < self.threshold <= 1 or not 0 <= self.act_floor <= 1:
