@@ -536,6 +536,13 @@ class Session:
         """The state of the unit now (see :mod:`diagnose.reasoning.unitstate`)."""
         return unit_state(self.model, self._evidence)
 
+    def waiting_for(self, check_id: str) -> tuple[str, ...]:
+        """The checks and repairs that wait for ``check_id`` to be done first (the load support)."""
+        pl = self.plan()
+        out = [pl.check_ids[i] for i, needs in pl.check_needs.items() if check_id in needs]
+        out += [pl.repair_ids[i] for i, needs in pl.repair_needs.items() if check_id in needs]
+        return tuple(out)
+
     def ruled_out(self, below: float = 0.02) -> tuple[tuple[str, ...], int]:
         """The known causes of the complaints now below ``below``, and how many there are."""
         tree: set[str] = set()

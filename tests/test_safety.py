@@ -259,3 +259,14 @@ def test_the_load_danger_is_a_reminder_right_after_the_load_was_supported():
     # the acknowledgement lapses once the load support is removed (a repair puts it back)
     s.repair("readjust_worn_brake", False)
     assert "load_falls" in [c.id for c in s.pending_cautions("rotate_released")]
+
+
+def test_the_load_support_card_says_how_many_steps_wait_for_it():
+    model = load_model("spring-applied-brake")
+    s = Session(model)
+    s.set_nameplate("gravity_load", "yes")
+    s.add_complaint("will_not_release")
+    waiting = s.waiting_for("secure_load")
+    assert "rotate_released" in waiting and "replace_friction_disc" in waiting
+    assert all(("secure_load" in {c.id: c for c in s.plan().checks()}[w].needs)
+               for w in waiting if w in model.checks)

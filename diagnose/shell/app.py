@@ -553,7 +553,10 @@ class Shell:
                 target = self.model.checks.get(action.target) or self.model.repairs.get(
                     action.target)
                 name = target.title if target is not None else action.target
-                return f"it must be done first, before: {name}"
+                others = [x for x in self.session.waiting_for(chk.id) if x != action.target]
+                more = f" (and {len(others)} more step{'s' if len(others) > 1 else ''} wait " \
+                    "for it)" if others else ""
+                return f"it must be done first, before: {name}{more}"
             reason = action.reason
             base = why_text(action.bits, action.minutes, phone=phone)
             return f"{reason}: {base}" if reason else base
