@@ -379,14 +379,24 @@ class Journal:
 
     def _prepare(self, version: int) -> None:
         conn = self._conn
-        try:
-            if conn.execute("PRAGMA journal_mode").fetchone()[0].lower() != "wal":
-                mode = conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
-                if mode.lower() != "wal":
-                    raise JournalError(f"the journal {self.path} cannot use write-ahead "
-                                       f"logging here (mode {mode})")
-        except sqlite3.Error as exc:
-            raise _translate(self.path, exc) from None
+        # Switching a new file to write-ahead logging needs the file to itself, and the
+        # busy handler is not asked for that: two writers starting on one new journal
+        # wait for each other here, up to the busy timeout.
+        waited = 0.0
+        while True:
+            try:
+                if conn.execute("PRAGMA journal_mode").fetchone()[0].lower() != "wal":
+                    mode = conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
+                    if mode.lower() != "wal":
+                        raise JournalError(f"the journal {self.path} cannot use write-ahead "
+                                           f"logging here (mode {mode})")
+                break
+            except sqlite3.Error as exc:
+                if _is_busy(exc) and waited < BUSY_TIMEOUT_MS / 1000:
+                    _time.sleep(0.05)
+                    waited += 0.05
+                    continue
+                raise _translate(self.path, exc) from None
         if version < SCHEMA_VERSION:
             if version > 0:
                 self._keep_copy(version)
