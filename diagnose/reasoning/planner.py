@@ -80,7 +80,7 @@ from diagnose.reasoning.openworld import SUPPORT_MARGIN, any_support
 from diagnose.reasoning.posterior import Posterior, RankEntry, posterior
 from diagnose.reasoning.safety import caller_safe, missing_state, state_steps
 from diagnose.reasoning.tables import Tables, tables_for
-from diagnose.reasoning.unitstate import setup_minutes, setup_steps, unit_state
+from diagnose.reasoning.unitstate import setup_minutes, unit_state
 
 __all__ = ["DEFAULT", "Action", "CheckScore", "ChecksTable", "Plan", "RepairScore", "Settings",
            "check_status", "checks_table", "missing_prerequisites", "nameplate_value",
@@ -258,7 +258,6 @@ class Plan:
     repair_needs: dict[int, tuple[str, ...]]
     repair_blocked: dict[int, str]
     supported: bool = True  # some answer points at a known cause
-    check_setup: dict[int, tuple[tuple[str, str], ...]] = field(default_factory=dict)
 
     def checks(self, limit: int | None = None) -> tuple[CheckScore, ...]:
         """Checks, those that can be proposed first, by ECO (least first)."""
@@ -681,14 +680,12 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
         if not only_if_matches(model, evidence, model.checks[tables.check_ids[i]]):
             code[i] = 5
     state = unit_state(model, evidence)
-    setups: dict[int, tuple[tuple[str, str], ...]] = {}
     for i in tables.checks_requiring:
         extra = setup_minutes(model, state, model.checks[tables.check_ids[i]].requires)
         if extra == float("inf"):
             code[i] = 9
         elif extra > 0:
             cmin[i] += extra
-            setups[i] = setup_steps(model, state, model.checks[tables.check_ids[i]].requires)
     _withhold(model, evidence, tables.checks_withheld, tables.check_ids, model.checks, cmin,
               code, 8, cneeds, cblocked)
     if phone:
@@ -746,7 +743,7 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
     bits[cand], eco[cand] = bits_c, eco_c
     result = Plan(Action("done"), post.ranking(limit=1).top, ecr_now, model, tables.check_ids,
                   cmin, bits, eco, code, cneeds, cblocked, tables.repair_ids, rmin, p_fix,
-                  tables.success * p_fix, rcode, rneeds, rblocked, supported, setups)
+                  tables.success * p_fix, rcode, rneeds, rblocked, supported)
     action = _decide(model, evidence, post, settings, result)
     return replace(result, action=action)
 

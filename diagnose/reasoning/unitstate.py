@@ -105,13 +105,3 @@ def setup_steps(model: Model, state: Mapping[str, str], requires: Mapping[str, s
         if var in requires and state.get(var, s.initial) != requires[var]:
             out.append((var, requires[var]))
     return tuple(out)
-
-
-def describe(model: Model, changes: tuple[tuple[str, str], ...]) -> str:
-    """"power: isolated and locked out; brake: removed from the motor" for people."""
-    parts = []
-    for var, value in changes:
-        s = model.states.get(var)
-        if s is not None:
-            parts.append(f"{s.title.lower()}: {s.values.get(value, value)}")
-    return "; ".join(parts)
