@@ -8,6 +8,7 @@ autoescape on), so that the report says what ``--json`` says.
 from __future__ import annotations
 
 import math
+from functools import lru_cache
 from pathlib import Path
 from typing import Any
 
@@ -26,42 +27,36 @@ def render_analysis(analysis: Any, fmt: str = "md") -> str:
     if fmt not in FORMATS:
         raise InputError("--format", f"unknown report format {fmt!r}; use md or html")
     data = analysis if isinstance(analysis, dict) else analysis.to_dict()
-    return _environment().get_template(f"analysis.{fmt}.j2").render(a=data)
+    return _environment(fmt).get_template(f"analysis.{fmt}.j2").render(a=data)
 
 
-def write_analysis(analysis: Any, path: str | Path, fmt: str | None = None) -> Path:
+def write_analysis(analysis: Any, path: str | Path, fmt: str | None = None, *,
+                   force: bool = False) -> Path:
     """Write the report to ``path``; the format defaults to the file's suffix (.md, .html).
 
+    Written as every file of the program is (a temporary file renamed into
+    place; an existing file only with ``force``; never the journal or a path
+    through a symbolic link).
+
     Raises:
-        InputError: unknown format, or the file cannot be written.
+        InputError: unknown format, or the file is refused or cannot be written.
     """
+    from diagnose.journal.paths import writable_target, write_text_atomically
+
     path = Path(path)
     if fmt is None:
         fmt = {".htm": "html", ".html": "html"}.get(path.suffix.lower(), "md")
     text = render_analysis(analysis, fmt)
-    try:
-        path.write_text(text, encoding="utf-8")
-    except OSError as exc:
-        raise InputError("--output", f"cannot write {path}: {exc.strerror}") from None
-    return path
+    target = writable_target(path, force=force)
+    write_text_atomically(target, text)
+    return Path(target)
 
 
-def _environment() -> Any:
-    from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
+@lru_cache(maxsize=2)
+def _environment(fmt: str) -> Any:
+    from diagnose.text import templates
 
-    env = Environment(
-        loader=FileSystemLoader(str(_TEMPLATES)),
-        autoescape=select_autoescape(enabled_extensions=("html.j2",), default=False),
-        undefined=StrictUndefined,
-        trim_blocks=True,
-        lstrip_blocks=True,
-        keep_trailing_newline=True,
-    )
-    env.filters["num"] = _num
-    env.filters["pct"] = _pct
-    env.filters["cell"] = _cell
-    env.filters["minutes"] = _minutes
-    return env
+    return templates(str(_TEMPLATES), fmt, num=_num, pct=_pct, minutes=_minutes)
 
 
 def _num(x: Any) -> str:
@@ -81,7 +76,3 @@ def _pct(x: Any) -> str:
 def _minutes(x: Any) -> str:
     return "n/a" if x is None else f"{float(x):.1f}"
 
-
-def _cell(text: Any) -> str:
-    """Text safe inside a Markdown table cell."""
-    return str(text).replace("|", "\\|").replace("\n", " ")

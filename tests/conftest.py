@@ -14,3 +14,5 @@ def _clean_environment(monkeypatch, tmp_path_factory):
     monkeypatch.setenv("DIAGNOSE_JOURNAL", str(home / "journal.sqlite3"))
     monkeypatch.setenv("XDG_DATA_HOME", str(home / "data"))
     monkeypatch.setenv("XDG_STATE_HOME", str(home / "state"))
+    monkeypatch.setenv("XDG_CACHE_HOME", str(home / "cache"))
+    monkeypatch.setenv("DIAGNOSE_DEBUG", "1")  # a bug is a traceback in a test, not one line

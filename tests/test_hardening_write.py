@@ -448,3 +448,32 @@ def test_a_full_disk_during_a_run_is_one_line(tmp_path, monkeypatch, capsys):
                  "--answers", str(answers)])
     err = capsys.readouterr().err
     assert code == 1 and _one_line(err) and DISK_FULL in err
+
+
+# --- the same refusals from the installed program, under limits -------------------------------
+
+
+@pytest.mark.parametrize("target", ["journal", "existing", "symlink", "journal-by-link"])
+@pytest.mark.parametrize("argv", [["report", "SID"], ["kb", "graph", str(MINI)],
+                                  ["backup"]], ids=["report -o", "kb graph -o", "backup"])
+def test_refused_writes_in_a_limited_subprocess(journal, tmp_path, target, argv):
+    """One line, exit 2, within 2 s and 200 MB, the journal and the target byte for byte kept."""
+    from hostile import diagnose
+
+    path, closed, _ = journal
+    existing = tmp_path / "kept.md"
+    existing.write_text(OLD, encoding="utf-8")
+    link = tmp_path / "link.md"
+    link.symlink_to(existing)
+    journal_link = tmp_path / "journal-link"
+    journal_link.symlink_to(path)
+    dest = {"journal": path, "existing": existing, "symlink": link,
+            "journal-by-link": journal_link}[target]
+    argv = [closed if a == "SID" else a for a in argv]
+    words = [*argv, str(dest)] if argv == ["backup"] else [*argv, "-o", str(dest)]
+    before, kept = _digest(path), existing.read_bytes()
+    proc = diagnose("--journal", str(path), "--packs", str(FIXTURES), *words)
+    err = proc.stderr.strip()
+    assert proc.returncode == 2 and len(err.splitlines()) == 1, (proc.returncode, err)
+    assert err.startswith("diagnose: ")
+    assert _digest(path) == before and existing.read_bytes() == kept

@@ -128,7 +128,7 @@ def run(args: argparse.Namespace) -> int:
     if args.calc_json:
         print(json.dumps(verdict.to_dict(), ensure_ascii=False, indent=2))
     else:
-        from rich.console import Console
+        from diagnose.text import console
 
-        Console().print(verdict)
+        console().print(verdict)
     return 0

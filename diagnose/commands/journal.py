@@ -11,11 +11,11 @@ else DIAGNOSE_JOURNAL, else the user's data folder.
 from __future__ import annotations
 
 import argparse
-import json
 from typing import Any
 
 from diagnose.commands import add_output_arguments, output_options, write_output
 from diagnose.errors import InputError, JournalError
+from diagnose.text import clean, json_text, say
 
 
 def register(sub: Any) -> None:
@@ -146,15 +146,15 @@ def _sessions(args: argparse.Namespace) -> int:
             journal.verify_events()  # a row altered by hand is named, not listed as sound
             infos = journal.sessions(args.status, pack_id=args.pack)
     if args.json:
-        print(json.dumps([i.to_dict() for i in infos], indent=2, ensure_ascii=False))
+        print(json_text([i.to_dict() for i in infos], indent=2))
         return 0
     if not infos:
-        print(f"no sessions in the journal {_path(args)}")
+        say(f"no sessions in the journal {_path(args)}")
         return 0
-    from rich.console import Console
     from rich.table import Table
 
     from diagnose.journal.report import when
+    from diagnose.text import console
 
     table = Table(box=None, pad_edge=False)
     for col in ("id", "started", "pack", "mode", "who", "status", "cause", "events"):
@@ -162,9 +162,10 @@ def _sessions(args: argparse.Namespace) -> int:
     for i in infos:
         status = i.status if i.is_open else (i.outcome or "closed")
         cause = (i.cause or "") if i.outcome == "resolved" else ""
-        table.add_row(i.id, when(i.started), f"{i.pack_id} {i.pack_version}", i.mode,
-                      i.who or "", status, cause, str(i.events))
-    Console(highlight=False).print(table)
+        table.add_row(*(clean(v) for v in (
+            i.id, when(i.started), f"{i.pack_id} {i.pack_version}", i.mode, i.who or "", status,
+            cause, str(i.events))))
+    console().print(table)
     return 0
 
 
@@ -196,8 +197,8 @@ def _resume_scripted(args: argparse.Namespace, session_id: str) -> int:
             raise JournalError(f"the pack of session {session_id} cannot be loaded")
         session = resume_session(journal, session_id, model)
         action = session.next_action()
-        print(f"session {session_id}: {len(session.events)} event(s); next: {action.kind} "
-              f"{action.id or ''}".rstrip())
+        say(f"session {session_id}: {len(session.events)} event(s); next: {action.kind} "
+            f"{action.id or ''}".rstrip())
     return 0
 
 
@@ -231,14 +232,14 @@ def _learn(args: argparse.Namespace) -> int:
         overlay = learn(journal, model, weight=weight)
     target = write_overlay(overlay, overlay_path(_path(args), model.id))
     if args.json:
-        print(json.dumps({**overlay.to_dict(), "path": str(target)}, indent=2))
+        print(json_text({**overlay.to_dict(), "path": str(target)}, indent=2))
         return 0
-    print(f"{model.id}: {overlay.sessions} confirmed cure(s) counted, the pack's priors "
+    say(f"{model.id}: {overlay.sessions} confirmed cure(s) counted, the pack's priors "
           f"weighing {weight:g}; learned priors written to {target}")
     for cid, prior in overlay.priors.items():
         base = overlay.base[cid]
         n = overlay.counts.get(cid, 0)
-        print(f"  {cid}: {base:g} -> {prior:.4g} per 1,000 ({n} cure(s))")
+        say(f"  {cid}: {base:g} -> {prior:.4g} per 1,000 ({n} cure(s))")
     print("They apply to new sessions; --no-learned ignores them.")
     return 0
 
@@ -253,11 +254,11 @@ def _stats(args: argparse.Namespace) -> int:
         with journal:
             result = stats(journal, args.pack, lambda pid: _model(args, pid))
     if args.json:
-        print(json.dumps(result.to_dict(), indent=2, ensure_ascii=False))
+        print(json_text(result.to_dict(), indent=2))
         return 0
-    from rich.console import Console
+    from diagnose.text import console
 
-    Console(highlight=False).print(result)
+    console().print(result)
     return 0
 
 
@@ -265,5 +266,5 @@ def _backup(args: argparse.Namespace) -> int:
     with _need_reader(args) as journal:
         target = journal.backup(args.target, force=args.force)
     print("integrity: ok")
-    print(f"journal {_path(args)} copied to {target}")
+    say(f"journal {_path(args)} copied to {target}")
     return 0

@@ -9,6 +9,7 @@ from importlib import import_module
 from typing import Any
 
 from diagnose.commands import add_output_arguments, output_options, write_output
+from diagnose.text import clean, json_text, say
 
 
 def register(sub: Any) -> None:
@@ -60,9 +61,9 @@ def register(sub: Any) -> None:
 
 
 def _console() -> Any:
-    from rich.console import Console
+    from diagnose.text import console
 
-    return Console()
+    return console()
 
 
 def _learned(args: argparse.Namespace, pack: str) -> Any:
@@ -103,10 +104,10 @@ def _lint(args: argparse.Namespace) -> int:
     failed = False
     for res in results:
         for prob in res.problems:
-            print(prob, file=out)
+            say(prob, file=out)
         verdict = "ok" if res.ok(args.strict) else "FAILED"
-        print(f"{res.ref}: {len(res.errors)} error(s), {len(res.warnings)} warning(s): {verdict}",
-              file=out)
+        say(f"{res.ref}: {len(res.errors)} error(s), {len(res.warnings)} warning(s): {verdict}",
+            file=out)
         failed |= not res.ok(args.strict)
     return 1 if failed else 0
 
@@ -135,25 +136,29 @@ def _show(args: argparse.Namespace) -> int:
     learned = _learned(args, model.id)
     data["learned_priors"] = str(learned.path) if learned else None
     if args.json:
-        print(json.dumps(data, indent=2))
+        print(json_text(data, indent=2))
         return 0
     from rich.table import Table
+    from rich.text import Text
     from rich.tree import Tree
 
     con = _console()
-    con.print(f"[bold]{model.title}[/] ({model.id} {model.version}, hash {model.content_hash})")
+    con.print(Text.assemble((clean(model.title), "bold"),
+                            f" ({clean(model.id)} {clean(model.version)}, "
+                            f"hash {model.content_hash})"))
     if len(model.packs) > 1:
         con.print(f"builds on: {', '.join(model.packs[:-1])}")
     if learned:
-        con.print(f"[yellow]learned priors in use:[/] {learned.path} "
-                  f"({learned.sessions} closed session(s)); --no-learned ignores them")
+        con.print(Text.assemble(("learned priors in use:", "yellow"),
+                                f" {clean(learned.path)} ({learned.sessions} closed session(s)); "
+                                "--no-learned ignores them"))
     t = Table(show_header=False, box=None)
     for key in ("complaints", "causes", "checks", "measurements", "repairs", "cautions",
                 "parameters", "tests"):
         t.add_row(key, str(data[key]))
     con.print(t)
     for comp in model.complaints.values():
-        tree = Tree(f"[bold]{comp.title}[/] [dim]{comp.id} ({comp.gate.kind})[/]")
+        tree = Tree(_label(comp.title, f"{comp.id} ({comp.gate.kind})", "bold"))
         _grow(tree, comp.gate, model)
         con.print(tree)
     return 0
@@ -163,11 +168,18 @@ def _grow(tree: Any, gate: Any, model: Any) -> None:
     for x in gate.inputs:
         if x in model.causes:
             c = model.causes[x]
-            tree.add(f"{c.title} [dim]{c.id}, prior {c.prior:g}[/]")
+            tree.add(_label(c.title, f"{c.id}, prior {c.prior:g}"))
         elif x in model.events:
             ev = model.events[x]
             label = ev.kind if ev.kind != "k_of_n" else f"{ev.k} of {len(ev.inputs)}"
-            _grow(tree.add(f"{ev.title} [dim]{ev.id} ({label})[/]"), ev, model)
+            _grow(tree.add(_label(ev.title, f"{ev.id} ({label})")), ev, model)
+
+
+def _label(title: str, detail: str, style: str = "") -> Any:
+    """A tree line: the title (in ``style``) and the ids after it, dimmed; never read as markup."""
+    from rich.text import Text
+
+    return Text.assemble((clean(title), style), " ", (clean(detail), "dim"))
 
 
 def _graph(args: argparse.Namespace) -> int:
@@ -191,7 +203,7 @@ def _test(args: argparse.Namespace) -> int:
     model = load(args, args.pack)
     results = run_cases(model)
     if args.json:
-        print(json.dumps([r.to_dict() for r in results], indent=2))
+        print(json_text([r.to_dict() for r in results], indent=2))
     else:
         con = _console()
         for r in results:
@@ -199,7 +211,7 @@ def _test(args: argparse.Namespace) -> int:
         passed = sum(1 for r in results if r.passed)
         con.print(f"{model.id}: {passed} of {len(results)} case(s) passed")
     if not results:
-        print(f"diagnose: pack {model.id} has no test cases", file=sys.stderr)
+        say(f"diagnose: pack {model.id} has no test cases", file=sys.stderr)
         return 1
     return 0 if all(r.passed for r in results) else 1
 
@@ -211,7 +223,7 @@ def _list(args: argparse.Namespace) -> int:
 
     packs, problems = scan(args.packs)
     for pid, folder in packs.items():
-        print(f"{pid}\t{folder}")
+        say(f"{pid}\t{folder}")
     for problem in problems:  # one line per broken manifest; the others are listed
-        print(f"diagnose: {problem}", file=sys.stderr)
+        say(f"diagnose: {problem}", file=sys.stderr)
     return 0

@@ -97,9 +97,9 @@ def analyze_command(args: argparse.Namespace) -> int:
         else:
             sys.stdout.write(render_analysis(result, args.format))
     else:
-        from rich.console import Console
+        from diagnose.text import console
 
-        Console().print(result)
+        console().print(result)
     return 0
 
 

@@ -14,10 +14,11 @@ is a dry run that writes nothing at all.
 from __future__ import annotations
 
 import argparse
-import json
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
+
+from diagnose.text import storable
 
 #: The keys an answers file may hold.
 ANSWER_KEYS = frozenset({"nameplate", "complaints", "steps", "mode", "max_faults", "identity",
@@ -44,7 +45,8 @@ def register(sub: Any) -> None:
                    help="continue the open session ID: replay its events from the journal, then "
                    "apply FILE (its nameplate values and complaints already there are skipped); "
                    "without --answers, show where it stands")
-    p.add_argument("--who", metavar="NAME", help="who does the steps, for the repair log")
+    p.add_argument("--who", metavar="NAME", type=storable,
+                   help="who does the steps, for the repair log")
     p.add_argument("--no-journal", action="store_true",
                    help="a dry run: show the steps but write nothing to the journal")
     p.add_argument("--json", action="store_true", help="one JSON object instead of text")
@@ -206,9 +208,10 @@ class _View:
         self.steps: list[dict[str, Any]] = []
         self.console: Any = None
         if not as_json:
-            from rich.console import Console
+            from diagnose.text import console
 
-            self.console = Console(width=80) if not Console().is_terminal else Console()
+            probe = console()
+            self.console = probe if probe.is_terminal else console(width=80)
 
     def snapshot(self, shown: int | None = 5) -> dict[str, Any]:
         s = self.session
@@ -231,8 +234,13 @@ class _View:
         model = s.model
         where = (f"recorded in the journal {journal}" if journal else
                  "a dry run (--no-journal): nothing is written to the journal")
-        self.console.print(f"[bold]{model.title}[/bold] ({model.id} {model.version}), "
-                           f"{s.mode}, up to {s.max_faults} fault(s)")
+        from rich.text import Text
+
+        from diagnose.text import clean
+
+        self.console.print(Text.assemble((clean(model.title), "bold"),
+                                         f" ({clean(model.id)} {clean(model.version)}), "
+                                         f"{s.mode}, up to {s.max_faults} fault(s)"))
         if resumed:
             self.say(f"Resuming session {s.session_id} ({_steps_so_far(s)} step(s) so far), "
                      f"{where}.", style="bold")
@@ -279,7 +287,9 @@ class _View:
                    "status": "closed" if end else "open", "end": end, "pack": model.id,
                    "version": model.version, "mode": s.mode, "max_faults": s.max_faults,
                    "pack_changed": s.pack_changed, **self.snapshot(None), "steps": self.steps}
-            print(json.dumps(out, indent=2, ensure_ascii=False))
+            from diagnose.text import json_text
+
+            print(json_text(out, indent=2))
             return
         if not recorded:
             self.say("A dry run (--no-journal): nothing was written to the journal.",
@@ -338,7 +348,30 @@ def _start(args: argparse.Namespace, data: dict[str, Any]) -> int:
     with Journal(path) as journal:
         session = start_session(journal, model, mode=mode, max_faults=faults, who=args.who,
                                 overlay=_learned(args, model.id))
-        return _play(args, session, data, recorded=True, resumed=False, journal=str(path))
+        try:
+            return _play(args, session, data, recorded=True, resumed=False, journal=str(path))
+        except Exception as exc:
+            _close_stopped(session, exc)
+            raise
+
+
+def _close_stopped(session: Any, exc: BaseException) -> None:
+    """Close a session this run started when the run fails part-way (no orphan open session).
+
+    The answers file was played in memory first, so such a failure is not the
+    file's: the output, the journal or a bug. The session is closed as
+    abandoned with the reason; when even that cannot be written, it stays open
+    and ``diagnose sessions`` lists it.
+    """
+    from diagnose.text import excerpt
+
+    if session.ended:
+        return
+    try:
+        session.end("abandoned", text=f"the scripted run stopped: {type(exc).__name__}: "
+                                      f"{excerpt(exc, 120)}")
+    except Exception:  # noqa: BLE001 (the first failure is the one to report)
+        pass
 
 
 def _resume(args: argparse.Namespace, data: dict[str, Any]) -> int:

@@ -48,7 +48,7 @@ def _simulate(args: argparse.Namespace) -> int:
     if args.json:
         print(json.dumps(report.to_dict(), indent=2))
     else:
-        from rich.console import Console
+        from diagnose.text import console
 
-        Console().print(report)
+        console().print(report)
     return 0

@@ -10,6 +10,8 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
+from diagnose.text import storable
+
 
 def register(sub: Any) -> None:
     p = sub.add_parser(
@@ -26,7 +28,7 @@ def register(sub: Any) -> None:
                    help="site: a technician at the unit (default); phone: a help-desk agent "
                    "asking a caller only what is safe without tools, ending with a "
                    "recommendation (resolved, or a site visit with the parts to bring)")
-    p.add_argument("--who", metavar="NAME",
+    p.add_argument("--who", metavar="NAME", type=storable,
                    help="who does the diagnosis, for the repair log")
     p.set_defaults(handler=run)
 

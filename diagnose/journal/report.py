@@ -4,15 +4,15 @@ The content is the session's :class:`~diagnose.journal.record.Record`; the
 Markdown and HTML come from the Jinja2 templates ``templates/report.md.j2``
 and ``templates/report.html.j2``, never from string concatenation. The HTML
 environment escapes every value (autoescape), so a note holding ``<script>``
-is shown as text; the Markdown environment escapes ``<``, ``>``, ``&`` and
-``|`` in every value, so that a Markdown viewer shows them as typed and a
-value cannot break a table. The output holds no time of its own making: the
+is shown as text; the Markdown environment escapes the Markdown punctuation
+of every value (:func:`diagnose.text.md`), so that a Markdown viewer shows it
+as typed: no link, image, emphasis or HTML, and no broken table. Control
+characters are shown as placeholders in all three. The output holds no time of its own making: the
 same session gives the same report.
 """
 
 from __future__ import annotations
 
-import json
 from datetime import datetime
 from functools import lru_cache
 from pathlib import Path
@@ -47,7 +47,9 @@ def render_report(record: Record, fmt: str = "md") -> str:
         raise InputError("--format", f"unknown report format {fmt!r}; use md, html or json")
     data = report_data(record)
     if fmt == "json":
-        return json.dumps(data, indent=2, ensure_ascii=False) + "\n"
+        from diagnose.text import json_text
+
+        return json_text(data, indent=2) + "\n"
     text = _environment(fmt).get_template(f"report.{fmt}.j2").render(r=data)
     return text.rstrip("\n") + "\n"
 
@@ -102,26 +104,9 @@ def minutes(value: Any) -> str:
     return f"{m:g} min" if m < 120 else f"{m:g} min ({m / 60:.1f} h)"
 
 
-def _md_escape(value: Any) -> str:
-    """Every value printed into Markdown: shown as typed, never as markup or a new table cell."""
-    if value is None:
-        return ""
-    text = str(value)
-    for a, b in (("&", "&amp;"), ("<", "&lt;"), (">", "&gt;"), ("|", "\\|"),
-                 ("\r\n", " "), ("\n", " "), ("\r", " ")):
-        text = text.replace(a, b)
-    return text
-
-
 @lru_cache(maxsize=2)
 def _environment(fmt: str) -> Any:
-    from jinja2 import Environment, FileSystemLoader, StrictUndefined
+    from diagnose.text import templates
 
-    options: dict[str, Any] = {"autoescape": fmt == "html"}
-    if fmt == "md":
-        options["finalize"] = _md_escape
-    env = Environment(loader=FileSystemLoader(str(_TEMPLATES)), undefined=StrictUndefined,
-                      trim_blocks=True, lstrip_blocks=True, keep_trailing_newline=True,
-                      **options)
-    env.filters.update(when=when, number=number, percent=percent, minutes=minutes)
-    return env
+    return templates(str(_TEMPLATES), fmt, when=when, number=number, percent=percent,
+                     minutes=minutes)

@@ -52,6 +52,7 @@ from pathlib import Path
 from typing import Any
 
 from diagnose.errors import JournalError
+from diagnose.text import storable
 
 SCHEMA_VERSION = 1
 APPLICATION_ID = 0x44474E4A  # "DGNJ": marks the file as a diagnose journal
@@ -493,7 +494,8 @@ class Journal:
             conn.execute(
                 "INSERT INTO session (id, pack_id, pack_version, content_hash, mode, who, "
                 "started, updated, learned) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)",
-                (sid, pack_id, pack_version, content_hash, mode, who, when, when, learned))
+                (sid, pack_id, pack_version, content_hash, mode,
+                 None if who is None else storable(who), when, when, learned))
         return sid
 
     def write(self, session_id: str, event: Any, *, ranking: Any = None) -> int:
@@ -511,6 +513,7 @@ class Journal:
         """
         kind, data, when = _event_fields(event)
         payload = json.dumps(data, ensure_ascii=False, separators=(",", ":"))
+        payload = storable(payload)
         ranked = None if ranking is None else json.dumps(to_jsonable(ranking),
                                                          separators=(",", ":"))
         with self._transaction() as conn:

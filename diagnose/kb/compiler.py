@@ -16,8 +16,8 @@ from diagnose.errors import InputError, Problem, Source
 from diagnose.kb.model import (
     UNKNOWN_CAUSE,
     Case,
-    Caution,
     Cause,
+    Caution,
     Check,
     Complaint,
     Gate,
@@ -32,6 +32,7 @@ from diagnose.kb.model import (
 )
 from diagnose.kb.schema import SECTIONS, pack_schema
 from diagnose.kb.yamlpos import Document, Path
+from diagnose.text import short_values
 
 SUM_TOLERANCE = 0.001
 _NOUN = {
@@ -62,10 +63,10 @@ class _Ctx:
     extensions: list[_Item] = field(default_factory=list)  # `extend_checks` entries
 
     def error(self, msg: str, src: Source | None, code: str) -> None:
-        self.problems.append(Problem("error", msg, src, code))
+        self.problems.append(Problem("error", short_values(msg), src, code))
 
     def warn(self, msg: str, src: Source | None, code: str) -> None:
-        self.problems.append(Problem("warning", msg, src, code))
+        self.problems.append(Problem("warning", short_values(msg), src, code))
 
     def ids(self, *sections: str) -> list[str]:
         out: list[str] = []
@@ -150,6 +151,8 @@ def _collect(sources: list[Any], ctx: _Ctx, schema: bool = True) -> None:
     for src in sources:
         for n, doc in enumerate(src.documents):
             bad = _schema_problems(doc, n == 0, ctx) if schema else set()
+            if schema:
+                _control_characters(doc, ctx)
             exts = doc.data.get("extend_checks") if isinstance(doc.data, dict) else None
             for i, raw in enumerate(exts if isinstance(exts, list) else []):
                 if isinstance(raw, dict) and isinstance(raw.get("check"), str):
@@ -166,6 +169,33 @@ def _collect(sources: list[Any], ctx: _Ctx, schema: bool = True) -> None:
                     item = _Item(section, raw["id"], raw, doc, (section, i), src.id,
                                  (section, i) not in bad)
                     _register(item, ctx)
+
+
+def _control_characters(doc: Any, ctx: _Ctx) -> None:
+    """An error at each text of ``doc`` (a value or a key) holding a control character.
+
+    A pack holds plain text: tab and newline are allowed, an escape sequence or
+    any other control character is not (it would act on the technician's
+    terminal; the faces show it as a placeholder, see :mod:`diagnose.text`).
+    """
+    from diagnose.text import unsafe
+
+    stack: list[tuple[tuple[Any, ...], Any]] = [((), doc.data)]
+    while stack:
+        path, value = stack.pop()
+        if isinstance(value, str):
+            found = unsafe(value)
+            if found:
+                ctx.error(f"control character {found} in text; a pack holds plain text (tab and "
+                          "newline are allowed)", doc.where(path), "control-character")
+        elif isinstance(value, dict):
+            for k, v in reversed(value.items()):
+                if isinstance(k, str) and unsafe(k):
+                    ctx.error(f"control character {unsafe(k)} in a key; a pack holds plain text",
+                              doc.where(path + (k,)), "control-character")
+                stack.append((path + (k,), v))
+        elif isinstance(value, list):
+            stack.extend((path + (i,), v) for i, v in reversed(list(enumerate(value))))
 
 
 def _register(item: _Item, ctx: _Ctx) -> None:

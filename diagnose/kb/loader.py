@@ -13,8 +13,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from diagnose.errors import KnowledgeError, Problem, Source
-from diagnose.kb.locate import MANIFEST, find_pack
+from diagnose.errors import InputError, KnowledgeError, Problem, Source
+from diagnose.kb.locate import MANIFEST, find_pack, find_pack_id, names_a_path
 from diagnose.kb.yamlpos import PACK_FILE_BYTES, Document, read_text, read_yaml
 
 if TYPE_CHECKING:
@@ -47,28 +47,32 @@ def read_pack(folder: Path) -> tuple[PackSource, list[Problem]]:
 
     Each file is read within the bounds of :mod:`diagnose.kb.yamlpos` (at most
     :data:`~diagnose.kb.yamlpos.PACK_FILE_BYTES`, no aliases, limited nesting).
+    A pack folder is closed: a file whose real path is outside the folder's
+    real path (a symbolic link out of it) is not read and is one error; the
+    other files are read. Sub-folders are not read. When the manifest cannot
+    be read, nothing else is.
     """
     problems: list[Problem] = []
     source = PackSource(id=folder.name, folder=display_path(folder))
     try:
+        root = os.path.realpath(folder)
         files = [folder / MANIFEST] + sorted(
             p for p in folder.iterdir()
             if p.suffix in (".yaml", ".yml") and p.name != MANIFEST and p.is_file()
         )
-    except OSError as exc:
-        problems.append(Problem("error", f"cannot read the folder: {exc.strerror}",
+    except (OSError, ValueError) as exc:
+        problems.append(Problem("error", f"cannot read the folder: {_reason(exc)}",
                                 Source(source.folder), "io"))
         return source, problems
     for f in files:
         shown = display_path(f)
-        try:
-            text = read_text(f, PACK_FILE_BYTES)
-        except UnicodeDecodeError:
-            problems.append(Problem("error", "not UTF-8 text", Source(shown), "yaml"))
+        text, problem = _read_inside(f, root, shown)
+        if problem is not None:
+            problems.append(problem)
+            if f.name == MANIFEST:
+                return source, problems
             continue
-        except OSError as exc:
-            problems.append(Problem("error", f"cannot read: {exc.strerror}", Source(shown), "io"))
-            continue
+        assert text is not None
         doc, found = read_yaml(text, shown)
         problems += found
         if doc is None:
@@ -79,6 +83,8 @@ def read_pack(folder: Path) -> tuple[PackSource, list[Problem]]:
         if not isinstance(doc.data, dict):
             problems.append(Problem("error", "a pack file must be a mapping of sections",
                                     doc.where(()), "schema"))
+            if f.name == MANIFEST:
+                return source, problems
             continue
         source.documents.append(doc)
     manifest = source.manifest
@@ -91,15 +97,65 @@ def read_pack(folder: Path) -> tuple[PackSource, list[Problem]]:
     return source, problems
 
 
+def _read_inside(path: Path, root: str, shown: str) -> tuple[str | None, Problem | None]:
+    """The text of ``path`` if its real path is inside ``root``, else the problem that stops it.
+
+    The real path is what is opened, so that the link cannot be changed between
+    the check and the read.
+    """
+    try:
+        real = os.path.realpath(path)
+        inside = os.path.commonpath([root, real]) == root
+    except (OSError, ValueError) as exc:
+        return None, Problem("error", f"cannot read: {_reason(exc)}", Source(shown), "io")
+    if not inside:
+        return None, Problem("error", "points outside the pack folder; a pack reads only its "
+                                      "own files", Source(shown), "outside")
+    try:
+        return read_text(real, PACK_FILE_BYTES), None
+    except UnicodeDecodeError:
+        return None, Problem("error", "not UTF-8 text; save the file as UTF-8", Source(shown),
+                             "yaml")
+    except OSError as exc:
+        return None, Problem("error", f"cannot read: {_reason(exc)}", Source(shown), "io")
+
+
+def _reason(exc: Exception) -> str:
+    return getattr(exc, "strerror", None) or str(exc) or type(exc).__name__
+
+
 def read_chain(ref: str, search: list[str] | None = None) -> tuple[list[PackSource], list[Problem]]:
-    """The pack ``ref`` and every pack it builds on, base packs first."""
+    """The pack ``ref`` and every pack it builds on, base packs first.
+
+    ``ref`` may be a folder or an id; the entries of ``builds_on`` are ids only,
+    found on the search path before anything of the base pack is read. An
+    entry written as a path, or listed twice, is an error at its place and is
+    not followed; each pack folder is read once, however often it is named.
+    """
     problems: list[Problem] = []
     order: list[PackSource] = []
     done: set[str] = set()
+    read: dict[str, PackSource] = {}
+    found: dict[str, Path | InputError] = {}
+
+    def load(folder: Path) -> PackSource:
+        key = os.path.realpath(folder)
+        if key not in read:
+            src, more = read_pack(folder)
+            problems.extend(more)
+            read[key] = src
+        return read[key]
+
+    def resolve(base: str) -> Path | InputError:
+        if base not in found:
+            try:
+                found[base] = find_pack_id(base, search)
+            except InputError as exc:
+                found[base] = exc
+        return found[base]
 
     def visit(folder: Path, trail: tuple[str, ...]) -> None:
-        src, found = read_pack(folder)
-        problems.extend(found)
+        src = load(folder)
         if src.id in trail:
             cycle = " -> ".join(trail + (src.id,))
             problems.append(Problem("error", f"packs build on each other in a circle: {cycle}",
@@ -108,15 +164,26 @@ def read_chain(ref: str, search: list[str] | None = None) -> tuple[list[PackSour
         if src.id in done:
             return
         bases = src.manifest.get("builds_on") or []
+        first: dict[str, int] = {}
         for i, base in enumerate(bases if isinstance(bases, list) else []):
             if not isinstance(base, str):
+                continue  # the schema says what an entry must be
+            where = src.documents[0].where(("builds_on", i))
+            if names_a_path(base):
+                problems.append(Problem("error", f"builds_on names a pack by its id, not a path: "
+                                                 f"{_quoted(base)}", where, "builds-on"))
                 continue
-            try:
-                base_folder = find_pack(base, search)
-            except Exception as exc:  # InputError: an unknown pack id
-                where = src.documents[0].where(("builds_on", i)) if src.documents else None
-                problems.append(Problem("error", f"builds_on: {getattr(exc, 'message', exc)}",
-                                        where, "builds-on"))
+            if base in first:
+                was = src.documents[0].where(("builds_on", first[base]))
+                problems.append(Problem("error", f"builds_on lists {_quoted(base)} twice (first "
+                                                 f"at line {was.line}, column {was.col}); a pack "
+                                                 "is built on once", where, "builds-on"))
+                continue
+            first[base] = i
+            base_folder = resolve(base)
+            if isinstance(base_folder, InputError):
+                problems.append(Problem("error", f"builds_on: {base_folder.message}", where,
+                                        "builds-on"))
                 continue
             visit(base_folder, trail + (src.id,))
         if src.id not in done:
@@ -125,6 +192,13 @@ def read_chain(ref: str, search: list[str] | None = None) -> tuple[list[PackSour
 
     visit(find_pack(ref, search), ())
     return order, problems
+
+
+def _quoted(text: str, limit: int = 60) -> str:
+    """``text`` quoted, and cut short with its length when it is long."""
+    if len(text) <= limit:
+        return repr(text)
+    return f"{text[:limit]!r}... ({len(text):,} characters)"
 
 
 def _manifest_where(src: PackSource, key: str) -> Source | None:
@@ -140,7 +214,22 @@ def check_pack(ref: str, *, search: list[str] | None = None,
     if any(p.level == "error" and p.code in ("yaml", "io", "manifest") for p in problems):
         return None, problems
     model, more = compile_sources(sources, learned=learned)
-    return model, problems + more
+    return model, problems + _not_again(more, problems)
+
+
+def _not_again(more: list[Problem], found: list[Problem]) -> list[Problem]:
+    """``more`` without the schema's findings on ``builds_on`` entries already reported in ``found``.
+
+    An entry written as a path or listed twice is reported once, by
+    :func:`read_chain`, at its place; the schema would say it again (a pattern
+    it does not match, a list with an item twice).
+    """
+    said = {p.source for p in found if p.code == "builds-on" and p.source is not None
+            and p.message.startswith(("builds_on names", "builds_on lists"))}
+    twice = any(p.code == "builds-on" and p.message.startswith("builds_on lists") for p in found)
+    return [p for p in more if not (
+        p.code == "schema" and p.message.startswith("`builds_on")
+        and (p.source in said or (twice and p.message.endswith("has non-unique elements"))))]
 
 
 def load_model(ref: str, *, search: list[str] | None = None,

@@ -1183,9 +1183,9 @@ def _message(exc: InputError) -> str:
 # --- entry points ---------------------------------------------------------------------------
 
 def _console() -> Any:
-    from rich.console import Console
+    from diagnose.text import console
 
-    return Console(highlight=False)
+    return console()
 
 
 def _reader(console: Any, holder: list[Shell]) -> Any:

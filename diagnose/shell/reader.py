@@ -1,7 +1,8 @@
 """Where the shell's answers come from: a terminal (prompt_toolkit) or lines of text.
 
 Both readers have one method, ``ask(message, state, default="")``, which
-returns the line typed (without its newline) and raises ``EOFError`` at the
+returns the line typed (without its newline, its control characters shown
+as placeholders by :func:`diagnose.text.clean`) and raises ``EOFError`` at the
 end of the input (Ctrl-D) and ``KeyboardInterrupt`` on Ctrl-C where the
 terminal does not clear the line itself. ``state`` is what the completer
 offers at that question.
@@ -16,6 +17,7 @@ from pathlib import Path
 from typing import IO, Any
 
 from diagnose.shell.complete import CompletionState
+from diagnose.text import clean
 
 HISTORY_FILE = "history"
 
@@ -80,7 +82,7 @@ class PromptReader:
                                   "complete_while_typing": True, "default": default}
         if self.toolbar is not None:
             kwargs["bottom_toolbar"] = self.toolbar
-        return str(self.session.prompt(message, **kwargs))
+        return clean(self.session.prompt(clean(message), **kwargs))
 
 
 class LineReader:
@@ -98,6 +100,7 @@ class LineReader:
         line = self.stream.readline()
         if not line:
             raise EOFError
-        line = line.rstrip("\r\n")
-        self.console.print(f"{message}{line}", markup=False, highlight=False, soft_wrap=True)
+        line = clean(line.rstrip("\r\n"))
+        self.console.print(f"{clean(message)}{line}", markup=False, highlight=False,
+                           soft_wrap=True)
         return line

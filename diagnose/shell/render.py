@@ -12,8 +12,14 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any, NamedTuple
 
+from diagnose.text import clean
+
 #: Width of the probability bars in the ranking, in characters.
 BAR_WIDTH = 20
+#: Columns the ranking keeps for the number, the name and the percentage before any bar;
+#: a bar narrower than MIN_BAR is left out (a terminal under 40 columns shows names only).
+NAME_ROOM = 33
+MIN_BAR = 7
 #: How many causes the ranking shows unless asked for more.
 TOP = 5
 #: "None of the known causes" is shown when it is at least this likely, or in the top rows.
@@ -106,17 +112,23 @@ class RankingView:
         from rich.text import Text
 
         table = Table(show_header=False, box=None, pad_edge=False, padding=(0, 1),
-                      title=self.title, title_justify="left", title_style="bold")
+                      title=clean(self.title), title_justify="left", title_style="bold")
+        # The names come first: the bars take what is left beyond NAME_ROOM, or go.
+        width = min(BAR_WIDTH, options.max_width - NAME_ROOM)
+        bars = width >= MIN_BAR
         table.add_column("n", justify="right", no_wrap=True, width=2)
         table.add_column("cause", overflow="fold", ratio=1)
-        table.add_column("bar", no_wrap=True, width=BAR_WIDTH)
+        if bars:
+            table.add_column("bar", no_wrap=True, width=width)
         table.add_column("p", justify="right", no_wrap=True, width=4)
         for i, row in enumerate(self.shown(), 1):
             is_unknown = self.unknown is not None and row is self.unknown
             style = "dim italic" if is_unknown else ("bold" if i == 1 else "")
-            table.add_row("" if is_unknown else str(i), Text(row.title, style=style),
-                          Text(bar(row.probability), style="cyan" if not is_unknown else "dim"),
-                          percent(row.probability))
+            cells = ["" if is_unknown else str(i), Text(clean(row.title), style=style)]
+            if bars:
+                cells.append(Text(bar(row.probability, width),
+                                  style="cyan" if not is_unknown else "dim"))
+            table.add_row(*cells, percent(row.probability))
         yield table
 
 
@@ -147,7 +159,7 @@ class CautionView:
                     style=_LEVEL_STYLE.get(self.level, "bold"))
         if self.reminder:
             line.append(" (acknowledged, still applies)", style="dim")
-        line.append(f"  {self.text}")
+        line.append(f"  {clean(self.text)}")
         if self.brief and not self.reminder:
             line = _clip(line, console, options.max_width, 1)
         yield line
@@ -273,7 +285,7 @@ class _CardLayout:
         if self.why and "no_why" not in cut:
             why = Text()
             why.append("Why: ", style="bold")
-            why.append(self.why)
+            why.append(clean(self.why))
             if compact:
                 why = _clip(why, console, inner, 1 if "why" in cut else WHY_LINES)
             parts.append(why)
@@ -284,12 +296,12 @@ class _CardLayout:
                                   style="italic"))
         else:
             if self.instructions:
-                parts.append(Text(self.instructions, style="bold"))
+                parts.append(Text(clean(self.instructions), style="bold"))
             if self.hint:
-                hint = Text(self.hint, style="dim")
+                hint = Text(clean(self.hint), style="dim")
                 parts.append(_clip(hint, console, inner, 1) if "hint" in cut else hint)
-        return Panel(Group(*parts), title=self.title, title_align="left",
-                     subtitle=self.subtitle, subtitle_align="right", expand=True)
+        return Panel(Group(*parts), title=Text(clean(self.title)), title_align="left",
+                     subtitle=Text(clean(self.subtitle)), subtitle_align="right", expand=True)
 
     def fact_lines(self, console: Any, inner: int, cut: frozenset[str] | None) -> list[Any]:
         """The labelled facts, a line of text each (they wrap unless ``cut`` shortens them)."""
@@ -301,7 +313,7 @@ class _CardLayout:
             for i, fact in enumerate(line):
                 text.append(("   " if i else "") + f"{fact.label}: ", style="bold")
                 folded = cut is not None and "fixes" in cut and fact.label == "Fixes"
-                text.append(fact.folded if folded and fact.folded else fact.value)
+                text.append(clean(fact.folded if folded and fact.folded else fact.value))
             labels = {fact.label for fact in line}
             if cut is not None and ("facts" in cut or ("parts" in cut and "Parts" in labels)):
                 text = _clip(text, console, inner, 1)
@@ -386,10 +398,11 @@ class InstructionsView:
         from rich.text import Text
 
         parts: list[Any] = list(self.cautions)
-        parts.append(Text(self.text or "(no instructions in the pack)", style="bold"))
+        parts.append(Text(clean(self.text) or "(no instructions in the pack)", style="bold"))
         if self.hint:
-            parts.append(Text(self.hint, style="dim"))
-        yield Panel(Group(*parts), title=f"Do: {self.title}", title_align="left", expand=True)
+            parts.append(Text(clean(self.hint), style="dim"))
+        yield Panel(Group(*parts), title=Text(f"Do: {clean(self.title)}"), title_align="left",
+                    expand=True)
 
 
 @dataclass(frozen=True)
@@ -407,9 +420,11 @@ class CautionsView:
     def __rich_console__(self, console: Any, options: Any) -> Any:
         from rich.console import Group
         from rich.panel import Panel
+        from rich.text import Text
 
-        yield Panel(Group(*compact_cautions(self.cautions)), title=self.title,
-                    title_align="left", subtitle=self.subtitle, subtitle_align="right",
+        yield Panel(Group(*compact_cautions(self.cautions)), title=Text(clean(self.title)),
+                    title_align="left", subtitle=Text(clean(self.subtitle)),
+                    subtitle_align="right",
                     expand=True)
 
 
@@ -476,7 +491,7 @@ class NoticeView:
         from rich.panel import Panel
         from rich.text import Text
 
-        yield Panel(Text(self.text), title="Safety notice", title_align="left",
+        yield Panel(Text(clean(self.text)), title="Safety notice", title_align="left",
                     border_style="yellow")
 
 
@@ -495,12 +510,12 @@ class EndView:
         from rich.panel import Panel
         from rich.text import Text
 
-        body: list[Any] = [Text(self.headline, style="bold")]
-        body += [Text(d) for d in self.details if d]
+        body: list[Any] = [Text(clean(self.headline), style="bold")]
+        body += [Text(clean(d)) for d in self.details if d]
         if self.parts:
-            body.append(Text("Parts to bring: " + "; ".join(self.parts)))
+            body.append(Text("Parts to bring: " + clean("; ".join(self.parts))))
         if self.log:
-            body.append(Text(f"Repair log: {self.log}"))
+            body.append(Text(f"Repair log: {clean(self.log)}"))
         style = "green" if self.outcome == "cured" else "yellow"
         yield Panel(Group(*body), title="Result", title_align="left", border_style=style)
 
@@ -520,7 +535,7 @@ class HelpView:
         table.add_column("command", style="bold", no_wrap=True)
         table.add_column("help", overflow="fold")
         for name, text in self.rows:
-            table.add_row(name, text)
+            table.add_row(Text(clean(name)), Text(clean(text)))
         yield table
         for line in self.extra:
-            yield Text(line)
+            yield Text(clean(line))
