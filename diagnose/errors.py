@@ -17,10 +17,14 @@ class InputError(DiagnoseError):
     """A value a person typed or passed is not usable.
 
     ``field`` names the input (a calculator option, a nameplate parameter,
-    a check id) so that the message can say which one is wrong.
+    a check id) so that the message can say which one is wrong. A quoted
+    value longer than 80 characters in the message is cut, with its length.
     """
 
     def __init__(self, field: str, message: str) -> None:
+        from diagnose.text import short_values
+
+        field, message = short_values(field), short_values(message)
         super().__init__(f"{field}: {message}")
         self.field = field
         self.message = message

@@ -111,7 +111,7 @@ def excerpt(text: Any, limit: int = 80) -> str:
 
 
 #: A quoted value (a Python repr in single or double quotes) in a message.
-_QUOTED = r"'(?:[^'\\\n]|\\.){%d,}'" + r'|"(?:[^"\\\n]|\\.){%d,}"'
+_QUOTED = r"(?<![\w'\"])(?:'(?:[^'\\\n]|\\.){%d,}'|\"(?:[^\"\\\n]|\\.){%d,}\")(?!\w)"
 
 
 def short_values(message: str, limit: int = 80) -> str:
@@ -122,6 +122,8 @@ def short_values(message: str, limit: int = 80) -> str:
 
     >>> short_values("'" + "x" * 100 + "' is not a known check", 8)
     "'xxxxxxxx…' (102 characters) is not a known check"
+    >>> short_values("no pack 'ab' (known: " + "p, " * 40 + "q); did you mean 'a'?", 8)[-30:]
+    "p, p, p, q); did you mean 'a'?"
     """
     rx = re.compile(_QUOTED % (limit + 1, limit + 1))
     return rx.sub(lambda m: f"{m.group()[:limit + 1]}…{m.group()[0]} "

@@ -26,6 +26,10 @@ resource = pytest.importorskip("resource")  # POSIX only: the limits below need 
 
 MINI = Path(__file__).parent / "fixtures" / "mini"
 WALL_SECONDS = 2.0
+# The address-space limit measures memory only with one malloc arena: glibc reserves 64 MB
+# of address space for each thread's arena, and under the limit a second arena fails and
+# malloc keeps retrying (the shell loads its pack on a thread while the notice is read).
+# One numeric thread for the same reason.
 ADDRESS_SPACE = 200 * 1024 * 1024
 CPU_SECONDS = 5
 
@@ -34,6 +38,38 @@ def _limits() -> None:
     """Run in the child before exec: bounded memory and CPU time."""
     resource.setrlimit(resource.RLIMIT_AS, (ADDRESS_SPACE, ADDRESS_SPACE))
     resource.setrlimit(resource.RLIMIT_CPU, (CPU_SECONDS, CPU_SECONDS))
+
+
+#: A child that sets the limits on itself, then becomes ``python -m diagnose ARGS``; for
+#: spawners that cannot run code before exec (a pseudo-terminal).
+_EXEC_LIMITED = (
+    "import os, resource, sys\n"
+    "os.environ.update(MALLOC_ARENA_MAX='1', OPENBLAS_NUM_THREADS='1', OMP_NUM_THREADS='1')\n"
+    f"resource.setrlimit(resource.RLIMIT_AS, ({ADDRESS_SPACE}, {ADDRESS_SPACE}))\n"
+    f"resource.setrlimit(resource.RLIMIT_CPU, ({CPU_SECONDS}, {CPU_SECONDS}))\n"
+    "os.execv(sys.executable, [sys.executable, '-m', 'diagnose', *sys.argv[1:]])\n"
+)
+
+
+def limited_argv(*argv: str) -> list[str]:
+    """The argv of ``python -m diagnose ARGV`` under the limits, for any spawner."""
+    return [sys.executable, "-c", _EXEC_LIMITED, *argv]
+
+
+class CpuBudget:
+    """``with CpuBudget("what"):`` fails the test when children reaped inside used 2 s of CPU."""
+
+    def __init__(self, what: str) -> None:
+        self.what = what
+
+    def __enter__(self) -> CpuBudget:
+        self.before = resource.getrusage(resource.RUSAGE_CHILDREN)
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        after = resource.getrusage(resource.RUSAGE_CHILDREN)
+        cpu = (after.ru_utime - self.before.ru_utime) + (after.ru_stime - self.before.ru_stime)
+        assert cpu < WALL_SECONDS, f"{self.what} used {cpu:.1f} s of CPU"
 
 
 def wall_seconds() -> float:
@@ -50,7 +86,8 @@ def diagnose(*argv: str, env: Mapping[str, str] | None = None,
     the child gets.
     """
     child = {k: v for k, v in os.environ.items() if k not in ("DIAGNOSE_PACKS", "FORCE_COLOR")}
-    child.update(OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", NO_COLOR="1", COLUMNS="100")
+    child.update(OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", NO_COLOR="1", COLUMNS="100",
+                 MALLOC_ARENA_MAX="1")
     journal = None
     if "DIAGNOSE_JOURNAL" not in (env or {}) and "--journal" not in argv:
         journal = Path(tempfile.mkdtemp(prefix="hostile-")) / "journal.sqlite3"

@@ -28,11 +28,12 @@ import os
 import re
 import shutil
 import subprocess
-import sys
+import time
 from pathlib import Path
 
 import pytest
 import yaml
+from hostile import CpuBudget, limited_argv
 
 from diagnose.kb.compiler import compile_sources
 from diagnose.kb.loader import read_chain
@@ -67,7 +68,8 @@ FOREIGN = {
 def assert_no_foreign_escapes(out: bytes, where: str) -> None:
     for what, rx in FOREIGN.items():
         m = rx.search(out)
-        assert m is None, f"{where}: {what} at byte {m.start()}: {out[max(0, m.start() - 60):m.end() + 60]!r}"
+        assert m is None, (f"{where}: {what} at byte {m.start()}: "
+                           f"{out[max(0, m.start() - 60):m.end() + 60]!r}")
 
 
 def assert_shown_cleaned(out: bytes, where: str) -> None:
@@ -160,8 +162,9 @@ def hostile_pack(tmp_path: Path) -> Path:
 
 
 def _lint(folder: Path) -> tuple[int, list[str]]:
-    proc = subprocess.run([sys.executable, "-m", "diagnose", "kb", "lint", str(folder)],
-                          capture_output=True, timeout=60)
+    with CpuBudget("diagnose kb lint"):
+        proc = subprocess.run(limited_argv("kb", "lint", str(folder)), capture_output=True,
+                              timeout=60)
     assert_no_foreign_escapes(proc.stdout + proc.stderr, "kb lint")
     return proc.returncode, proc.stdout.decode().splitlines()
 
@@ -229,6 +232,7 @@ def test_every_card_of_a_whole_diagnosis_on_hostile_pack_text(hostile_pack):
 def _env(tmp_path: Path) -> dict[str, str]:
     env = {k: v for k, v in os.environ.items() if k not in ("NO_COLOR", "FORCE_COLOR")}
     env.update(TERM="xterm-256color", COLUMNS="80", LINES="24", COLORTERM="truecolor",
+               OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", MALLOC_ARENA_MAX="1",
                DIAGNOSE_JOURNAL=str(tmp_path / "journal.sqlite3"),
                XDG_STATE_HOME=str(tmp_path / "state"))
     return env
@@ -237,24 +241,31 @@ def _env(tmp_path: Path) -> dict[str, str]:
 def _terminal(args: list[str], tmp_path: Path, typed: list[str] = ()) -> bytes:
     """Every byte ``python -m diagnose ARGS`` writes to an 80x24 pseudo-terminal."""
     pexpect = pytest.importorskip("pexpect")
-    child = pexpect.spawn(sys.executable, ["-m", "diagnose", *args], env=_env(tmp_path),
-                          dimensions=(24, 80), timeout=60, cwd=str(tmp_path))
+    argv = limited_argv(*args)
     out = bytearray()
     pending = list(typed)
-    while True:
-        try:
-            chunk = child.read_nonblocking(65536, timeout=1.0)
-        except pexpect.TIMEOUT:
-            if not pending:
+    with CpuBudget(f"diagnose {' '.join(args[:2])} in a terminal"):
+        # echo=False: what is typed ahead is not echoed by the terminal itself (which shows
+        # a C1 byte raw); prompt_toolkit draws the line being edited.
+        child = pexpect.spawn(argv[0], argv[1:], env=_env(tmp_path), dimensions=(24, 80),
+                              timeout=60, cwd=str(tmp_path), echo=False)
+        deadline = time.monotonic() + 60
+        while True:
+            try:
+                chunk = child.read_nonblocking(65536, timeout=1.0)
+            except pexpect.TIMEOUT:  # quiet: busy, or waiting for what is typed next
+                if time.monotonic() > deadline:
+                    raise AssertionError(f"diagnose {args[0]} still runs: {bytes(out)[-300:]!r}")
+                if pending:
+                    child.send(pending.pop(0) + "\r")
+                continue
+            except pexpect.EOF:
                 break
-            child.send(pending.pop(0) + "\r")
-            continue
-        except pexpect.EOF:
-            break
-        out += chunk
-        for _ in range(chunk.count(b"\x1b[6n")):  # answer "where is the cursor?"
-            child.send("\x1b[1;1R")
-    child.close(force=True)
+            out += chunk
+            for _ in range(chunk.count(b"\x1b[6n")):  # answer "where is the cursor?"
+                child.send("\x1b[1;1R")
+        child.close()
+    assert child.signalstatus is None, f"diagnose {args[0]} ended by signal {child.signalstatus}"
     return bytes(out)
 
 
@@ -268,8 +279,8 @@ def hostile_session(tmp_path: Path) -> str:
         "steps": [{"check": "coil_resistance", "answer": "3.2 ohm"}],
         "notes": [HOSTILE],
     }, allow_unicode=False), encoding="utf-8")
-    proc = subprocess.run([sys.executable, "-m", "diagnose", "run", str(SHELL_PACK),
-                           "--answers", str(answers), "--who", HOSTILE, "--json"],
+    proc = subprocess.run(limited_argv("run", str(SHELL_PACK),
+                           "--answers", str(answers), "--who", HOSTILE, "--json"),
                           capture_output=True, env=_env(tmp_path), timeout=60)
     assert proc.returncode == 0, proc.stderr[-500:]
     assert_no_foreign_escapes(proc.stdout + proc.stderr, "run --json")
@@ -316,15 +327,15 @@ def test_terminal_bytes_of_the_shell_on_a_hostile_session(hostile_session, tmp_p
 
 def test_markdown_and_html_logs_of_a_hostile_session(hostile_session, tmp_path):
     env = _env(tmp_path)
-    md_log = subprocess.run([sys.executable, "-m", "diagnose", "report", hostile_session],
+    md_log = subprocess.run(limited_argv("report", hostile_session),
                             capture_output=True, env=env, timeout=60).stdout.decode()
     assert "\x1b" not in md_log and "\x9b" not in md_log
     assert not re.search(r"(?<!\\)\]\(", md_log), "a link or an image: `](` unescaped"
     for raw in ("<script>", "**e**"):
         assert raw not in md_log, raw
     assert "␛\\]0;PWN-TITLE" in md_log and "&lt;script&gt;" in md_log
-    html_log = subprocess.run([sys.executable, "-m", "diagnose", "report", hostile_session,
-                               "--format", "html"], capture_output=True, env=env,
+    html_log = subprocess.run(limited_argv("report", hostile_session,
+                               "--format", "html"), capture_output=True, env=env,
                               timeout=60).stdout.decode()
     assert "\x1b" not in html_log and "<script>s" not in html_log
     assert "&lt;script&gt;" in html_log
@@ -346,17 +357,17 @@ def test_output_the_terminal_cannot_encode_is_replaced_not_a_traceback(env, tmp_
                  ["sessions"], ["kb", "show", "spring-applied-brake"],
                  ["calc", "coil", "--rated-voltage", "24", "--rated-power", "20",
                   "--measured", "29.1 Ω"]):
-        proc = subprocess.run([sys.executable, "-m", "diagnose", *args], capture_output=True,
+        proc = subprocess.run(limited_argv(*args), capture_output=True,
                               env=full, timeout=60)
         assert b"Traceback" not in proc.stderr + proc.stdout, (args, proc.stderr[-400:])
         assert proc.returncode in (0, 2), (args, proc.returncode, proc.stderr[-300:])
         assert proc.stdout.isascii(), args
-    listed = subprocess.run([sys.executable, "-m", "diagnose", "sessions", "--json"],
+    listed = subprocess.run(limited_argv("sessions", "--json"),
                             capture_output=True, env=full, timeout=60)
     sessions = json.loads(listed.stdout)
     assert len(sessions) == 1 and sessions[0]["status"] == "closed", sessions
     assert sessions[0]["who"] == "Zoë Ω"  # the bytes of a UTF-8 terminal, read as UTF-8
-    report = subprocess.run([sys.executable, "-m", "diagnose", "report", sessions[0]["id"]],
+    report = subprocess.run(limited_argv("report", sessions[0]["id"]),
                             capture_output=True, env=full, timeout=60)
     assert report.returncode == 0 and b"Traceback" not in report.stderr
     assert report.stdout.isascii() and b"Zo? ?" in report.stdout
@@ -366,13 +377,13 @@ def test_output_the_terminal_cannot_encode_is_replaced_not_a_traceback(env, tmp_
 def test_a_run_whose_output_fails_closes_its_session(tmp_path):
     env = _env(tmp_path)
     with open("/dev/full", "w") as full:
-        proc = subprocess.run([sys.executable, "-m", "diagnose", "run", "spring-applied-brake",
-                               "--answers", str(EXAMPLE)], stdout=full, stderr=subprocess.PIPE,
+        proc = subprocess.run(limited_argv("run", "spring-applied-brake",
+                               "--answers", str(EXAMPLE)), stdout=full, stderr=subprocess.PIPE,
                               env=env, timeout=60)
     err = proc.stderr.decode().strip()
     assert proc.returncode == 1 and len(err.splitlines()) == 1, err
     assert "No space left on device" in err and "Traceback" not in err
-    listed = subprocess.run([sys.executable, "-m", "diagnose", "sessions", "--json"],
+    listed = subprocess.run(limited_argv("sessions", "--json"),
                             capture_output=True, env=env, timeout=60)
     (info,) = json.loads(listed.stdout)
     assert info["status"] == "closed" and info["outcome"] == "abandoned", info
