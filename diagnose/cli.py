@@ -1,7 +1,9 @@
 """The command line: argparse subcommands over the library, nothing more.
 
-Each group of subcommands lives in ``diagnose/commands/<group>.py`` with a
-``register(subparsers)`` function; a handler returns an exit status. Domain
+Each group of subcommands lives in a face's module with a
+``register(subparsers)`` function (``diagnose/commands/<group>.py``, and
+``diagnose/shell/cli.py`` for the shell's `start` and `resume`); a handler
+returns an exit status. This is the one module that names every face. Domain
 errors become one line on stderr: exit 2 for bad input, 1 for a broken pack
 or journal. No traceback reaches a user: a bug is one line too (exit 70),
 unless ``DIAGNOSE_DEBUG`` is set. Output that the terminal's encoding cannot
@@ -18,7 +20,8 @@ from importlib import import_module
 from diagnose import __version__
 
 # Order is the order in --help.
-_GROUPS = ("start", "run", "calc", "kb", "simulate", "journal")
+_GROUPS = ("diagnose.shell.cli", "diagnose.commands.run", "diagnose.commands.calc",
+           "diagnose.commands.kb", "diagnose.commands.simulate", "diagnose.commands.journal")
 
 EXIT_OK, EXIT_FAIL, EXIT_USAGE = 0, 1, 2
 #: Exit status of a bug caught at the top (EX_SOFTWARE of BSD sysexits.h).
@@ -52,13 +55,7 @@ def build_parser() -> argparse.ArgumentParser:
                         help="ignore priors learned from closed repairs")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for group in _GROUPS:
-        try:
-            module = import_module(f"diagnose.commands.{group}")
-        except ModuleNotFoundError as exc:  # a group not built yet
-            if exc.name != f"diagnose.commands.{group}":
-                raise
-            continue
-        module.register(sub)
+        import_module(group).register(sub)
     return parser
 
 
@@ -87,13 +84,9 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
     handler = getattr(args, "handler", None)
     if handler is None:
-        start = getattr(args, "default_handler", None)
-        try:
-            from diagnose.commands import start as start_mod
-        except ModuleNotFoundError:
-            parser.print_help()
-            return EXIT_OK
-        handler = start or start_mod.default
+        from diagnose.shell.cli import default
+
+        handler = default
     try:
         return int(handler(args) or 0)
     except InputError as exc:

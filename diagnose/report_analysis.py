@@ -41,7 +41,7 @@ def write_analysis(analysis: Any, path: str | Path, fmt: str | None = None, *,
     Raises:
         InputError: unknown format, or the file is refused or cannot be written.
     """
-    from diagnose.journal.paths import writable_target, write_text_atomically
+    from diagnose.paths import writable_target, write_text_atomically
 
     path = Path(path)
     if fmt is None:

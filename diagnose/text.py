@@ -223,6 +223,21 @@ def _utf8(stream: Any) -> bool:
     return encoding.lower().replace("-", "").replace("_", "") in ("utf8", "utf8sig")
 
 
+def percent(p: float) -> str:
+    """A probability for people, the one way every face shows it: "62%", "<1%", ">99%".
+
+    >>> percent(0.623), percent(0.001), percent(0.9996), percent(0.0)
+    ('62%', '<1%', '>99%', '0%')
+    """
+    if p <= 0:
+        return "0%"
+    if p < 0.005:
+        return "<1%"
+    if p > 0.995 and p < 1:
+        return ">99%"
+    return f"{p:.0%}"
+
+
 def say(*parts: Any, file: IO[str] | None = None, sep: str = " ") -> None:
     """Print one line of plain text (a message, a list row) through :func:`clean`."""
     print(clean(sep.join(str(p) for p in parts)), file=file if file is not None else sys.stdout)

@@ -274,16 +274,7 @@ def test_command_line_unknown_rate_in_json(twins, capsys):
 
 
 # --- the real simulator -------------------------------------------------------------------
-def test_no_simulator_module_leaves_effort_null(monkeypatch):
-    import sys
-
-    monkeypatch.setitem(sys.modules, "diagnose.reasoning.simulate", None)  # import fails
-    e = analyze(_model(), complaint="stuck").complaints[0].effort
-    assert (e.available, e.expected_minutes, e.note) == (False, None, NO_SIMULATOR)
-
-
 def test_effort_from_the_simulator_on_the_complaints_own_causes():
-    pytest.importorskip("diagnose.reasoning.simulate")
     from diagnose.reasoning.analysis import complaint_model
     from diagnose.reasoning.synthetic import tiny_model
 

@@ -23,7 +23,7 @@ from test_journal_store import FIXTURES, MINI, mini_model, play
 from diagnose.cli import main
 from diagnose.errors import InputError, JournalError
 from diagnose.journal import store as store_mod
-from diagnose.journal.paths import writable_target
+from diagnose.paths import writable_target
 from diagnose.journal.store import DISK_FULL, Journal
 
 STEPS = [{"check": "listen_click", "answer": "silent"},

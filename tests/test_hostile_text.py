@@ -303,10 +303,14 @@ def test_terminal_bytes_of_kb_show_and_lint_on_a_hostile_pack(hostile_pack, tmp_
 def test_terminal_bytes_of_run_sessions_and_report(hostile_session, tmp_path):
     answers = tmp_path / "more.yaml"
     answers.write_text(yaml.safe_dump({"notes": [f"second {HOSTILE}"]}), encoding="utf-8")
+    journal = tmp_path / "journal.sqlite3"
     for args in (["sessions"], ["report", hostile_session],
                  ["report", hostile_session, "--format", "html"],
                  ["run", "--resume", hostile_session, "--answers", str(answers)]):
+        recorded = journal.read_bytes()
         out = _terminal(args, tmp_path)
+        if args[0] != "run":  # reading a hostile session changes nothing in the journal
+            assert journal.read_bytes() == recorded, args
         assert_no_foreign_escapes(out, " ".join(args[:1]))
         if args[0] == "report":
             assert_shown_cleaned(out, "report")
@@ -391,7 +395,7 @@ def test_a_run_whose_output_fails_closes_its_session(tmp_path):
 
 @pytest.mark.parametrize("width", [24, 30, 39])
 def test_a_narrow_terminal_shows_the_names_without_bars(width):
-    from diagnose.shell.render import RankingView, RankRow
+    from diagnose.views import RankingView, RankRow
 
     buf = io.StringIO()
     view = RankingView((RankRow("a", "Worn lining", 0.6), RankRow("b", "Open coil", 0.3)),

@@ -16,7 +16,7 @@ import pytest
 from diagnose.cli import main
 from diagnose.errors import JournalError
 from diagnose.journal import store as store_mod
-from diagnose.journal.paths import journal_path, overlay_path
+from diagnose.paths import journal_path, overlay_path
 from diagnose.journal.store import APPLICATION_ID, SCHEMA_VERSION, Journal
 
 FIXTURES = Path(__file__).parent / "fixtures"

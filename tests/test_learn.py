@@ -10,7 +10,7 @@ from test_journal_store import FIXTURES, mini_model, play
 from diagnose.cli import main
 from diagnose.errors import InputError, JournalError
 from diagnose.journal.learn import learn, learned_priors, overlay_for, read_overlay
-from diagnose.journal.paths import overlay_path
+from diagnose.paths import overlay_path
 from diagnose.journal.store import Journal
 
 CABLE = [{"repair": "replace_cable", "cured": True}]

@@ -174,7 +174,7 @@ def test_choices_and_flags():
 
 
 def test_importing_physics_does_not_import_pint():
-    code = ("import sys, diagnose.physics, diagnose.physics.coil, diagnose.commands.calc; "
-            "print('pint' in sys.modules, 'rich' in sys.modules)")
+    code = ("import sys, diagnose.physics, diagnose.physics.coil, diagnose.commands.calc, "
+            "diagnose.service.calc; print('pint' in sys.modules, 'rich' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.split() == ["False", "False"]

@@ -1,13 +1,10 @@
-"""How a verdict looks on screen (rich, 80 columns) and in JSON; the modules' doctests."""
+"""How a verdict looks on screen (rich, 80 columns) and in JSON."""
 
 from __future__ import annotations
 
-import doctest
-import importlib
 import io
 import json
 
-import pytest
 from rich.console import Console
 
 from diagnose.physics import evaluate
@@ -55,11 +52,3 @@ def test_make_figures_drops_infinite_and_missing_values():
     assert list(figs) == ["c"] and figs["c"].value == 0.3
 
 
-@pytest.mark.parametrize(
-    "module",
-    ["units", "inputs", "verdict", "copper", "coil", "supply", "rectifier", "cable", "gap",
-     "runout", "insulation", "temperature", "release", "stop", "soft"],
-)
-def test_doctests(module):
-    result = doctest.testmod(importlib.import_module(f"diagnose.physics.{module}"))
-    assert result.failed == 0

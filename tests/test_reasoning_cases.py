@@ -9,7 +9,7 @@ from pathlib import Path
 from rich.console import Console
 
 from diagnose.kb.model import Case, Step
-from diagnose.reasoning.cases import run_case, run_cases
+from diagnose.service.cases import run_case, run_cases
 from diagnose.reasoning.synthetic import tiny_model
 
 FIXTURES = Path(__file__).parent / "fixtures"

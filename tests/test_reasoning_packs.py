@@ -6,7 +6,7 @@ from pathlib import Path
 
 import pytest
 
-from diagnose.reasoning.cases import run_cases
+from diagnose.service.cases import run_cases
 from diagnose.reasoning.planner import next_action
 from diagnose.reasoning.posterior import posterior
 from diagnose.session import play_case

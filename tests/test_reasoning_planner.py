@@ -135,7 +135,7 @@ def test_vectorised_look_ahead_equals_re_sorting_after_each_outcome(model, max_f
         usable = rng.random(len(t.repair_ids)) < 0.8
         rcost = rng.uniform(5, 100, len(t.repair_ids))
         assign = assign_repairs(t, usable, rcost)
-        bits, eco, _ = lookahead(t, p, cand, ccost, assign, rcost, 120.0)
+        bits, eco, _ = lookahead(t, p, cand, ccost, assign, rcost, escalation=120.0)
         b2, e2 = _brute_lookahead(t, p, cand, ccost, assign, rcost, 120.0)
         assert np.allclose(bits, b2, atol=1e-9) and np.allclose(eco, e2, atol=1e-8)
 

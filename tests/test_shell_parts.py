@@ -22,7 +22,7 @@ from diagnose.shell.app import Shell, main, resume
 from diagnose.shell.complete import CompletionState, ShellCompleter, choose, matches
 from diagnose.shell.keys import load_shell_bindings
 from diagnose.shell.reader import LineReader, history_path
-from diagnose.shell.render import (
+from diagnose.views import (
     CautionView,
     CheckCard,
     EndView,
@@ -351,7 +351,7 @@ def test_phone_mode_ends_with_a_recommendation(model):
 
 
 def test_why_text_and_the_repair_card_in_phone_mode():
-    from diagnose.shell.render import why_text
+    from diagnose.views import why_text
 
     assert why_text(0.3, 2, phone=True).endswith("for a 2 min question (0.15 bits/min)")
     text = render(RepairCard("enable", "Enable the brake output", 5, label="The caller tries"))

@@ -33,7 +33,7 @@ def write_output(text: str, output: str | None, *, force: bool = False,
     if not output:
         sys.stdout.write(text)
         return
-    from diagnose.journal.paths import writable_target, write_text_atomically
+    from diagnose.paths import writable_target, write_text_atomically
 
     target = writable_target(output, journal=journal, force=force)
     write_text_atomically(target, text)

@@ -14,7 +14,7 @@ import argparse
 from typing import Any
 
 from diagnose.commands import add_output_arguments, output_options, write_output
-from diagnose.errors import InputError, JournalError
+from diagnose.errors import InputError
 from diagnose.text import clean, json_text, say
 
 
@@ -29,13 +29,6 @@ def register(sub: Any) -> None:
     p.add_argument("--pack", metavar="PACK", help="only the sessions of this pack id")
     p.add_argument("--json", action="store_true", help="a JSON list instead of a table")
     p.set_defaults(handler=_sessions)
-
-    p = sub.add_parser("resume", help="continue an open diagnosis where it stopped",
-                       description="Continue an open session in the shell, exactly where it "
-                       "stopped: its events are replayed from the journal and new ones are "
-                       "added to it. Without a terminal, answers are read from standard input.")
-    p.add_argument("session_id", metavar="ID", help="the session id (see `diagnose sessions`)")
-    p.set_defaults(handler=_resume)
 
     p = sub.add_parser("report", help="the repair log of a session (Markdown, HTML or JSON)",
                        description="Write the repair log of a session: unit, nameplate, "
@@ -83,56 +76,28 @@ def register(sub: Any) -> None:
 # --- helpers -------------------------------------------------------------------------------
 
 
-def _path(args: argparse.Namespace) -> Any:
-    from diagnose.journal.paths import journal_path
+def _where(args: argparse.Namespace) -> Any:
+    from diagnose.service import Where
 
-    return journal_path(getattr(args, "journal", None))
+    return Where.of(args)
+
+
+def _path(args: argparse.Namespace) -> Any:
+    from diagnose.service import journal_path
+
+    return journal_path(_where(args))
 
 
 def _reader(args: argparse.Namespace) -> Any:
-    """The journal opened for reading, or None when nothing was recorded there yet.
+    from diagnose.service import read_journal
 
-    A missing file, a 0-byte file and a journal never written to are alike:
-    no sessions. A damaged file raises ``JournalError``.
-    """
-    from diagnose.journal.store import Journal, inspect
-
-    path = _path(args)
-    if inspect(path) == 0:
-        return None
-    return Journal(path, readonly=True)
+    return read_journal(_where(args))
 
 
 def _need_reader(args: argparse.Namespace) -> Any:
-    journal = _reader(args)
-    if journal is None:
-        raise JournalError(f"there is no journal at {_path(args)} yet: nothing was recorded "
-                           "there (see --journal and DIAGNOSE_JOURNAL)")
-    return journal
+    from diagnose.service import need_journal
 
-
-def _model(args: argparse.Namespace, pack_id: str, *, learned: bool = False) -> Any:
-    """The pack a session ran on, or None when it cannot be loaded any more."""
-    from diagnose.errors import DiagnoseError
-    from diagnose.kb.loader import load_model
-
-    try:
-        if learned:
-            from diagnose.commands.kb import load
-
-            return load(args, pack_id)
-        return load_model(pack_id, search=args.packs)
-    except DiagnoseError:
-        return None
-
-
-def recorded_folder(events: list[Any]) -> str:
-    """The pack folder a session's notice recorded, while it is still there ("" if not)."""
-    from pathlib import Path
-
-    first = events[0].data if events and events[0].kind == "notice" else {}
-    folder = str(first.get("path") or "")
-    return folder if folder and Path(folder).is_dir() else ""
+    return need_journal(_where(args))
 
 
 # --- handlers ------------------------------------------------------------------------------
@@ -169,62 +134,26 @@ def _sessions(args: argparse.Namespace) -> int:
     return 0
 
 
-def _resume(args: argparse.Namespace) -> int:
-    from diagnose.journal.recorder import ensure_open
-
-    journal = _need_reader(args)
-    with journal:
-        info = journal.session(args.session_id)
-        journal.verify_events(info.id)
-    ensure_open(info)
-    try:
-        from diagnose.shell.app import resume
-    except ImportError:
-        resume = None
-    if resume is not None:
-        return int(resume(args, info.id) or 0)
-    return _resume_scripted(args, info.id)
-
-
-def _resume_scripted(args: argparse.Namespace, session_id: str) -> int:
-    """Without the shell: replay the session and say where it stands (read-only)."""
-    from diagnose.journal.recorder import resume_session
-    from diagnose.journal.store import Journal
-
-    with Journal(_path(args)) as journal:
-        model = _model(args, journal.session(session_id).pack_id, learned=True)
-        if model is None:
-            raise JournalError(f"the pack of session {session_id} cannot be loaded")
-        session = resume_session(journal, session_id, model)
-        action = session.next_action()
-        say(f"session {session_id}: {len(session.events)} event(s); next: {action.kind} "
-            f"{action.id or ''}".rstrip())
-    return 0
-
-
 def _report(args: argparse.Namespace) -> int:
     from diagnose.journal.record import session_record
     from diagnose.journal.report import render_report
+    from diagnose.service import recorded_events, report_pack
 
     with _need_reader(args) as journal:
         info = journal.session(args.session_id)
-        journal.verify_events(info.id)  # no log from an event altered by hand
-        model = _model(args, info.pack_id)
-        if model is None:  # a pack given by its folder: the folder its notice recorded
-            folder = recorded_folder(journal.load_events(info.id))
-            found = _model(args, folder) if folder else None
-            model = found if getattr(found, "id", None) == info.pack_id else None
-        record = session_record(journal, info.id, model)
+        events = recorded_events(journal, info.id)  # no log from an event altered by hand
+        choice = report_pack(info, events, _where(args))
+        record = session_record(journal, info.id, choice.model if choice else None)
     write_output(render_report(record, args.format), args.output, **output_options(args))
     return 0
 
 
 def _learn(args: argparse.Namespace) -> int:
     from diagnose.journal.learn import DEFAULT_WEIGHT, learn, write_overlay
-    from diagnose.journal.paths import overlay_path
-    from diagnose.kb.loader import load_model
+    from diagnose.paths import overlay_path
+    from diagnose.service import open_pack
 
-    model = load_model(args.pack, search=args.packs)  # the pack's own priors, never learned ones
+    model = open_pack(args.pack, _where(args).own())  # the pack's own priors, never learned
     weight = DEFAULT_WEIGHT if args.weight is None else args.weight
     if weight <= 0:
         raise InputError("--weight", "must be above 0")
@@ -252,7 +181,10 @@ def _stats(args: argparse.Namespace) -> int:
         result = Stats(pack=args.pack)
     else:
         with journal:
-            result = stats(journal, args.pack, lambda pid: _model(args, pid))
+            from diagnose.service import try_pack
+
+            own = _where(args).own()
+            result = stats(journal, args.pack, lambda pid: try_pack(pid, own))
     if args.json:
         print(json_text(result.to_dict(), indent=2))
         return 0

@@ -5,7 +5,6 @@ from __future__ import annotations
 import argparse
 import json
 import sys
-from importlib import import_module
 from typing import Any
 
 from diagnose.commands import add_output_arguments, output_options, write_output
@@ -50,14 +49,10 @@ def register(sub: Any) -> None:
     p = ks.add_parser("list", help="the packs on the search path")
     p.set_defaults(handler=_list)
 
-    try:
-        kb_quality = import_module("diagnose.commands.kb_quality")
-    except ModuleNotFoundError as exc:
-        if exc.name != "diagnose.commands.kb_quality":
-            raise
-    else:
-        kb_quality.add_analyze_parser(ks)
-        kb_quality.add_new_parser(ks)
+    from diagnose.commands import kb_quality
+
+    kb_quality.add_analyze_parser(ks)
+    kb_quality.add_new_parser(ks)
 
 
 def _console() -> Any:
@@ -66,29 +61,11 @@ def _console() -> Any:
     return console()
 
 
-def _learned(args: argparse.Namespace, pack: str) -> Any:
-    """The learned-priors overlay for ``pack`` unless --no-learned (journal layer, if present)."""
-    if getattr(args, "no_learned", False):
-        return None
-    try:
-        from diagnose.journal.learn import overlay_for
-    except ModuleNotFoundError:
-        return None
-    return overlay_for(pack, getattr(args, "journal", None))
-
-
 def load(args: argparse.Namespace, ref: str) -> Any:
-    """Load pack ``ref`` as the command line asks (search folders, learned overlay)."""
-    from diagnose.errors import DiagnoseError
-    from diagnose.kb.loader import load_model, read_pack
-    from diagnose.kb.locate import find_pack
+    """Pack ``ref`` as the command line asks (search folders, learned priors): the service's."""
+    from diagnose.service import Where, open_pack
 
-    try:
-        src, _ = read_pack(find_pack(ref, args.packs))
-    except (DiagnoseError, OSError):  # load_model below reports the real problem
-        return load_model(ref, search=args.packs)
-    learned = _learned(args, src.id)
-    return load_model(ref, search=args.packs, learned=learned.priors if learned else None)
+    return open_pack(ref, Where.of(args))
 
 
 def _lint(args: argparse.Namespace) -> int:
@@ -133,7 +110,9 @@ def summary(model: Any) -> dict[str, Any]:
 def _show(args: argparse.Namespace) -> int:
     model = load(args, args.pack)
     data = summary(model)
-    learned = _learned(args, model.id)
+    from diagnose.service import Where, learned_overlay
+
+    learned = learned_overlay(model.id, Where.of(args))
     data["learned_priors"] = str(learned.path) if learned else None
     if args.json:
         print(json_text(data, indent=2))
@@ -198,7 +177,7 @@ def _schema(args: argparse.Namespace) -> int:
 
 
 def _test(args: argparse.Namespace) -> int:
-    from diagnose.reasoning.cases import run_cases
+    from diagnose.service.cases import run_cases
 
     model = load(args, args.pack)
     results = run_cases(model)

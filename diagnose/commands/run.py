@@ -244,9 +244,11 @@ class _View:
         if resumed:
             self.say(f"Resuming session {s.session_id} ({_steps_so_far(s)} step(s) so far), "
                      f"{where}.", style="bold")
-            if s.pack_changed:
-                self.say("Note: the pack has changed since this session was recorded; the "
-                         "ranking uses the pack as it is now.", style="yellow")
+            from diagnose.service import session_note
+
+            note = session_note(s)
+            if note:
+                self.say(f"Note: {note}.", style="yellow")
         else:
             if model.notice:
                 self.say(model.notice, style="dim")
@@ -257,7 +259,7 @@ class _View:
         """The ranking and the next action once the nameplate and complaints are in."""
         if self.console is not None:
             self.console.rule("the complaint", align="left")
-            self.console.print(self.session.ranking())
+            self.console.print(_ranking_view(self.session))
             self.console.print(self.session.next_action())
 
     def step(self, i: int, step: Any, result: Any) -> None:
@@ -274,7 +276,7 @@ class _View:
             self.console.rule(f"step {i}: {_step_text(step)}", align="left")
             if isinstance(result, Finding):
                 self.console.print(result)
-            self.console.print(self.session.ranking())
+            self.console.print(_ranking_view(self.session))
             self.console.print(self.session.next_action())
 
     def finish(self, *, recorded: bool, resumed: bool, journal: str | None) -> None:
@@ -300,6 +302,12 @@ class _View:
         else:
             self.say(f"Session {sid} is open; continue it with: diagnose run --resume {sid} "
                      f"--answers FILE (or in the shell: diagnose resume {sid})", style="bold")
+
+
+def _ranking_view(session: Any) -> Any:
+    from diagnose.views import RankingView
+
+    return RankingView.of(session.ranking())
 
 
 def _steps_so_far(session: Any) -> int:
@@ -328,28 +336,23 @@ def _run(args: argparse.Namespace) -> int:
 
 
 def _start(args: argparse.Namespace, data: dict[str, Any]) -> int:
-    from diagnose.commands.journal import _path
-    from diagnose.commands.kb import _learned, load
-    from diagnose.session import Session
+    from diagnose.service import Where, journal_path, open_journal, open_pack, start
 
-    model = load(args, args.pack)
+    where = Where.of(args)
+    model = open_pack(args.pack, where)
     mode, faults = _options(args, data)
     mode, faults = mode or "site", faults or 1
     if "mode" in data:
         data = {**data, "mode": mode}  # the --mode option wins over the file's
     if args.no_journal:
-        session = Session(model, mode=mode, max_faults=faults)
+        session = start(None, model, where, mode=mode, max_faults=faults)
         return _play(args, session, data, recorded=False, resumed=False, journal=None)
-    play(Session(model, mode=mode, max_faults=faults), data)  # a bad step writes nothing
-    from diagnose.journal.recorder import start_session
-    from diagnose.journal.store import Journal
-
-    path = _path(args)
-    with Journal(path) as journal:
-        session = start_session(journal, model, mode=mode, max_faults=faults, who=args.who,
-                                overlay=_learned(args, model.id))
+    play(start(None, model, where, mode=mode, max_faults=faults), data)  # a bad step: nothing
+    with open_journal(where) as journal:
+        session = start(journal, model, where, mode=mode, max_faults=faults, who=args.who)
         try:
-            return _play(args, session, data, recorded=True, resumed=False, journal=str(path))
+            return _play(args, session, data, recorded=True, resumed=False,
+                         journal=str(journal_path(where)))
         except Exception as exc:
             _close_stopped(session, exc)
             raise
@@ -375,23 +378,30 @@ def _close_stopped(session: Any, exc: BaseException) -> None:
 
 
 def _resume(args: argparse.Namespace, data: dict[str, Any]) -> int:
-    from diagnose.commands.journal import _need_reader, _path
     from diagnose.errors import InputError
-    from diagnose.journal.recorder import ensure_open, resume_session
-    from diagnose.journal.store import Journal
+    from diagnose.journal.recorder import ensure_open
+    from diagnose.service import (
+        Where,
+        journal_path,
+        need_journal,
+        open_journal,
+        recorded_events,
+        recorded_pack,
+    )
     from diagnose.session import Session
 
+    where = Where.of(args)
     sid = args.resume
-    with _need_reader(args) as reader:
+    with need_journal(where) as reader:
         info = reader.session(sid)
         ensure_open(info)
-        events = reader.load_events(sid)
+        events = recorded_events(reader, sid)
     if args.who and args.who != info.who:
         raise InputError("--who", f"session {sid} was recorded by "
                          f"{info.who or 'nobody named'}; the repair log names one person a "
                          "session (leave --who out to continue it)")
-    model = _resumed_model(args, info, events)
-    old = Session.replay(model, events)  # in memory: checks the pack and the answers file
+    choice = recorded_pack(info, events, where, args.pack)
+    old = Session.replay(choice.model, events)  # in memory: checks the pack and the answers
     mode, faults = _options(args, data)
     if faults is not None and faults != old.max_faults:
         raise InputError("max_faults", f"session {sid} ranks up to {old.max_faults} "
@@ -401,32 +411,14 @@ def _resume(args: argparse.Namespace, data: dict[str, Any]) -> int:
     if data:
         play(old, data)
     if args.no_journal:
-        session = Session.replay(model, events)
+        session = Session.replay(choice.model, events)
         return _play(args, session, data, recorded=False, resumed=True, journal=None)
-    path = _path(args)
-    with Journal(path) as journal:
-        session = resume_session(journal, sid, model)
-        return _play(args, session, data, recorded=True, resumed=True, journal=str(path))
+    from diagnose.service import resume
 
-
-def _resumed_model(args: argparse.Namespace, info: Any, events: list[Any]) -> Any:
-    """The pack of a session: the PACK given, else the folder its notice recorded (while it
-    is still there), else its id on the search path. ``Session.replay`` checks the id."""
-    from diagnose.commands.journal import recorded_folder
-    from diagnose.commands.kb import load
-    from diagnose.errors import InputError
-
-    folder = recorded_folder(events)
-    try:
-        return load(args, args.pack or folder or info.pack_id)
-    except InputError as exc:
-        if args.pack or exc.field != "pack":
-            raise
-        first = events[0].data if events and events[0].kind == "notice" else {}
-        gone = f" (its folder {first['path']} is gone)" if first.get("path") else ""
-        raise InputError("pack", f"session {info.id} ran on the pack {info.pack_id}{gone}, which "
-                         f"is not on the search path; name its folder (diagnose run FOLDER "
-                         f"--resume {info.id}) or add --packs DIR") from None
+    with open_journal(where) as journal:
+        session = resume(journal, sid, where, args.pack, choice=choice).session
+        return _play(args, session, data, recorded=True, resumed=True,
+                     journal=str(journal_path(where)))
 
 
 def _play(args: argparse.Namespace, session: Any, data: dict[str, Any], *, recorded: bool,

@@ -33,7 +33,7 @@ from pathlib import Path
 from typing import Any
 
 from diagnose.errors import InputError, JournalError
-from diagnose.journal.paths import journal_path, overlay_path
+from diagnose.paths import journal_path, overlay_path
 
 DEFAULT_WEIGHT = 20.0
 FORMAT = 1  # version of the overlay file

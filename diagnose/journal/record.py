@@ -19,7 +19,7 @@ from __future__ import annotations
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
-from typing import Any
+from typing import Any, NamedTuple
 
 CHECK_KINDS = ("answer", "reading", "unsure", "skip")
 STEP_KINDS = CHECK_KINDS + ("repair", "skip_repair")
@@ -196,83 +196,21 @@ def build_record(info: Any, events: Sequence[Any], model: Any = None,
     where none was kept and ``model`` is given, they are worked out again.
     """
     events = list(events)
-    checks = getattr(model, "checks", None) or {}
-    repairs = getattr(model, "repairs", None) or {}
-    cautions_def = getattr(model, "cautions", None) or {}
-    params = getattr(model, "parameters", None) or {}
-    complaints_def = getattr(model, "complaints", None) or {}
-    ranks = list(rankings) if rankings is not None else [None] * len(events)
-    ranks += [None] * (len(events) - len(ranks))
-    recomputed = False
-    if model is not None and not any(ranks) and any(e.kind in STEP_KINDS for e in events):
-        ranks, recomputed = recompute_rankings(events, model), True
-    who = getattr(info, "who", None)
-
-    notice = ""
-    identity: dict[str, str] = {}
-    nameplate: dict[str, dict[str, Any]] = {}
-    complaints: list[dict[str, str]] = []
-    steps: list[Step] = []
-    cautions: list[dict[str, Any]] = []
-    notes: list[dict[str, Any]] = []
-    initial: tuple[dict[str, Any], ...] = ()
-    final: tuple[dict[str, Any], ...] = ()
-    end: dict[str, Any] | None = None
-    mode = getattr(info, "mode", "site") or "site"
+    ranks, recomputed = _rankings(events, model, rankings)
+    fold = _Fold(_Tables.of(model), getattr(info, "who", None),
+                 getattr(info, "mode", "site") or "site")
     keep, undone = effective(events)
     # The last ranking kept, an undo's included: the ranking once a step was taken back.
+    final: tuple[dict[str, Any], ...] = ()
     counted = set(keep) | {i for i, e in enumerate(events) if e.kind == "undo"}
     for i in sorted(counted):
         if ranks[i]:
             final = _named(ranks[i], model)
     for i in keep:
         ev = events[i]
-        kind, data, when = ev.kind, dict(ev.data or {}), str(ev.time)
-        ranking = _named(ranks[i], model)
-        if kind == "notice":
-            notice = _text(data.get("text"))
-            mode = _text(data.get("mode")) or mode
-        elif kind == "identity":
-            identity.update({str(k): _text(v) for k, v in data.items()})
-        elif kind == "nameplate":
-            pid = str(data.get("param", ""))
-            p = params.get(pid)
-            nameplate[pid] = {"id": pid, "prompt": getattr(p, "prompt", pid),
-                              "value": _text(data.get("value")), "typed": _text(data.get("text"))}
-        elif kind == "complaint":
-            cid = str(data.get("complaint", ""))
-            if cid and all(c["id"] != cid for c in complaints):
-                complaints.append({"id": cid, "title": _title(complaints_def, cid)})
-            initial = ranking or initial
-        elif kind == "mode":
-            mode = _text(data.get("mode")) or mode
-        elif kind == "ack":
-            cid = str(data.get("caution", ""))
-            c = cautions_def.get(cid)
-            item = data.get("item")  # the card it was acknowledged for (not in older journals)
-            cautions.append({"id": cid, "time": when, "who": who,
-                             "level": str(getattr(c, "level", "")),
-                             "text": str(getattr(c, "text", "")),
-                             "item": str(item) if item else None})
-        elif kind == "note":
-            notes.append({"time": when, "who": who, "text": _text(data.get("text"))})
-        elif kind in CHECK_KINDS:
-            steps.append(_check_step(len(steps) + 1, kind, when, data, checks, who, ranking))
-        elif kind == "repair":
-            rid = str(data.get("repair", ""))
-            cured = bool(data.get("cured"))
-            steps.append(Step(
-                n=len(steps) + 1, kind=kind, time=when, id=rid, title=_title(repairs, rid),
-                who=who, cured=cured, outcome="cured" if cured else "not cured",
-                minutes=getattr(repairs.get(rid), "minutes", None), ranking=ranking))
-        elif kind == "skip_repair":
-            rid = str(data.get("repair", ""))
-            steps.append(Step(
-                n=len(steps) + 1, kind=kind, time=when, id=rid, title=_title(repairs, rid),
-                who=who, outcome="set aside: cannot be done now", minutes=None, ranking=ranking))
-        elif kind == "end":
-            end = data
+        fold.add(ev.kind, dict(ev.data or {}), str(ev.time), _named(ranks[i], model))
 
+    steps, end = fold.steps, fold.end
     started = str(events[0].time) if events else str(getattr(info, "started", ""))
     ended = str((events[keep[-1]] if keep else events[-1]).time) if events else ""
     if end is not None:
@@ -281,20 +219,13 @@ def build_record(info: Any, events: Sequence[Any], model: Any = None,
     result = _text((end or {}).get("result")) or getattr(info, "outcome", None)
     cause_id = confirmed_cause(result, end, steps, model)
     session = info.to_dict() if hasattr(info, "to_dict") else dict(info or {})
-    first = events[0].data if events and events[0].kind == "notice" else {}
-    pack = {"id": session.get("pack_id") or first.get("pack") or getattr(model, "id", ""),
-            "version": session.get("pack_version") or first.get("version", ""),
-            "content_hash": session.get("content_hash") or first.get("content_hash", ""),
-            "packs": list(first.get("packs", [])),
-            "title": str(getattr(model, "title", "")) if model is not None else "",
-            "current_hash": getattr(model, "content_hash", None) if model is not None else None,
-            "loaded": model is not None,
-            "learned": session.get("learned")}
     return Record(
-        session=session, pack=pack, notice=notice or str(getattr(model, "notice", "") or ""),
-        identity=identity, nameplate=tuple(nameplate.values()), complaints=tuple(complaints),
-        mode=mode, steps=tuple(steps), cautions=tuple(cautions), notes=tuple(notes),
-        initial_ranking=initial, final_ranking=final or initial, result=result or None,
+        session=session, pack=_pack_of(session, events, model),
+        notice=fold.notice or str(getattr(model, "notice", "") or ""),
+        identity=fold.identity, nameplate=tuple(fold.nameplate.values()),
+        complaints=tuple(fold.complaints), mode=fold.mode, steps=tuple(steps),
+        cautions=tuple(fold.cautions), notes=tuple(fold.notes), initial_ranking=fold.initial,
+        final_ranking=final or fold.initial, result=result or None,
         cause={"id": cause_id, "title": _cause_title(model, cause_id)} if cause_id else None,
         end=end, started=started, ended=ended, clock_minutes=minutes_between(started, ended),
         minutes_to_cure=minutes_between(started, cure.time) if cure else None,
@@ -303,25 +234,141 @@ def build_record(info: Any, events: Sequence[Any], model: Any = None,
         events=len(events), undone=undone, recomputed=recomputed)
 
 
-def _check_step(n: int, kind: str, when: str, data: Mapping[str, Any], checks: Mapping[str, Any],
-                who: str | None, ranking: tuple[dict[str, Any], ...]) -> Step:
-    cid = str(data.get("check", ""))
-    check = checks.get(cid)
-    outcome = data.get("outcome") if kind == "answer" else data.get("verdict")
-    titles = getattr(check, "outcome_titles", None) or {}
-    figures = data.get("figures") if isinstance(data.get("figures"), Mapping) else {}
-    weights = data.get("weights") if isinstance(data.get("weights"), Mapping) else {}
-    return Step(
-        n=n, kind=kind, time=when, id=cid, title=_title(checks, cid), who=who,
-        outcome=_text(outcome) or None,
-        outcome_title=str(titles[outcome]) if outcome in titles else None,
-        reading=_text(data.get("text")) if kind == "reading" else None,
-        summary=_text(data.get("summary")) or None,
-        figures=tuple({"key": str(k), "label": str(f.get("label", k)), "value": f.get("value"),
-                       "unit": str(f.get("unit", ""))} for k, f in figures.items()
-                      if isinstance(f, Mapping)),
-        weights={str(k): float(v) for k, v in weights.items()},
-        minutes=None if kind == "skip" else getattr(check, "minutes", None), ranking=ranking)
+def _rankings(events: list[Any], model: Any, rankings: Sequence[Any] | None,
+              ) -> tuple[list[Any], bool]:
+    """The ranking after each event (None where there is none), and whether worked out again.
+
+    The rankings kept are used; where none was kept and a model is given,
+    they are worked out again from the events.
+    """
+    ranks = list(rankings) if rankings is not None else [None] * len(events)
+    ranks += [None] * (len(events) - len(ranks))
+    if model is not None and not any(ranks) and any(e.kind in STEP_KINDS for e in events):
+        return recompute_rankings(events, model), True
+    return ranks, False
+
+
+def _pack_of(session: Mapping[str, Any], events: list[Any], model: Any) -> dict[str, Any]:
+    """The pack a session ran with (from its metadata and first notice) and the one loaded now."""
+    first = events[0].data if events and events[0].kind == "notice" else {}
+    return {"id": session.get("pack_id") or first.get("pack") or getattr(model, "id", ""),
+            "version": session.get("pack_version") or first.get("version", ""),
+            "content_hash": session.get("content_hash") or first.get("content_hash", ""),
+            "packs": list(first.get("packs", [])),
+            "title": str(getattr(model, "title", "")) if model is not None else "",
+            "current_hash": getattr(model, "content_hash", None) if model is not None else None,
+            "loaded": model is not None,
+            "learned": session.get("learned")}
+
+
+class _Tables(NamedTuple):
+    """The model's tables a record takes titles, prompts and minutes from (empty without one)."""
+
+    checks: Mapping[str, Any]
+    repairs: Mapping[str, Any]
+    cautions: Mapping[str, Any]
+    parameters: Mapping[str, Any]
+    complaints: Mapping[str, Any]
+
+    @classmethod
+    def of(cls, model: Any) -> _Tables:
+        """The tables of ``model`` (None, or a pack since changed, gives empty ones)."""
+        return cls(*(getattr(model, name, None) or {} for name in cls._fields))
+
+
+@dataclass
+class _Fold:
+    """What the events of a session have said so far, folded one event at a time."""
+
+    tables: _Tables
+    who: str | None
+    mode: str
+    notice: str = ""
+    identity: dict[str, str] = field(default_factory=dict)
+    nameplate: dict[str, dict[str, Any]] = field(default_factory=dict)
+    complaints: list[dict[str, str]] = field(default_factory=list)
+    steps: list[Step] = field(default_factory=list)
+    cautions: list[dict[str, Any]] = field(default_factory=list)
+    notes: list[dict[str, Any]] = field(default_factory=list)
+    initial: tuple[dict[str, Any], ...] = ()
+    end: dict[str, Any] | None = None
+
+    def add(self, kind: str, data: dict[str, Any], when: str,
+            ranking: tuple[dict[str, Any], ...]) -> None:
+        """Fold in one event that still counts; ``ranking`` is the one after it."""
+        if kind == "notice":
+            self.notice = _text(data.get("text"))
+            self.mode = _text(data.get("mode")) or self.mode
+        elif kind == "identity":
+            self.identity.update({str(k): _text(v) for k, v in data.items()})
+        elif kind == "nameplate":
+            pid = str(data.get("param", ""))
+            p = self.tables.parameters.get(pid)
+            self.nameplate[pid] = {"id": pid, "prompt": getattr(p, "prompt", pid),
+                                   "value": _text(data.get("value")),
+                                   "typed": _text(data.get("text"))}
+        elif kind == "complaint":
+            cid = str(data.get("complaint", ""))
+            if cid and all(c["id"] != cid for c in self.complaints):
+                self.complaints.append({"id": cid, "title": _title(self.tables.complaints, cid)})
+            self.initial = ranking or self.initial
+        elif kind == "mode":
+            self.mode = _text(data.get("mode")) or self.mode
+        elif kind == "ack":
+            self.cautions.append(self._caution(data, when))
+        elif kind == "note":
+            self.notes.append({"time": when, "who": self.who, "text": _text(data.get("text"))})
+        elif kind in CHECK_KINDS:
+            self.steps.append(self._check_step(kind, when, data, ranking))
+        elif kind in ("repair", "skip_repair"):
+            self.steps.append(self._repair_step(kind, when, data, ranking))
+        elif kind == "end":
+            self.end = data
+
+    def _caution(self, data: Mapping[str, Any], when: str) -> dict[str, Any]:
+        """A caution acknowledged, with its level and text."""
+        cid = str(data.get("caution", ""))
+        c = self.tables.cautions.get(cid)
+        item = data.get("item")  # the card it was acknowledged for (not in older journals)
+        return {"id": cid, "time": when, "who": self.who, "level": str(getattr(c, "level", "")),
+                "text": str(getattr(c, "text", "")), "item": str(item) if item else None}
+
+    def _check_step(self, kind: str, when: str, data: Mapping[str, Any],
+                    ranking: tuple[dict[str, Any], ...]) -> Step:
+        """A check answered, read, marked unsure or skipped."""
+        checks = self.tables.checks
+        cid = str(data.get("check", ""))
+        check = checks.get(cid)
+        outcome = data.get("outcome") if kind == "answer" else data.get("verdict")
+        titles = getattr(check, "outcome_titles", None) or {}
+        figures = data.get("figures") if isinstance(data.get("figures"), Mapping) else {}
+        weights = data.get("weights") if isinstance(data.get("weights"), Mapping) else {}
+        return Step(
+            n=len(self.steps) + 1, kind=kind, time=when, id=cid, title=_title(checks, cid),
+            who=self.who, outcome=_text(outcome) or None,
+            outcome_title=str(titles[outcome]) if outcome in titles else None,
+            reading=_text(data.get("text")) if kind == "reading" else None,
+            summary=_text(data.get("summary")) or None,
+            figures=tuple({"key": str(k), "label": str(f.get("label", k)),
+                           "value": f.get("value"), "unit": str(f.get("unit", ""))}
+                          for k, f in figures.items() if isinstance(f, Mapping)),
+            weights={str(k): float(v) for k, v in weights.items()},
+            minutes=None if kind == "skip" else getattr(check, "minutes", None),
+            ranking=ranking)
+
+    def _repair_step(self, kind: str, when: str, data: Mapping[str, Any],
+                     ranking: tuple[dict[str, Any], ...]) -> Step:
+        """A repair done (cured or not), or set aside (``skip_repair``)."""
+        repairs = self.tables.repairs
+        rid = str(data.get("repair", ""))
+        n, title = len(self.steps) + 1, _title(repairs, rid)
+        if kind == "skip_repair":
+            return Step(n=n, kind=kind, time=when, id=rid, title=title, who=self.who,
+                        outcome="set aside: cannot be done now", minutes=None, ranking=ranking)
+        cured = bool(data.get("cured"))
+        return Step(n=n, kind=kind, time=when, id=rid, title=title, who=self.who, cured=cured,
+                    outcome="cured" if cured else "not cured",
+                    minutes=getattr(repairs.get(rid), "minutes", None), ranking=ranking)
 
 
 def confirmed_cause(result: str | None, end: Mapping[str, Any] | None, steps: Iterable[Step],

@@ -87,14 +87,13 @@ def number(value: Any) -> str:
 
 
 def percent(value: Any) -> str:
-    """A probability as a percentage for people: ``0.8312`` -> ``83.1 %``."""
+    """A probability as every face shows it (:func:`diagnose.text.percent`)."""
+    from diagnose.text import percent as shown
+
     try:
-        p = float(value)
+        return shown(float(value))
     except (TypeError, ValueError):
         return str(value)
-    if 0 < p < 0.001:
-        return "<0.1 %"
-    return f"{p * 100:.1f} %"
 
 
 def minutes(value: Any) -> str:
@@ -106,7 +105,8 @@ def minutes(value: Any) -> str:
 
 @lru_cache(maxsize=2)
 def _environment(fmt: str) -> Any:
+    from diagnose.physics.verdict import unit_text
     from diagnose.text import templates
 
     return templates(str(_TEMPLATES), fmt, when=when, number=number, percent=percent,
-                     minutes=minutes)
+                     minutes=minutes, unit=unit_text)

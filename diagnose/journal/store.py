@@ -1,6 +1,6 @@
 """The journal: an embedded SQLite store of sessions and their events.
 
-One file (see ``diagnose.journal.paths``) in WAL mode holds every session:
+One file (see ``diagnose.paths``) in WAL mode holds every session:
 its pack (id, version, content hash), mode and technician, and each event
 (``kind``, ``data`` as JSON, ``time``) in order. ``Journal.write`` is the
 session's sink: one short committed transaction an event, so whatever a
@@ -52,10 +52,10 @@ from pathlib import Path
 from typing import Any
 
 from diagnose.errors import JournalError
+from diagnose.paths import APPLICATION_ID
 from diagnose.text import storable
 
 SCHEMA_VERSION = 1
-APPLICATION_ID = 0x44474E4A  # "DGNJ": marks the file as a diagnose journal
 HEADER = b"SQLite format 3\x00"
 BUSY_TIMEOUT_MS = 5000
 _RETRIES = 4  # on top of busy_timeout: a writer waits up to about 20 s in all
@@ -183,10 +183,8 @@ def _event_fields(event: Any) -> tuple[str, dict[str, Any], str]:
 
 def _event_type() -> Any:
     """The session's own Event class when there is one, so that replay gets what it wrote."""
-    try:
-        from diagnose.session import Event
-    except ImportError:
-        return StoredEvent
+    from diagnose.session import Event
+
     return Event
 
 
@@ -675,7 +673,7 @@ class Journal:
             InputError: the target is refused or cannot be written.
             JournalError: the journal is damaged, or the copy cannot be made.
         """
-        from diagnose.journal.paths import writable_target
+        from diagnose.paths import writable_target
 
         dest = writable_target(target, journal=self.path, force=force, field="FILE",
                                journal_copy=True)
@@ -689,7 +687,7 @@ class Journal:
 
     def _copy_to(self, dest: Path, *, field: str) -> Path:
         """The online backup into a file beside ``dest``, renamed over it once complete."""
-        from diagnose.journal.paths import replace_atomically
+        from diagnose.paths import replace_atomically
 
         def fill(tmp: Path) -> None:
             out = sqlite3.connect(tmp, isolation_level=None)

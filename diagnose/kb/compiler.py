@@ -129,7 +129,8 @@ def _schema_message(err: Any, path: Path) -> str:
             parts.append(f"`{name}`" + (f" (did you mean `{close[0]}`?)" if close else ""))
         return f"{where}: unknown field {', '.join(parts)}"
     if err.validator == "oneOf" and isinstance(err.instance, dict) and "check" in str(err.schema):
-        return f"{where}: a step is {{check, answer}}, {{check, skip}}, {{repair, cured}} or {{repair, skip}}"
+        return (f"{where}: a step is {{check, answer}}, {{check, skip}}, {{repair, cured}} "
+                "or {repair, skip}")
     return f"{where}: {err.message}"
 
 
@@ -330,12 +331,13 @@ def _gate(it: _Item, ctx: _Ctx) -> Gate:
                       "inputs", it.at("k"), "gate")
     elif kind == "and":
         k = len(inputs)
-    return Gate(it.id, str(d.get("title", it.id)), kind if kind in ("or", "and", "k_of_n") else "or",
+    return Gate(it.id, str(d.get("title", it.id)),
+                kind if kind in ("or", "and", "k_of_n") else "or",
                 inputs, k, it.at(), _only_if_values(d.get("only_if")))
 
 
 def _distribution(row: Any, outcomes: tuple[str, ...], it: _Item, sub: Path, label: str,
-                  ctx: _Ctx, warn_extremes: bool = True) -> dict[str, float]:
+                  ctx: _Ctx, *, warn_extremes: bool = True) -> dict[str, float]:
     """Complete one effects row over ``outcomes``: omitted outcomes share the rest evenly."""
     if not isinstance(row, Mapping):
         return {o: 1.0 / len(outcomes) for o in outcomes}
@@ -397,7 +399,8 @@ def _outcomes(it: _Item, spec: Any, ctx: _Ctx) -> tuple[tuple[str, ...], dict[st
         extra = [o for o in outcomes if o not in known]
         if missing:
             ctx.error(f"check {it.id!r}: outcomes must cover every verdict of evaluator "
-                      f"{spec.name!r}; missing {', '.join(missing)}", it.at("outcomes"), "evaluator")
+                      f"{spec.name!r}; missing {', '.join(missing)}", it.at("outcomes"),
+                      "evaluator")
         if extra:
             ctx.error(f"check {it.id!r}: {', '.join(extra)} is not a verdict of evaluator "
                       f"{spec.name!r} (verdicts: {', '.join(spec.verdicts)})", it.at("outcomes"),
@@ -423,8 +426,8 @@ def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple
     if spec is None:
         close = difflib.get_close_matches(str(name), list(EVALUATORS), n=1)
         hint = f"; did you mean {close[0]!r}?" if close else ""
-        ctx.error(f"check {it.id!r}: unknown evaluator {name!r}{hint}", it.at("measure", "evaluator"),
-                  "evaluator")
+        ctx.error(f"check {it.id!r}: unknown evaluator {name!r}{hint}",
+                  it.at("measure", "evaluator"), "evaluator")
         return None, None
     reading = m.get("reading", spec.reading)
     reading = reading if isinstance(reading, str) else None
@@ -457,7 +460,7 @@ def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple
         if key == reading:
             ctx.error(f"check {it.id!r}: input {key!r} is the reading itself", src, "evaluator")
             continue
-        _check_input_value(it, key, value, ispec, params, src, ctx)
+        _check_input_value(it, key, value, ispec, params, ctx)
     for ispec in spec.inputs:
         if ispec.required and ispec.name != reading and ispec.default is None \
                 and ispec.name not in inputs:
@@ -470,8 +473,13 @@ def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple
 
 
 def _check_input_value(it: _Item, key: str, value: Any, ispec: Any,
-                       params: Mapping[str, Parameter], src: Source, ctx: _Ctx) -> None:
+                       params: Mapping[str, Parameter], ctx: _Ctx) -> None:
+    """Check the value a check's ``measure`` gives input ``key``: a fitting quantity or choice.
+
+    A ``$parameter`` value must name a parameter whose unit or choices fit the input.
+    """
     units = _units()
+    src = it.at("measure", "inputs", key)
     if isinstance(value, str) and value.startswith("$"):
         pid = value[1:]
         if not ctx.ref(pid, ("parameters",), src, f"check {it.id!r} input {key!r}: parameter"):
@@ -905,7 +913,8 @@ def _usage_checks(model: Model, ctx: _Ctx) -> None:
         if not chk.effects and not chk.preparation:
             ctx.warn(f"check {chk.id!r} observes no cause (give it `effects`, or mark it "
                      "`preparation: true`)", chk.source, "observes-nothing")
-    used = {c for x in list(model.checks.values()) + list(model.repairs.values()) for c in x.cautions}
+    used = {c for x in list(model.checks.values()) + list(model.repairs.values())
+            for c in x.cautions}
     used |= {hc.caution for h in model.hazards.values() for hc in h.cautions}
     for caution in model.cautions.values():
         if caution.id not in used:
@@ -967,10 +976,10 @@ def _safety_checks(model: Model, ctx: _Ctx) -> None:
         elif hits and not item.hazards and not item.hazards_note:
             ctx.error(f"{noun} {item.id!r} reads as hazardous ({hits[0]}) with `hazards: []`: "
                       "say why in `hazards_note`", src, "hazard-wording")
-        for field in ("ask", "caller"):
-            late = _late_caution(getattr(item, field, ""))
+        for wording in ("ask", "caller"):
+            late = _late_caution(getattr(item, wording, ""))
             if late:
-                ctx.error(f"{noun} {item.id!r} `{field}`: the caution {late!r} comes after the "
+                ctx.error(f"{noun} {item.id!r} `{wording}`: the caution {late!r} comes after the "
                           "instruction; put it first", src, "caution-last")
 
 

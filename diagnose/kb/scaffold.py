@@ -207,7 +207,7 @@ def write_skeleton(
             pack; the new file exists; the named file cannot take the entry
             or is refused.
     """
-    from diagnose.journal.paths import writable_target, write_text_atomically
+    from diagnose.paths import writable_target, write_text_atomically
 
     folder = Path(folder)
     item = skeleton(kind, id, evaluator=evaluator)

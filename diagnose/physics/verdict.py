@@ -25,12 +25,27 @@ def format_number(value: float) -> str:
     return f"{value:.3e}"
 
 
+def unit_text(text: str) -> str:
+    """A unit (or a value with its unit) as people write it: the one place that says how.
+
+    >>> unit_text("0.5 mm**2"), unit_text("10 N*m"), unit_text("20 degC"), unit_text("J/(kg*K)")
+    ('0.5 mm²', '10 N·m', '20 °C', 'J/(kg·K)')
+    """
+    return (str(text).replace("**2", "²").replace("**3", "³").replace("*", "·")
+            .replace("degC", "°C").replace("degF", "°F"))
+
+
 def quantity_text(value: float, unit: str = "") -> str:
-    """A number and its unit for a sentence: ``quantity_text(31.06, "ohm") == "31.06 ohm"``."""
+    """A number and its unit for a sentence: ``quantity_text(31.06, "ohm") == "31.06 ohm"``.
+
+    >>> quantity_text(0.5, "mm**2"), quantity_text(12, "%")
+    ('0.5 mm²', '12%')
+    """
     number = format_number(value)
     if not unit:
         return number
-    return f"{number}{unit}" if unit in ("%", "°") else f"{number} {unit}"
+    shown = unit_text(unit)
+    return f"{number}{shown}" if shown in ("%", "°") else f"{number} {shown}"
 
 
 def make_figures(rows: Iterable[tuple[str, str, float | None, str]]) -> dict[str, Figure]:
@@ -118,7 +133,7 @@ class Verdict:
         table.add_column("value", justify="right", no_wrap=True)
         table.add_column("unit", no_wrap=True)
         for fig in self.figures.values():
-            table.add_row(fig.label, format_number(fig.value), fig.unit)
+            table.add_row(fig.label, format_number(fig.value), unit_text(fig.unit))
         if self.figures:
             yield table
         style = "bold green" if self.verdict in GOOD_VERDICTS else "bold red"

@@ -396,11 +396,8 @@ def complaint_model(model: Model, complaint: str) -> Model:
 
 
 def _simulator() -> Any:
-    """A function (model, complaint, bound, runs, unknown_rate) -> Effort, or None without it."""
-    try:
-        from diagnose.reasoning.simulate import simulate
-    except ImportError:
-        return None
+    """A function (model, complaint, bound, runs, unknown_rate) -> Effort."""
+    from diagnose.reasoning.simulate import simulate
 
     def run(model: Model, complaint: str, bound: dict[str, Any], runs: int | None,
             unknown_rate: float = UNKNOWN_RATE) -> Effort:

@@ -66,9 +66,9 @@ References:
 
 from __future__ import annotations
 
-from collections.abc import Iterator
+from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field, replace
-from typing import Any
+from typing import Any, NamedTuple
 
 import numpy as np
 
@@ -455,39 +455,105 @@ def _entropy_terms(x: np.ndarray) -> np.ndarray:
 
 
 def lookahead(tables: Tables, p: np.ndarray, cand: np.ndarray, check_cost: np.ndarray,
-              assign: np.ndarray, repair_cost: np.ndarray, escalation: float,
+              assign: np.ndarray, repair_cost: np.ndarray, *, escalation: float,
               detail: list[np.ndarray] | None = None,
               ) -> tuple[np.ndarray, np.ndarray, float]:
     """Expected information (bits) and ECO of each candidate check, and ECR now.
 
     ``cand`` indexes ``tables.check_ids``; ``check_cost`` is per candidate;
-    ``assign`` maps hypotheses to repairs (see :func:`assign_repairs`). When
-    ``detail`` is a list, P(outcome) and the ECR after each outcome (both
-    candidates × outcomes) are appended to it.
+    ``assign`` maps hypotheses to repairs (see :func:`assign_repairs`);
+    ``escalation`` is E, the minutes of an escalation. When ``detail`` is a
+    list, P(outcome) and the ECR after each outcome (both candidates ×
+    outcomes) are appended to it.
     """
+    order = _order_now(tables, p, assign, repair_cost)
+    ecr_now = _ecr_of(order, escalation)
+    if len(cand) == 0:
+        if detail is not None:
+            detail += [np.zeros((0, 1)), np.zeros((0, 1))]
+        return np.zeros(0), np.zeros(0), ecr_now
+    split = _split(tables, p, cand)
+    bits = _information(p, split)
+    touched = _touched(tables, assign, order, split)
+    ecr_after = _ecr_after(touched, order, split.alpha, escalation)
+    eco = check_cost + (split.z * ecr_after).sum(axis=1)
+    if detail is not None:
+        detail += [split.z, ecr_after]
+    return bits, eco, ecr_now
+
+
+class _Order(NamedTuple):
+    """The repairs in the p/c order now (Kadane and Simon, 1977), with its prefix sums.
+
+    Per repair: ``mass`` (P of the hypotheses it serves), ``prob`` (P it
+    cures), ``c`` (minutes, 1 where none are given) and ``rank`` (its place
+    in the order, −1 when it cures nothing). Along the order: ``rhos`` (p/c),
+    ``p_before`` (Σ p before a place), ``c_from`` (Σ c from a place on) and
+    ``g_cum`` (Σ p · c of the repairs after, up to a place).
+    """
+
+    mass: np.ndarray
+    prob: np.ndarray
+    c: np.ndarray
+    rank: np.ndarray
+    rhos: np.ndarray
+    p_before: np.ndarray
+    c_from: np.ndarray
+    g_cum: np.ndarray
+
+
+def _order_now(tables: Tables, p: np.ndarray, assign: np.ndarray, repair_cost: np.ndarray,
+               ) -> _Order:
+    """The p/c order of the repairs for posterior ``p`` (see :class:`_Order`)."""
     R = len(tables.repair_ids)
-    s = tables.success
     c = np.where(repair_cost > 0, repair_cost, 1.0)
     served = assign >= 0
     mass = np.bincount(assign[served], weights=p[served], minlength=R)
-    prob = s * mass
+    prob = tables.success * mass
     order = repair_order(prob, c)
     ps, cs = prob[order], c[order]
     rhos = ps / cs
     p_before = np.concatenate([[0.0], np.cumsum(ps)])
     c_from = np.concatenate([np.cumsum(cs[::-1])[::-1], [0.0]])
     g_cum = np.concatenate([[0.0], np.cumsum(ps * c_from[1:])])
-    n0 = int(np.searchsorted(-rhos, -1.0 / escalation, side="right"))
-    ecr_now = float((c_from[0] - c_from[n0]) - (g_cum[n0] - p_before[n0] * c_from[n0])
-                    + escalation * (1.0 - p_before[n0]))
     rank = np.full(R, -1, dtype=np.int64)
     rank[order] = np.arange(len(order))
+    return _Order(mass, prob, c, rank, rhos, p_before, c_from, g_cum)
 
+
+def _ecr_of(order: _Order, escalation: float) -> float:
+    """ECR of ``order``: the repairs worth trying (p/c at least 1/E), then an escalation."""
+    p_before, c_from, g_cum = order.p_before, order.c_from, order.g_cum
+    n0 = int(np.searchsorted(-order.rhos, -1.0 / escalation, side="right"))
+    return float((c_from[0] - c_from[n0]) - (g_cum[n0] - p_before[n0] * c_from[n0])
+                 + escalation * (1.0 - p_before[n0]))
+
+
+class _Split(NamedTuple):
+    """How the outcomes of each candidate check split the posterior.
+
+    One row per (candidate, hypothesis it lists): ``ek`` the candidate,
+    ``eh`` the hypothesis, ``el`` its outcome row, ``pe`` its probability and
+    ``new_ex`` its posterior after each outcome. Per candidate: ``p_exc``, the
+    mass it lists. Per candidate × outcome: ``z`` = P(outcome), ``safe_z`` (1
+    where z is 0) and ``alpha``, the factor the hypotheses it does not list
+    scale by.
+    """
+
+    ek: np.ndarray
+    eh: np.ndarray
+    el: np.ndarray
+    pe: np.ndarray
+    new_ex: np.ndarray
+    p_exc: np.ndarray
+    z: np.ndarray
+    safe_z: np.ndarray
+    alpha: np.ndarray
+
+
+def _split(tables: Tables, p: np.ndarray, cand: np.ndarray) -> _Split:
+    """P(outcome) of each candidate and the posterior after it (see :class:`_Split`)."""
     K = len(cand)
-    if K == 0:
-        if detail is not None:
-            detail += [np.zeros((0, 1)), np.zeros((0, 1))]
-        return np.zeros(0), np.zeros(0), ecr_now
     remap = np.full(len(tables.check_ids), -1, dtype=np.int64)
     remap[cand] = np.arange(K)
     sel = remap[tables.ex_check] >= 0
@@ -495,134 +561,122 @@ def lookahead(tables: Tables, p: np.ndarray, cand: np.ndarray, check_cost: np.nd
     eh = tables.ex_hyp[sel]
     el = tables.ex_rows[sel]
     normal = tables.check_normal[cand]
-    O = normal.shape[1]
+    n_out = normal.shape[1]
     pe = p[eh]
     p_exc = np.bincount(ek, weights=pe, minlength=K)
     z = normal * (1.0 - p_exc)[:, None]
-    for o in range(O):
+    for o in range(n_out):
         z[:, o] += np.bincount(ek, weights=pe * el[:, o], minlength=K)
     z = np.clip(z, 0.0, None)
     live = z > 0
     safe_z = np.where(live, z, 1.0)
     alpha = np.where(live, normal / safe_z, 0.0)
+    new_ex = pe[:, None] * el / safe_z[ek]
+    return _Split(ek, eh, el, pe, new_ex, p_exc, z, safe_z, alpha)
 
-    # information
+
+def _information(p: np.ndarray, split: _Split) -> np.ndarray:
+    """Mutual information (bits) between each candidate's outcome and the hypothesis."""
+    K, n_out = split.z.shape
+    ek, eh, alpha = split.ek, split.eh, split.alpha
     pl = _entropy_terms(p)
     s_non = pl.sum() - np.bincount(ek, weights=pl[eh], minlength=K)
-    m_non = np.clip(1.0 - p_exc, 0.0, None)
-    new_ex = pe[:, None] * el / safe_z[ek]
-    t_ex = np.zeros((K, O))
-    nl = _entropy_terms(new_ex)
-    for o in range(O):
+    m_non = np.clip(1.0 - split.p_exc, 0.0, None)
+    t_ex = np.zeros((K, n_out))
+    nl = _entropy_terms(split.new_ex)
+    for o in range(n_out):
         t_ex[:, o] = np.bincount(ek, weights=nl[:, o], minlength=K)
     h_post = -(alpha * s_non[:, None] + _entropy_terms(alpha) * m_non[:, None] + t_ex)
-    bits = np.clip(-pl.sum() - (z * h_post).sum(axis=1), 0.0, None)
+    return np.clip(-pl.sum() - (split.z * h_post).sum(axis=1), 0.0, None)
 
-    # ECR after each outcome: the repairs serving a listed hypothesis move, the rest scale
-    er = assign[eh]
+
+class _Touched(NamedTuple):
+    """The (candidate, repair) pairs where the repair serves a hypothesis the candidate lists.
+
+    Sorted by candidate: ``uk`` the candidate, ``ur`` the repair, ``slot``
+    its place among the pairs of that candidate, ``p_new`` (pairs × outcomes)
+    P(the repair cures) after each outcome; ``counts`` the pairs per candidate.
+    """
+
+    uk: np.ndarray
+    ur: np.ndarray
+    slot: np.ndarray
+    p_new: np.ndarray
+    counts: np.ndarray
+
+
+def _touched(tables: Tables, assign: np.ndarray, order: _Order, split: _Split) -> _Touched:
+    """The repairs whose place an outcome moves, with P(cure) after each outcome."""
+    R = len(tables.repair_ids)
+    K, n_out = split.z.shape
+    er = assign[split.eh]
     v = er >= 0
-    key = ek[v] * R + er[v]
+    key = split.ek[v] * R + er[v]
     uniq, inv = np.unique(key, return_inverse=True)
     uk, ur = uniq // R, uniq % R
     U = len(uniq)
-    ex_mass = np.bincount(inv, weights=pe[v], minlength=U)
-    new_mass = np.empty((U, O))
-    for o in range(O):
-        new_mass[:, o] = np.bincount(inv, weights=new_ex[v, o], minlength=U)
-    new_mass += alpha[uk] * np.clip(mass[ur] - ex_mass, 0.0, None)[:, None]
-    p_new = s[ur][:, None] * new_mass
+    ex_mass = np.bincount(inv, weights=split.pe[v], minlength=U)
+    new_mass = np.empty((U, n_out))
+    for o in range(n_out):
+        new_mass[:, o] = np.bincount(inv, weights=split.new_ex[v, o], minlength=U)
+    new_mass += split.alpha[uk] * np.clip(order.mass[ur] - ex_mass, 0.0, None)[:, None]
+    p_new = tables.success[ur][:, None] * new_mass
     counts = np.bincount(uk, minlength=K)
     start = np.cumsum(counts) - counts
     slot = np.arange(U) - start[uk]
+    return _Touched(uk, ur, slot, p_new, counts)
 
-    ecr_after = np.empty((K, O))
-    # checks in batches of like width, so that the (checks × outcomes × m × m) arrays stay small
+
+def _ecr_after(touched: _Touched, order: _Order, alpha: np.ndarray, escalation: float,
+               ) -> np.ndarray:
+    """ECR after each outcome (candidates × outcomes): the touched repairs move, the rest scale.
+
+    Checks go in batches of like width, so that the (checks × outcomes × m ×
+    m) arrays stay below ``_BATCH`` elements.
+    """
+    counts = touched.counts
+    K, n_out = alpha.shape
+    ecr_after = np.empty((K, n_out))
     by_width = np.argsort(counts, kind="stable")
     lo = 0
     while lo < K:
         hi = lo + 1
         while hi < K:
             width = max(int(counts[by_width[hi]]), 1)
-            if (hi + 1 - lo) * O * width * width > _BATCH:
+            if (hi + 1 - lo) * n_out * width * width > _BATCH:
                 break
             hi += 1
         batch = by_width[lo:hi]
-        ecr_after[batch] = _ecr_batch(
-            batch, K, max(int(counts[batch].max()), 1), uk, ur, slot, p_new, prob, c, rank, rhos,
-            p_before, c_from, g_cum, alpha[batch], escalation)
+        ecr_after[batch] = _ecr_batch(batch, alpha[batch], touched, order, escalation)
         lo = hi
-    eco = check_cost + (z * ecr_after).sum(axis=1)
-    if detail is not None:
-        detail += [z, ecr_after]
-    return bits, eco, ecr_now
+    return ecr_after
 
 
-def _ecr_batch(batch: np.ndarray, n_checks: int, m: int, uk: np.ndarray, ur: np.ndarray,
-               slot: np.ndarray, p_new: np.ndarray, prob: np.ndarray, c: np.ndarray,
-               rank: np.ndarray, rhos: np.ndarray, p_before: np.ndarray, c_from: np.ndarray,
-               g_cum: np.ndarray, alpha: np.ndarray, escalation: float) -> np.ndarray:
+def _ecr_batch(batch: np.ndarray, alpha: np.ndarray, touched: _Touched, order: _Order,
+               escalation: float) -> np.ndarray:
     """ECR after each outcome for the checks in ``batch`` (see :func:`lookahead`).
 
     The repairs of the global p/c order that a check's outcome does not touch
-    keep their order and scale by ``alpha``; those worth trying (ratio at least
-    1/E) are a prefix of that order, cut at ``n_cut``. The touched repairs
-    (at most ``m`` per check) are taken out and merged back at their new place.
+    keep their order and scale by ``alpha`` (the batch's rows); those worth
+    trying (ratio at least 1/E) are a prefix of that order, cut at ``n_cut``.
+    The touched repairs (at most ``m`` per check) are taken out and merged
+    back at their new place.
     """
-    K = len(batch)
-    O = alpha.shape[1]
-    local = np.full(n_checks, -1, dtype=np.int64)
-    local[batch] = np.arange(K)
-    pick = np.flatnonzero(local[uk] >= 0) if len(uk) else np.zeros(0, np.int64)
-    kk, ss, rr = local[uk[pick]], slot[pick], ur[pick]
-    a_pn = np.zeros((K, O, m))
-    a_pn[kk, :, ss] = p_new[pick]
-    a_c = np.zeros((K, m))
-    a_c[kk, ss] = c[rr]
-    a_po = np.zeros((K, m))
-    a_po[kk, ss] = prob[rr]
-    a_rank = np.full((K, m), -1, dtype=np.int64)
-    a_rank[kk, ss] = rank[rr]
-
+    rhos, p_before, c_from, g_cum = order.rhos, order.p_before, order.c_from, order.g_cum
+    m = max(int(touched.counts[batch].max()), 1)
+    a_pn, a_c, a_po, a_rank = _batch_slots(batch, m, touched, order)
     live = alpha > 0
     safe_alpha = np.where(live, alpha, 1.0)
-    N = len(rhos)
     n_cut = np.where(live, np.searchsorted(-rhos, -(1.0 / (safe_alpha * escalation)).ravel(),
                                            side="right").reshape(alpha.shape), 0)
-
-    # the touched repairs by their place in the global order, with prefix sums, so that
-    # "Σ over touched repairs placed before x" is one lookup (a batched searchsorted)
-    key = np.where(a_rank >= 0, a_rank, N + 1)
-    by_rank = np.argsort(key, axis=1, kind="stable")
-    sr = np.take_along_axis(key, by_rank, axis=1)
-    sp = np.take_along_axis(a_po, by_rank, axis=1) * (sr <= N)
-    sc = np.take_along_axis(a_c, by_rank, axis=1) * (sr <= N)
-    srk = np.minimum(sr, N)
-    spc = sp * c_from[np.minimum(srk + 1, N)]
-    scp = sc * p_before[srk]
-
-    def cum(x: np.ndarray) -> np.ndarray:
-        return np.concatenate([np.zeros((K, 1)), np.cumsum(x, axis=1)], axis=1)
-
-    cp, cc, cpc, ccp = cum(sp), cum(sc), cum(spc), cum(scp)
-    ct = cum(sc * cp[:, :-1])  # Σ over touched pairs a before b of p_a c_b
-    stride = N + 2
-    flat = (sr + np.arange(K)[:, None] * stride).ravel()
-
-    def below(x: np.ndarray) -> np.ndarray:
-        """How many touched repairs of each check sit before global place ``x``."""
-        rows = np.arange(K).reshape((K,) + (1,) * (x.ndim - 1))
-        found = np.searchsorted(flat, (x + rows * stride).ravel(), side="left")
-        return found.reshape(x.shape) - rows * m
-
-    def at(table: np.ndarray, i: np.ndarray) -> np.ndarray:
-        rows = np.arange(K).reshape((K,) + (1,) * (i.ndim - 1))
-        return table[rows, i]
-
-    i_cut = below(n_cut)
+    pre = _TouchedPrefix(a_po, a_c, a_rank, order)
+    at = pre.at
+    i_cut = pre.below(n_cut)
     g_b = (g_cum[n_cut] - p_before[n_cut] * c_from[n_cut]
-           - (at(cpc, i_cut) - c_from[n_cut] * at(cp, i_cut) + at(ccp, i_cut)) + at(ct, i_cut))
-    p_b = p_before[n_cut] - at(cp, i_cut)
-    c_b = c_from[0] - c_from[n_cut] - at(cc, i_cut)
+           - (at(pre.cpc, i_cut) - c_from[n_cut] * at(pre.cp, i_cut) + at(pre.ccp, i_cut))
+           + at(pre.ct, i_cut))
+    p_b = p_before[n_cut] - at(pre.cp, i_cut)
+    c_b = c_from[0] - c_from[n_cut] - at(pre.cc, i_cut)
 
     rho = a_pn / np.where(a_c > 0, a_c, 1.0)[:, None, :]
     valid = (a_pn > 0) & (rho >= 1.0 / escalation)
@@ -633,9 +687,9 @@ def _ecr_batch(batch: np.ndarray, n_checks: int, m: int, uk: np.ndarray, ur: np.
     pos = np.searchsorted(-rhos, -(rho / safe_alpha[:, :, None]).ravel(),
                           side="left").reshape(rho.shape)
     pos = np.minimum(pos, cut3)
-    i_pos = below(pos)
-    before_p = p_before[pos] - at(cp, i_pos)
-    after_c = c_from[pos] - c_from[cut3] - (at(cc, i_cut)[:, :, None] - at(cc, i_pos))
+    i_pos = pre.below(pos)
+    before_p = p_before[pos] - at(pre.cp, i_pos)
+    after_c = c_from[pos] - c_from[cut3] - (at(pre.cc, i_cut)[:, :, None] - at(pre.cc, i_pos))
     cross = (alpha[:, :, None] * ce * before_p + pn * after_c).sum(axis=2)
     new_order = np.argsort(-rho, axis=2, kind="stable")
     ps_new = np.take_along_axis(pn, new_order, axis=2)
@@ -645,6 +699,77 @@ def _ecr_batch(batch: np.ndarray, n_checks: int, m: int, uk: np.ndarray, ur: np.
     p_seq = alpha * p_b + pn.sum(axis=2)
     pairs = alpha * g_b + cross + aa
     return c_seq - pairs + escalation * (1.0 - p_seq)
+
+
+def _batch_slots(batch: np.ndarray, m: int, touched: _Touched, order: _Order,
+                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The touched repairs of each check in ``batch``, in ``m`` slots a check.
+
+    Returns P(cure) after each outcome (checks × outcomes × m), minutes,
+    P(cure) now and place in the global order (checks × m; an empty slot has
+    0, 0 and −1).
+    """
+    uk, ur = touched.uk, touched.ur
+    K = len(batch)
+    n_out = touched.p_new.shape[1]
+    local = np.full(len(touched.counts), -1, dtype=np.int64)
+    local[batch] = np.arange(K)
+    pick = np.flatnonzero(local[uk] >= 0) if len(uk) else np.zeros(0, np.int64)
+    kk, ss, rr = local[uk[pick]], touched.slot[pick], ur[pick]
+    a_pn = np.zeros((K, n_out, m))
+    a_pn[kk, :, ss] = touched.p_new[pick]
+    a_c = np.zeros((K, m))
+    a_c[kk, ss] = order.c[rr]
+    a_po = np.zeros((K, m))
+    a_po[kk, ss] = order.prob[rr]
+    a_rank = np.full((K, m), -1, dtype=np.int64)
+    a_rank[kk, ss] = order.rank[rr]
+    return a_pn, a_c, a_po, a_rank
+
+
+def _cum_rows(x: np.ndarray) -> np.ndarray:
+    """Prefix sums along each row, with a leading 0."""
+    return np.concatenate([np.zeros((x.shape[0], 1)), np.cumsum(x, axis=1)], axis=1)
+
+
+class _TouchedPrefix:
+    """The touched repairs of a batch's checks by their place in the global order.
+
+    With prefix sums over them (``cp``: Σ p, ``cc``: Σ c, ``cpc``: Σ p times
+    the global minutes after, ``ccp``: Σ c times the global P before, ``ct``:
+    Σ over touched pairs a before b of p_a c_b), "Σ over touched repairs
+    placed before x" is one lookup (a batched searchsorted).
+    """
+
+    def __init__(self, a_po: np.ndarray, a_c: np.ndarray, a_rank: np.ndarray,
+                 order: _Order) -> None:
+        K, self._m = a_rank.shape
+        N = len(order.rhos)
+        key = np.where(a_rank >= 0, a_rank, N + 1)
+        by_rank = np.argsort(key, axis=1, kind="stable")
+        sr = np.take_along_axis(key, by_rank, axis=1)
+        sp = np.take_along_axis(a_po, by_rank, axis=1) * (sr <= N)
+        sc = np.take_along_axis(a_c, by_rank, axis=1) * (sr <= N)
+        srk = np.minimum(sr, N)
+        spc = sp * order.c_from[np.minimum(srk + 1, N)]
+        scp = sc * order.p_before[srk]
+        self.cp, self.cc = _cum_rows(sp), _cum_rows(sc)
+        self.cpc, self.ccp = _cum_rows(spc), _cum_rows(scp)
+        self.ct = _cum_rows(sc * self.cp[:, :-1])
+        self._k = K
+        self._stride = N + 2
+        self._flat = (sr + np.arange(K)[:, None] * self._stride).ravel()
+
+    def below(self, x: np.ndarray) -> np.ndarray:
+        """How many touched repairs of each check sit before global place ``x``."""
+        rows = np.arange(self._k).reshape((self._k,) + (1,) * (x.ndim - 1))
+        found = np.searchsorted(self._flat, (x + rows * self._stride).ravel(), side="left")
+        return found.reshape(x.shape) - rows * self._m
+
+    def at(self, table: np.ndarray, i: np.ndarray) -> np.ndarray:
+        """``table[check, i]`` for each check (the first axis of ``i``)."""
+        rows = np.arange(self._k).reshape((self._k,) + (1,) * (i.ndim - 1))
+        return table[rows, i]
 
 
 # --- the plan ------------------------------------------------------------------------------
@@ -666,14 +791,60 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
     tables = tables_for(model, max_faults)
     post = post if post is not None else posterior(model, evidence, max_faults=max_faults)
     p = post.p
-    phone = evidence.mode == "phone"
-    pos = tables.check_pos
+    checks = _check_standing(model, evidence, tables)
+    repairs, p_fix = _repair_standing(model, evidence, tables, p)
+    code, cmin, rmin = checks.code, checks.minutes, repairs.minutes
 
-    # checks: why each cannot be proposed (codes of _CHECK_STATUS), minutes with prerequisites
-    code = np.zeros(len(tables.check_ids), dtype=np.int8)
-    cmin = tables.check_minutes.copy()
-    cneeds, cblocked = _prerequisites(model, evidence, tables.checks_needing,
-                                      tables.check_needs, cmin, code, 8)
+    cand = np.flatnonzero(code == 0)
+    assign = assign_repairs(tables, repairs.code == 0, rmin)
+    supported = any_support(model, evidence, post.excluded)
+    detail: list[np.ndarray] = []
+    bits_c, eco_c, ecr_now = lookahead(tables, p, cand, cmin[cand], assign, rmin,
+                                       escalation=settings.escalation_minutes, detail=detail)
+    if not supported and len(cand):
+        # no answer points at a known cause yet, so no repair may follow a normal answer:
+        # after an outcome that supports no cause the cost is an escalation
+        z, ecr_after = detail
+        neutral = _neutral_outcomes(model, tables, cand, z.shape[1], post.excluded)
+        ecr_after = np.where(neutral, settings.escalation_minutes, ecr_after)
+        eco_c = cmin[cand] + (z * ecr_after).sum(axis=1)
+    bits = np.zeros(len(code))
+    eco = np.full(len(code), np.nan)
+    bits[cand], eco[cand] = bits_c, eco_c
+    result = Plan(Action("done"), post.ranking(limit=1).top, ecr_now, model, tables.check_ids,
+                  cmin, bits, eco, code, checks.needs, checks.blocked, tables.repair_ids, rmin,
+                  p_fix, tables.success * p_fix, repairs.code, repairs.needs, repairs.blocked,
+                  supported)
+    action = _decide(model, evidence, post, settings, result)
+    return replace(result, action=action)
+
+
+@dataclass(frozen=True)
+class _Standing:
+    """The checks or the repairs as a plan weighs them; the arrays and dicts fill in place.
+
+    ``code`` says why each cannot be proposed (an index into
+    ``_CHECK_STATUS`` or ``_REPAIR_STATUS``; 0: it can), ``minutes`` include
+    unmet prerequisites and setup, ``needs`` the unmet prerequisites in the
+    order to do them, ``blocked`` why an item got ``blocked_code``. ``items``
+    is ``model.checks`` or ``model.repairs``, keyed by ``ids``.
+    """
+
+    ids: tuple[str, ...]
+    items: Mapping[str, Any]
+    minutes: np.ndarray
+    code: np.ndarray
+    blocked_code: int
+    needs: dict[int, tuple[str, ...]] = field(default_factory=dict)
+    blocked: dict[int, str] = field(default_factory=dict)
+
+
+def _check_standing(model: Model, evidence: Evidence, tables: Tables) -> _Standing:
+    """Why each check cannot be proposed (codes of ``_CHECK_STATUS``), minutes with setup."""
+    st = _Standing(tables.check_ids, model.checks, tables.check_minutes.copy(),
+                   np.zeros(len(tables.check_ids), dtype=np.int8), 8)
+    code, cmin = st.code, st.minutes
+    _prerequisites(model, evidence, tables.checks_needing, tables.check_needs, st)
     code[tables.check_one_outcome] = 7
     code[tables.check_prep] = 6
     for i in tables.checks_only_if:
@@ -686,33 +857,36 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
             code[i] = 9
         elif extra > 0:
             cmin[i] += extra
-    _withhold(model, evidence, tables.checks_withheld, tables.check_ids, model.checks, cmin,
-              code, 8, cneeds, cblocked)
-    if phone:
+    _withhold(model, evidence, tables.checks_withheld, st)
+    if evidence.mode == "phone":
         code[~tables.check_phone] = 4
         for i in tables.checks_hazardous:
             if code[i] != 4 and not caller_safe(model, evidence,
                                                 model.checks[tables.check_ids[i]]):
                 code[i] = 10
+    pos = tables.check_pos
     for ids, c in ((evidence.skipped, 3), (evidence.unsure, 2), (evidence.findings, 1)):
         for cid in ids:
             if cid in pos:
                 code[pos[cid]] = c
+    return st
 
-    # repairs: usable ones, minutes with prerequisites, P(fixes a present cause)
+
+def _repair_standing(model: Model, evidence: Evidence, tables: Tables, p: np.ndarray,
+                     ) -> tuple[_Standing, np.ndarray]:
+    """The repairs (codes of ``_REPAIR_STATUS``, minutes with prerequisites) and P(fix)."""
     R = len(tables.repair_ids)
-    rcode = np.zeros(R, dtype=np.int8)
-    rmin = tables.minutes.copy()
-    rneeds, rblocked = _prerequisites(model, evidence, tables.repairs_needing,
-                                      tables.repair_needs, rmin, rcode, 3)
-    _withhold(model, evidence, tables.repairs_withheld, tables.repair_ids, model.repairs, rmin,
-              rcode, 3, rneeds, rblocked)
+    st = _Standing(tables.repair_ids, model.repairs, tables.minutes.copy(),
+                   np.zeros(R, dtype=np.int8), 3)
+    rcode = st.code
+    _prerequisites(model, evidence, tables.repairs_needing, tables.repair_needs, st)
+    _withhold(model, evidence, tables.repairs_withheld, st)
     p_fix = np.bincount(tables.fix_repair, weights=p[tables.fix_hyp], minlength=R)
     rcode[(p_fix <= EPS) & (rcode == 0)] = 4
     for i in tables.repairs_only_if:
         if not only_if_matches(model, evidence, model.repairs[tables.repair_ids[i]]):
             rcode[i] = 6
-    if phone:
+    if evidence.mode == "phone":
         rcode[~tables.repair_phone] = 2
         for i in tables.repairs_hazardous:
             if rcode[i] != 2 and not caller_safe(model, evidence,
@@ -723,29 +897,7 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
             rcode[tables.repair_index[rid]] = 5
     for rid in evidence.repairs_done:
         rcode[tables.repair_index[rid]] = 1
-    usable = rcode == 0
-
-    cand = np.flatnonzero(code == 0)
-    assign = assign_repairs(tables, usable, rmin)
-    supported = any_support(model, evidence, post.excluded)
-    detail: list[np.ndarray] = []
-    bits_c, eco_c, ecr_now = lookahead(tables, p, cand, cmin[cand], assign, rmin,
-                                       settings.escalation_minutes, detail)
-    if not supported and len(cand):
-        # no answer points at a known cause yet, so no repair may follow a normal answer:
-        # after an outcome that supports no cause the cost is an escalation
-        z, ecr_after = detail
-        neutral = _neutral_outcomes(model, tables, cand, z.shape[1], post.excluded)
-        ecr_after = np.where(neutral, settings.escalation_minutes, ecr_after)
-        eco_c = cmin[cand] + (z * ecr_after).sum(axis=1)
-    bits = np.zeros(len(code))
-    eco = np.full(len(code), np.nan)
-    bits[cand], eco[cand] = bits_c, eco_c
-    result = Plan(Action("done"), post.ranking(limit=1).top, ecr_now, model, tables.check_ids,
-                  cmin, bits, eco, code, cneeds, cblocked, tables.repair_ids, rmin, p_fix,
-                  tables.success * p_fix, rcode, rneeds, rblocked, supported)
-    action = _decide(model, evidence, post, settings, result)
-    return replace(result, action=action)
+    return st, p_fix
 
 
 def _neutral_outcomes(model: Model, tables: Tables, cand: np.ndarray, width: int,
@@ -761,49 +913,44 @@ def _neutral_outcomes(model: Model, tables: Tables, cand: np.ndarray, width: int
     return out
 
 
-def _withhold(model: Model, evidence: Evidence, which: tuple[int, ...], ids: tuple[str, ...],
-              items: Any, minutes: np.ndarray, code: np.ndarray, blocked_code: int,
-              needs: dict[int, tuple[str, ...]], blocked: dict[int, str]) -> None:
+def _withhold(model: Model, evidence: Evidence, which: tuple[int, ...], st: _Standing) -> None:
     """Items whose hazards wait for a state (the load supported): that step comes first.
 
     The preparation step that leaves the unit in that state is proposed first,
     even when it was done before and the state has changed since; with none,
     the item is blocked until the state is recorded (``state`` in the shell).
     """
+    needs, blocked = st.needs, st.blocked
     for i in which:
-        missing = missing_state(model, evidence, items[ids[i]])
+        missing = missing_state(model, evidence, st.items[st.ids[i]])
         if not missing:
             continue
         steps = state_steps(model, missing)
         if not steps:
             blocked[i] = "waiting for " + ", ".join(f"{k}: {v}" for k, v in missing.items())
-            code[i] = blocked_code
+            st.code[i] = st.blocked_code
             continue
         first = steps[0]
         if evidence.mode == "phone" and not model.checks[first].phone_ok:
             blocked[i] = f"needs {first} (site only)"
-            code[i] = blocked_code
+            st.code[i] = st.blocked_code
             continue
         if first not in needs.get(i, ()):
             needs[i] = (first,) + needs.get(i, ())
-            minutes[i] += model.checks[first].minutes
+            st.minutes[i] += model.checks[first].minutes
 
 
 def _prerequisites(model: Model, evidence: Evidence, which: tuple[int, ...],
-                   needs_of: tuple[tuple[str, ...], ...], minutes: np.ndarray, code: np.ndarray,
-                   blocked_code: int) -> tuple[dict[int, tuple[str, ...]], dict[int, str]]:
+                   needs_of: tuple[tuple[str, ...], ...], st: _Standing) -> None:
     """Unmet prerequisites of items ``which``: adds their minutes, marks the blocked ones."""
-    unmet: dict[int, tuple[str, ...]] = {}
-    blocked_by: dict[int, str] = {}
     for i in which:
         needs, blocked = missing_prerequisites(model, evidence, needs_of[i])
         if needs:
-            unmet[i] = needs
-            minutes[i] += sum(model.checks[n].minutes for n in needs)
+            st.needs[i] = needs
+            st.minutes[i] += sum(model.checks[n].minutes for n in needs)
         if blocked:
-            blocked_by[i] = blocked
-            code[i] = blocked_code
-    return unmet, blocked_by
+            st.blocked[i] = blocked
+            st.code[i] = st.blocked_code
 
 
 def next_action(model: Model, evidence: Evidence, *, max_faults: int = 1,

@@ -35,8 +35,9 @@ def _fill(row: dict[str, float], outcomes: tuple[str, ...]) -> dict[str, float]:
 
 
 def _check(id: str, title: str, minutes: float, outcomes: tuple[str, ...],
-           normal: dict[str, float], effects: dict[str, dict[str, float]],
+           normal: dict[str, float], effects: dict[str, dict[str, float]], *,
            unknown: dict[str, float] | None = None, **kw: Any) -> Check:
+    """A check with its rows (``normal``, ``unknown``, each effect) completed by :func:`_fill`."""
     return Check(
         id=id, title=title, minutes=minutes, outcomes=outcomes,
         effects={c: _fill(r, outcomes) for c, r in effects.items()},
@@ -73,7 +74,7 @@ def tiny_model(*, unknown_prior: float = 5.0, leak: float = 0.01) -> Model:
         _check("listen_click", "Listen for the click", 2, ("click", "silent"), {"click": 0.97},
                {"coil_open": {"silent": 0.97}, "fuse_blown": {"silent": 0.98},
                 "cable_break": {"silent": 0.95}, "lining_worn": {"click": 0.8}},
-               {"click": 0.5}, where="phone", caller="Does the brake click?"),
+               unknown={"click": 0.5}, where="phone", caller="Does the brake click?"),
         _check("fuse", "Look at the fuse", 3, ("intact", "blown"), {"intact": 0.98},
                {"fuse_blown": {"blown": 0.97}}, cautions=("lockout",)),
         _check("coil_ohms", "Coil resistance", 10, ("ok", "open", "low"), {"ok": 0.96},
@@ -128,12 +129,32 @@ def synthetic_model(n_causes: int, *, seed: int, checks_per_cause: float = 0.2,
     if n < 2:
         raise ValueError("a synthetic model needs at least two causes")
     ids = [f"c{i:05d}" for i in range(n)]
-    w = rng.lognormal(0.0, 1.0, n)
-    prior = 900.0 * w / w.sum()
-    causes = {c: Cause(c, f"Cause {c}", float(round(max(p, 1e-4), 6)))
-              for c, p in zip(ids, prior)}
+    # the draws are made in this order (causes, trees, checks, repairs): seeds stay comparable
+    causes = _synthetic_causes(rng, ids)
+    members = _complaint_members(rng, ids)
+    events, complaints = _fault_trees(rng, ids, members)
+    checks = _synthetic_checks(rng, ids, checks_per_cause=checks_per_cause,
+                               causes_per_check=causes_per_check, max_outcomes=max_outcomes,
+                               phone_share=phone_share)
+    repairs = _synthetic_repairs(rng, ids, members)
+    return Model(
+        id=f"synthetic-{n}", title=f"Synthetic pack of {n} causes", version="0",
+        packs=(f"synthetic-{n}",), notice="Synthetic pack for tests and benchmarks.",
+        parameters={}, complaints=complaints, events=events, causes=causes, checks=checks,
+        repairs=repairs, cautions={}, cases={}, unknown_prior=unknown_prior, leak=leak,
+    )
 
-    # fault trees: each cause under one complaint (a fifth under two), some via an event
+
+def _synthetic_causes(rng: np.random.Generator, ids: list[str]) -> dict[str, Cause]:
+    """Causes with log-normal priors that sum to about 900."""
+    w = rng.lognormal(0.0, 1.0, len(ids))
+    prior = 900.0 * w / w.sum()
+    return {c: Cause(c, f"Cause {c}", float(round(max(p, 1e-4), 6))) for c, p in zip(ids, prior)}
+
+
+def _complaint_members(rng: np.random.Generator, ids: list[str]) -> list[list[str]]:
+    """The causes under each complaint: each cause under one (a fifth under two)."""
+    n = len(ids)
     n_k = max(2, n // 20)
     home = rng.integers(0, n_k, n)
     members: list[list[str]] = [[] for _ in range(n_k)]
@@ -141,10 +162,16 @@ def synthetic_model(n_causes: int, *, seed: int, checks_per_cause: float = 0.2,
         members[k].append(ids[i])
         if rng.random() < 0.2:
             members[int(rng.integers(0, n_k))].append(ids[i])
+    return members
+
+
+def _fault_trees(rng: np.random.Generator, ids: list[str], members: list[list[str]],
+                 ) -> tuple[dict[str, Gate], dict[str, Complaint]]:
+    """One OR complaint per member list, its causes grouped by 1 to 4 under OR events."""
     events: dict[str, Gate] = {}
     complaints: dict[str, Complaint] = {}
     for k, mem in enumerate(members):
-        mem = list(dict.fromkeys(mem)) or [ids[int(rng.integers(0, n))]]
+        mem = list(dict.fromkeys(mem)) or [ids[int(rng.integers(0, len(ids)))]]
         inputs: list[str] = []
         i = 0
         while i < len(mem):
@@ -160,8 +187,14 @@ def synthetic_model(n_causes: int, *, seed: int, checks_per_cause: float = 0.2,
         kid = f"k{k:04d}"
         complaints[kid] = Complaint(kid, f"Complaint {kid}", Gate(kid, f"Complaint {kid}", "or",
                                                                    tuple(inputs)))
+    return events, complaints
 
-    # checks: chunks of the shuffled causes, plus a few extra listings
+
+def _synthetic_checks(rng: np.random.Generator, ids: list[str], *, checks_per_cause: float,
+                      causes_per_check: float, max_outcomes: int, phone_share: float,
+                      ) -> dict[str, Check]:
+    """A preparation step, then checks on chunks of the shuffled causes plus a few extra."""
+    n = len(ids)
     n_x = max(1, round(n * checks_per_cause))
     order = rng.permutation(n)
     chunks = np.array_split(order, n_x)
@@ -188,7 +221,12 @@ def synthetic_model(n_causes: int, *, seed: int, checks_per_cause: float = 0.2,
         checks[xid] = _check(xid, f"Check {xid}", float(rng.choice([1, 2, 3, 5, 10, 15, 20, 30])),
                              outs, normal, effects, where=where, needs=needs,
                              caller=f"Tell me about {xid}." if where == "phone" else "")
+    return checks
 
+
+def _synthetic_repairs(rng: np.random.Generator, ids: list[str], members: list[list[str]],
+                       ) -> dict[str, Repair]:
+    """One repair per cause, plus a unit replacement for some complaints' first causes."""
     repairs: dict[str, Repair] = {}
     for i, c in enumerate(ids):
         rid = f"r{i:05d}"
@@ -200,12 +238,7 @@ def synthetic_model(n_causes: int, *, seed: int, checks_per_cause: float = 0.2,
             rid = f"r_unit{k:04d}"
             fixes = tuple(dict.fromkeys(mem[:4]))
             repairs[rid] = Repair(rid, f"Replace unit {k}", 150.0, fixes, ("unit",), 0.97)
-    return Model(
-        id=f"synthetic-{n}", title=f"Synthetic pack of {n} causes", version="0",
-        packs=(f"synthetic-{n}",), notice="Synthetic pack for tests and benchmarks.",
-        parameters={}, complaints=complaints, events=events, causes=causes, checks=checks,
-        repairs=repairs, cautions={}, cases={}, unknown_prior=unknown_prior, leak=leak,
-    )
+    return repairs
 
 
 def pack_data(model: Model) -> dict[str, Any]:

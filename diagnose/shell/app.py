@@ -28,9 +28,11 @@ from collections.abc import Callable, Sequence
 from typing import TYPE_CHECKING, Any
 
 from diagnose.errors import DiagnoseError, InputError, JournalError
+from diagnose.physics.verdict import unit_text
 from diagnose.shell import commands
 from diagnose.shell.complete import Choice, CompletionState, choose
-from diagnose.shell.render import (
+from diagnose.shell.startup import FALLBACK_NOTICE
+from diagnose.views import (
     CautionsView,
     CautionView,
     CheckCard,
@@ -38,12 +40,10 @@ from diagnose.shell.render import (
     HelpView,
     NoticeView,
     RankingView,
-    RankRow,
     RepairCard,
     percent,
     why_text,
 )
-from diagnose.shell.startup import FALLBACK_NOTICE
 
 if TYPE_CHECKING:
     from diagnose.kb.model import Check, Model, Repair
@@ -121,9 +121,11 @@ class Shell:
         if self.resumed:
             self.say(f"Resuming session {self.session.session_id} ({self.model.title}, "
                      f"{self.session.mode} mode, {self.steps()} step(s) so far).", style="bold")
-            if self.session.pack_changed:
-                self.warn("the pack has changed since this session was recorded; "
-                          "the ranking uses the pack as it is now")
+            from diagnose.service import session_note
+
+            note = session_note(self.session)
+            if note:
+                self.warn(note)
         else:
             if not self.notice_shown:
                 self.console.print(NoticeView(self.session.notice or FALLBACK_NOTICE))
@@ -510,17 +512,7 @@ class Shell:
         return False
 
     def ranking_view(self, top: int = 5) -> RankingView:
-        from diagnose.kb.model import UNKNOWN_CAUSE
-
-        rows: list[RankRow] = []
-        unknown = None
-        for e in self.session.ranking().entries:
-            row = RankRow(e.cause, e.title, e.p)
-            if e.cause == UNKNOWN_CAUSE:
-                unknown = row
-            else:
-                rows.append(row)
-        return RankingView(tuple(rows), unknown, top=top)
+        return RankingView.of(self.session.ranking(), top=top)
 
     def cautions(self, ids: Sequence[str], reminded: Sequence[str] = ()
                  ) -> tuple[CautionView, ...]:
@@ -1103,16 +1095,6 @@ def _many(chk: Check) -> bool:
     return bool(inp is not None and inp.many)
 
 
-def unit_text(text: str) -> str:
-    """A unit (or a value with its unit) as people write it.
-
-    >>> unit_text("0.5 mm**2"), unit_text("10 N*m"), unit_text("20 degC")
-    ('0.5 mm²', '10 N·m', '20 °C')
-    """
-    return (text.replace("**2", "²").replace("**3", "³").replace("*", "·")
-            .replace("degC", "°C").replace("degF", "°F"))
-
-
 def _has_words(typed: str, text: str) -> bool:
     """Whether every word typed is a whole word of ``text`` (case-insensitive).
 
@@ -1203,26 +1185,6 @@ def _reader(console: Any, holder: list[Shell]) -> Any:
     return PromptReader(session, toolbar=lambda: holder[0].toolbar() if holder else "")
 
 
-def _journal(args: argparse.Namespace) -> tuple[Any, str | None]:
-    """The journal as the session's sink (and its path), or (None, None) while there is none."""
-    try:
-        from diagnose.journal.paths import journal_path
-        from diagnose.journal.store import Journal
-    except ModuleNotFoundError:
-        return None, None
-    path = journal_path(getattr(args, "journal", None))
-    return Journal(path), str(path)
-
-
-def _overlay(args: argparse.Namespace, pack_id: str) -> Any:
-    """The learned-priors overlay the pack was loaded with, for the journal's record."""
-    try:
-        from diagnose.commands.kb import _learned
-    except ImportError:
-        return None
-    return _learned(args, pack_id)
-
-
 def main(args: argparse.Namespace, *, console: Any = None, reader: Any = None) -> int:
     """`diagnose start` and bare `diagnose`: a new session in the shell.
 
@@ -1234,8 +1196,10 @@ def main(args: argparse.Namespace, *, console: Any = None, reader: Any = None) -
         InputError: no such pack or a bad mode; KnowledgeError: the pack is broken;
         JournalError: the journal cannot be written.
     """
-    from diagnose.commands.kb import load
     from diagnose.kb.locate import DEFAULT_PACK
+    from diagnose.service import Where, journal_path, open_journal, open_pack, start
+
+    where = Where.of(args)
 
     ref = getattr(args, "pack", None) or DEFAULT_PACK
     mode = getattr(args, "mode", None) or "site"
@@ -1247,12 +1211,12 @@ def main(args: argparse.Namespace, *, console: Any = None, reader: Any = None) -
 
         notice = manifest_notice(ref, getattr(args, "packs", None))
     if notice is not None:
-        from diagnose.shell.render import NoticeView
         from diagnose.shell.startup import Preload, read_notice_while_loading
+        from diagnose.views import NoticeView
 
         console.print(NoticeView(notice))
         reader = _reader(console, holder)  # imported first: the loading then has the CPU
-        loading = Preload(lambda: load(args, ref))
+        loading = Preload(lambda: open_pack(ref, where))
         try:
             model = read_notice_while_loading(console, reader, notice, loading)
         except EOFError:
@@ -1262,81 +1226,35 @@ def main(args: argparse.Namespace, *, console: Any = None, reader: Any = None) -
     else:
         if console.is_terminal:  # reading and checking a pack takes a moment
             console.print(f"Loading the pack {ref} ...", style="dim", markup=False)
-        model = load(args, ref)
-    journal, path = _journal(args)
-    try:
-        if journal is not None:
-            from diagnose.journal.recorder import start_session
-
-            session = start_session(journal, model, mode=mode,
-                                    who=getattr(args, "who", None) or None,
-                                    overlay=_overlay(args, model.id))
-        else:
-            from diagnose.session import MemorySink, Session
-
-            session = Session(model, mode=mode, sink=MemorySink())
-        return _run(session, console, reader, path, resumed=False, holder=holder,
-                    notice_shown=notice is not None)
-    finally:
-        if journal is not None:
-            journal.close()
+        model = open_pack(ref, where)
+    with open_journal(where) as journal:
+        session = start(journal, model, where, mode=mode, who=getattr(args, "who", None) or None)
+        return _run(session, console, reader, str(journal_path(where)), resumed=False,
+                    holder=holder, notice_shown=notice is not None)
 
 
 def resume(args: argparse.Namespace, session_id: str, *, console: Any = None,
            reader: Any = None) -> int:
     """Continue session ``session_id`` from the journal in the shell (for `diagnose resume ID`).
 
-    The pack is ``args.pack`` when given; else the id the session recorded, on the
-    search path (``args.packs``, as for `start`); else the folder the session
-    recorded (a pack given by folder at the start). The learned overlay applies
-    as for `start`; the events are replayed and new ones are appended to the
-    same session.
+    The pack is chosen by the service's one rule (``diagnose.service.recorded_pack``:
+    ``args.pack`` when given, else the recorded knowledge by its content hash, from
+    the folder the session recorded or its id on the search path); the events are
+    replayed and new ones are appended to the same session.
 
     Raises:
         JournalError: no journal, no such session, or the session is closed;
         InputError: the pack cannot be found, or the session was recorded with another pack.
     """
-    from diagnose.commands.kb import load
-    from diagnose.journal.recorder import resume_session
+    from diagnose.service import Where, journal_path, need_journal, open_journal
+    from diagnose.service import resume as resume_session
 
-    journal, path = _journal(args)
-    if journal is None:
-        raise JournalError("there is no journal store in this installation")
+    where = Where.of(args)
+    need_journal(where).close()  # a missing journal is said as such, not made anew
     console = console or _console()
-    try:
-        info = journal.session(session_id)
-        ref = getattr(args, "pack", None) or _recorded_pack(args, journal, session_id,
-                                                             info.pack_id)
-        model = load(args, ref)  # replay checks that it is the pack the session recorded
-        session = resume_session(journal, session_id, model)
-        return _run(session, console, reader, path, resumed=True)
-    finally:
-        journal.close()
-
-
-def _recorded_pack(args: argparse.Namespace, journal: Any, session_id: str,
-                   pack_id: str) -> str:
-    """The pack a session is resumed with: its id on the search path, else its recorded folder.
-
-    Raises:
-        InputError: neither is there (the message says where the folder was).
-    """
-    from diagnose.kb.locate import find_pack
-
-    try:
-        find_pack(pack_id, getattr(args, "packs", None))
-        return pack_id
-    except InputError as exc:
-        events = journal.load_events(session_id)
-        first = events[0].data if events and events[0].kind == "notice" else {}
-        folder = str(first.get("path") or "")
-        if not folder:
-            raise
-        if not os.path.isdir(folder):
-            raise InputError("pack", f"no pack {pack_id!r} on the search path, and the folder "
-                             f"the session was started with ({folder}) is gone; name the pack "
-                             "with --packs") from exc
-        return folder
+    with open_journal(where) as journal:
+        resumed = resume_session(journal, session_id, where, getattr(args, "pack", None))
+        return _run(resumed.session, console, reader, str(journal_path(where)), resumed=True)
 
 
 def _run(session: Session, console: Any, reader: Any, path: str | None, *,

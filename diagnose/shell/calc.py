@@ -25,12 +25,11 @@ class _Refused(argparse.ArgumentParser):
 
 
 def _parsers() -> tuple[argparse.ArgumentParser, dict[str, argparse.ArgumentParser]]:
-    from diagnose.commands import calc as calc_command
+    from diagnose.service.calc import register
 
     root = _Refused(prog="", add_help=False)
     sub = root.add_subparsers(dest="group", parser_class=_Refused)
-    calc_command.register(sub)
-    calc_parser = sub.choices["calc"]
+    calc_parser = register(sub)
     names: dict[str, argparse.ArgumentParser] = {}
     for action in calc_parser._actions:  # the evaluators' sub-parsers, for their help text
         if isinstance(action, argparse._SubParsersAction):
@@ -62,16 +61,6 @@ def run_calc(line: str) -> Any:
         raise InputError("calc", f"no calculator {name!r}; known: {', '.join(EVALUATORS)}")
     if len(tokens) == 1 or any(t in ("-h", "--help", "help") for t in tokens[1:]):
         return Text(names[name].format_help().replace("usage:  calc", "usage: calc"))
-    args = root.parse_args(["calc", *tokens])
-    args.calc_json = False
-    # `diagnose calc` prints the verdict itself; keep its output and show it here, so that
-    # the shell and the command line compute and show a calculation the same way.
-    from contextlib import redirect_stdout
-    from io import StringIO
+    from diagnose.service.calc import verdict_of
 
-    from diagnose.commands.calc import run
-
-    buffer = StringIO()
-    with redirect_stdout(buffer):
-        run(args)
-    return Text(buffer.getvalue().rstrip("\n"))
+    return verdict_of(root.parse_args(["calc", *tokens]))  # a verdict draws itself

@@ -34,7 +34,7 @@ def state_dir(env: dict[str, str] | None = None) -> Path:
     if xdg and os.path.isabs(xdg):
         return Path(xdg) / "diagnose"
     if sys.platform in ("win32", "darwin"):
-        from diagnose.journal.paths import data_dir
+        from diagnose.paths import data_dir
 
         return data_dir(env)
     return Path.home() / ".local" / "state" / "diagnose"

@@ -87,7 +87,7 @@ def read_notice_while_loading(console: Any, reader: Any, notice: str, loading: P
         DiagnoseError: the pack cannot be loaded (after Enter).
     """
     from diagnose.shell.complete import CompletionState
-    from diagnose.shell.render import NoticeView
+    from diagnose.views import NoticeView
 
     while True:
         try:

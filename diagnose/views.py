@@ -1,8 +1,9 @@
-"""What the shell shows, as rich renderables that a report can reuse.
+"""What the faces show, as rich renderables: one presentation for the shell and `run`.
 
 Each object is a small frozen value built from the compiled model and the
-session's answers, and draws itself with ``__rich_console__``; the shell
-computes, then ``console.print(obj)``. Everything fits 80 columns and reads
+session's answers, and draws itself with ``__rich_console__``; a face
+computes, then ``console.print(obj)``. Probabilities are shown by
+:func:`percent` everywhere (the repair log's templates use it too). Everything fits 80 columns and reads
 the same without colour (NO_COLOR, a pipe, a log file).
 """
 
@@ -12,7 +13,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any, NamedTuple
 
-from diagnose.text import clean
+from diagnose.text import clean, percent
 
 #: Width of the probability bars in the ranking, in characters.
 BAR_WIDTH = 20
@@ -54,21 +55,6 @@ def bar(share: float, width: int = BAR_WIDTH) -> str:
     return ("█" * full + partial).ljust(width)[:width]
 
 
-def percent(p: float) -> str:
-    """A probability for people: "62%", "<1%", ">99%".
-
-    >>> percent(0.623), percent(0.001), percent(0.9996), percent(0.0)
-    ('62%', '<1%', '>99%', '0%')
-    """
-    if p <= 0:
-        return "0%"
-    if p < 0.005:
-        return "<1%"
-    if p > 0.995 and p < 1:
-        return ">99%"
-    return f"{p:.0%}"
-
-
 def minutes_text(minutes: float) -> str:
     """ "5 min", "1 h 30 min".
 
@@ -98,6 +84,21 @@ class RankingView:
     unknown: RankRow | None = None
     top: int = TOP
     title: str = "Most likely causes"
+
+    @classmethod
+    def of(cls, ranking: Any, top: int = TOP) -> RankingView:
+        """The view of a session's ranking (``Session.ranking()``): the one way it is shown."""
+        from diagnose.kb.model import UNKNOWN_CAUSE
+
+        rows: list[RankRow] = []
+        unknown = None
+        for e in ranking.entries:
+            row = RankRow(e.cause, e.title, e.p)
+            if e.cause == UNKNOWN_CAUSE:
+                unknown = row
+            else:
+                rows.append(row)
+        return cls(tuple(rows), unknown, top=top)
 
     def shown(self) -> list[RankRow]:
         rows = list(self.rows[: self.top])

@@ -1,8 +1,10 @@
-"""`diagnose start [PACK] [--mode site|phone]`: the interactive diagnosis shell.
+"""The shell's own commands on the command line: `diagnose start` and `diagnose resume ID`.
 
-Bare `diagnose` calls :func:`default`, which opens the shell on the default
-pack in site mode. The shell itself (prompt_toolkit, rich) is imported only
-when it runs, so `diagnose --help` stays fast.
+`diagnose start [PACK] [--mode site|phone]` opens the interactive diagnosis
+shell on a new session; bare `diagnose` calls :func:`default`, which opens it
+on the default pack in site mode; `diagnose resume ID` continues an open
+session in it. The shell itself (prompt_toolkit, rich) is imported only when
+it runs, so `diagnose --help` stays fast.
 """
 
 from __future__ import annotations
@@ -32,6 +34,16 @@ def register(sub: Any) -> None:
                    help="who does the diagnosis, for the repair log")
     p.set_defaults(handler=run)
 
+    p = sub.add_parser("resume", help="continue an open diagnosis where it stopped",
+                       description="Continue an open session in the shell, exactly where it "
+                       "stopped: its events are replayed from the journal and new ones are "
+                       "added to it. The pack is the one the session was recorded with (found "
+                       "by its content hash in the folder it recorded or by its id on the "
+                       "search path); a changed pack is named. Without a terminal, answers are "
+                       "read from standard input.")
+    p.add_argument("session_id", metavar="ID", help="the session id (see `diagnose sessions`)")
+    p.set_defaults(handler=resume)
+
 
 def default(args: argparse.Namespace) -> int:
     """Bare `diagnose`: the shell on the default pack, in site mode."""
@@ -42,3 +54,9 @@ def run(args: argparse.Namespace) -> int:
     from diagnose.shell.app import main
 
     return main(args)
+
+
+def resume(args: argparse.Namespace) -> int:
+    from diagnose.shell.app import resume as resume_shell
+
+    return resume_shell(args, args.session_id)

@@ -242,10 +242,12 @@ def _head(path: str) -> bytes | None:
         return None
 
 
+#: The SQLite application id that marks a file as a diagnose journal ("DGNJ").
+APPLICATION_ID = 0x44474E4A
+
+
 def _is_journal(head: bytes) -> bool:
     """A database header whose application id (bytes 68-71) marks a diagnose journal."""
-    from diagnose.journal.store import APPLICATION_ID
-
     return len(head) >= 72 and int.from_bytes(head[68:72], "big") == APPLICATION_ID
 
 

@@ -1,0 +1,288 @@
+"""The one floor the faces stand on: open a pack, open a journal, start, resume, report.
+
+The command line, the shell and the reports do none of these themselves; each
+asks this layer, so that they cannot disagree. What a face was told about
+packs and journal (``--packs``, ``--journal``, ``--no-learned``) is one
+:class:`Where`.
+
+Which pack a recorded session continues with (:func:`recorded_pack`) is one
+rule for every face (`diagnose resume`, `run --resume`, the shell, `report`):
+
+1. the pack named by the person (``PACK``), if any;
+2. else the candidates, in this order: the folder the session recorded (while
+   it is still there), then the recorded pack id on the search path; the first
+   candidate whose content hash is the recorded one is taken (the knowledge
+   the session was recorded with);
+3. else, when none has the recorded hash, the first candidate that loads, and
+   the choice says the pack has changed (recorded hash, hash now), which every
+   face names.
+
+A candidate is loaded only when the one before it is missing or changed.
+"""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from diagnose.errors import DiagnoseError, InputError, JournalError
+
+
+@dataclass(frozen=True)
+class Where:
+    """Where packs and the journal are, and whether learned priors apply (from the face)."""
+
+    packs: tuple[str, ...] = ()
+    journal: str | None = None
+    learned: bool = True
+
+    @classmethod
+    def of(cls, args: Any) -> Where:
+        """From parsed command-line options (``packs``, ``journal``, ``no_learned``)."""
+        return cls(tuple(getattr(args, "packs", None) or ()), getattr(args, "journal", None),
+                   not getattr(args, "no_learned", False))
+
+    @property
+    def search(self) -> list[str]:
+        return list(self.packs)
+
+    def own(self) -> Where:
+        """The same places, with the packs' own priors (never learned ones)."""
+        from dataclasses import replace
+
+        return replace(self, learned=False)
+
+
+# --- packs -----------------------------------------------------------------------------------
+
+
+def learned_overlay(pack_id: str, where: Where) -> Any:
+    """The learned-priors overlay of ``pack_id`` beside the journal; None: none, or not wanted."""
+    if not where.learned:
+        return None
+    from diagnose.journal.learn import overlay_for
+
+    return overlay_for(pack_id, where.journal)
+
+
+def open_pack(ref: str, where: Where) -> Any:
+    """The compiled pack ``ref`` (an id or a folder), with its learned priors unless not wanted.
+
+    Raises:
+        InputError: no such pack. KnowledgeError: the pack has errors.
+    """
+    from diagnose.kb.loader import load_model, read_pack
+    from diagnose.kb.locate import find_pack
+
+    try:
+        src, _ = read_pack(find_pack(ref, where.search))
+    except (DiagnoseError, OSError):  # load_model below reports the real problem
+        return load_model(ref, search=where.search)
+    overlay = learned_overlay(src.id, where)
+    return load_model(ref, search=where.search, learned=overlay.priors if overlay else None)
+
+
+def try_pack(ref: str, where: Where) -> Any:
+    """``open_pack(ref, where)``, or None when it cannot be found or loaded (for figures)."""
+    try:
+        return open_pack(ref, where)
+    except DiagnoseError:
+        return None
+
+
+def pack_overlay(model: Any, where: Where) -> Any:
+    """The overlay ``open_pack`` applied to ``model`` (for the journal's record), or None."""
+    return learned_overlay(model.id, where)
+
+
+# --- the journal -----------------------------------------------------------------------------
+
+
+def journal_path(where: Where) -> Path:
+    from diagnose.paths import journal_path as path_of
+
+    return path_of(where.journal)
+
+
+def read_journal(where: Where) -> Any:
+    """The journal opened for reading, or None when nothing was recorded there yet.
+
+    A missing file, a 0-byte file and a journal never written to are alike: no
+    sessions.
+
+    Raises:
+        JournalError: the file is damaged or not a journal.
+    """
+    from diagnose.journal.store import Journal, inspect
+
+    path = journal_path(where)
+    if inspect(path) == 0:
+        return None
+    return Journal(path, readonly=True)
+
+
+def need_journal(where: Where) -> Any:
+    """The journal opened for reading.
+
+    Raises:
+        JournalError: nothing was recorded there yet (the message says where), or damaged.
+    """
+    journal = read_journal(where)
+    if journal is None:
+        raise JournalError(f"there is no journal at {journal_path(where)} yet: nothing was "
+                           "recorded there (see --journal and DIAGNOSE_JOURNAL)")
+    return journal
+
+
+def open_journal(where: Where) -> Any:
+    """The journal opened for writing (made when missing).
+
+    Raises:
+        JournalError: it cannot be opened or written.
+    """
+    from diagnose.journal.store import Journal
+
+    return Journal(journal_path(where))
+
+
+# --- which pack a recorded session continues with ---------------------------------------------
+
+
+@dataclass(frozen=True)
+class PackChoice:
+    """The pack a recorded session continues with, and whether it is the recorded knowledge."""
+
+    model: Any
+    recorded_hash: str
+
+    @property
+    def changed(self) -> bool:
+        return bool(self.recorded_hash) and self.model.content_hash != self.recorded_hash
+
+    def note(self) -> str:
+        """One line for every face when the pack has changed ("" when it has not)."""
+        return changed_note(self.model, self.recorded_hash)
+
+
+def changed_note(model: Any, recorded_hash: str) -> str:
+    """What every face says when a session goes on with knowledge other than it was recorded
+    with ("" when it is the same)."""
+    if not recorded_hash or model.content_hash == recorded_hash:
+        return ""
+    return (f"the pack {model.id} has changed since this session was recorded (recorded "
+            f"{recorded_hash[:12]}, now {model.content_hash[:12]}); the ranking uses the pack "
+            "as it is now")
+
+
+def session_note(session: Any) -> str:
+    """:func:`changed_note` for a rebuilt session (its notice holds the recorded hash)."""
+    events = session.events
+    first = events[0].data if events and events[0].kind == "notice" else {}
+    return changed_note(session.model, str(first.get("content_hash") or ""))
+
+
+def recorded_folder(events: list[Any]) -> str:
+    """The pack folder a session's notice recorded, while it is still there ("" if not)."""
+    first = events[0].data if events and events[0].kind == "notice" else {}
+    folder = str(first.get("path") or "")
+    return folder if folder and Path(folder).is_dir() else ""
+
+
+def recorded_pack(info: Any, events: list[Any], where: Where, pack: str | None = None
+                  ) -> PackChoice:
+    """The pack session ``info`` continues with, by the rule in this module's docstring.
+
+    Raises:
+        InputError: no candidate can be found (the message says where the folder was);
+        KnowledgeError: the only candidate is broken.
+    """
+    first = events[0].data if events and events[0].kind == "notice" else {}
+    recorded = str(first.get("content_hash") or getattr(info, "content_hash", "") or "")
+    if pack:
+        return PackChoice(open_pack(pack, where), recorded)
+    candidates = [c for c in (recorded_folder(events), info.pack_id) if c]
+    fallback: Any = None
+    failure: DiagnoseError | None = None
+    for ref in candidates:
+        try:
+            model = open_pack(ref, where)
+        except DiagnoseError as exc:
+            failure = failure or exc
+            continue
+        if model.id != info.pack_id:  # a folder now holding another pack
+            continue
+        if not recorded or model.content_hash == recorded:
+            return PackChoice(model, recorded)
+        fallback = fallback or model
+    if fallback is not None:
+        return PackChoice(fallback, recorded)
+    gone = str(first.get("path") or "")
+    if isinstance(failure, InputError) or failure is None:
+        where_was = f" (its folder {gone} is gone)" if gone and not os.path.isdir(gone) else ""
+        raise InputError("pack", f"session {info.id} ran on the pack {info.pack_id}{where_was}, "
+                         "which is not on the search path; name its folder or add --packs DIR")
+    raise failure
+
+
+def report_pack(info: Any, events: list[Any], where: Where) -> PackChoice | None:
+    """The pack a repair log reads titles from, by the same rule; None when none can be loaded."""
+    try:
+        return recorded_pack(info, events, where)
+    except DiagnoseError:
+        return None
+
+
+def recorded_events(journal: Any, session_id: str) -> list[Any]:
+    """The events of a recorded session, each checked first.
+
+    Raises:
+        JournalError: no such session, or an event altered by hand (named: session, event).
+    """
+    journal.verify_events(session_id)
+    return list(journal.load_events(session_id))
+
+
+# --- sessions --------------------------------------------------------------------------------
+
+
+def start(journal: Any, model: Any, where: Where, *, mode: str = "site", max_faults: int = 1,
+          who: str | None = None) -> Any:
+    """A new session on ``model``: recorded in ``journal``, or in memory when it is None."""
+    if journal is None:
+        from diagnose.session import MemorySink, Session
+
+        return Session(model, mode=mode, max_faults=max_faults, sink=MemorySink())
+    from diagnose.journal.recorder import start_session
+
+    return start_session(journal, model, mode=mode, max_faults=max_faults, who=who,
+                         overlay=pack_overlay(model, where))
+
+
+@dataclass(frozen=True)
+class Resumed:
+    """A recorded session rebuilt, the pack it continues with, and its journal record."""
+
+    session: Any
+    pack: PackChoice
+    info: Any
+
+
+def resume(journal: Any, session_id: str, where: Where, pack: str | None = None, *,
+           choice: PackChoice | None = None) -> Resumed:
+    """Session ``session_id`` of ``journal`` rebuilt from its events, recording on into it.
+
+    ``choice``: the pack already chosen by :func:`recorded_pack` (else chosen here).
+
+    Raises:
+        JournalError: no such session, or it is closed; InputError: no pack to continue with,
+        or the pack named is another one than the session's.
+    """
+    from diagnose.journal.recorder import ensure_open, resume_session
+
+    info = journal.session(session_id)
+    ensure_open(info)
+    if choice is None:
+        choice = recorded_pack(info, recorded_events(journal, session_id), where, pack)
+    return Resumed(resume_session(journal, session_id, choice.model), choice, info)
