@@ -9,31 +9,7 @@ journal's SQLite store is one), and only then appends it. The state
 events, so :meth:`Session.undo` is an ``undo`` event that hides an earlier
 one, and :meth:`Session.replay` rebuilds a session from a journal.
 
-Event kinds and their ``data`` keys:
-
-=========== ===================================================================
-notice      pack, version, content_hash, packs, text, mode, max_faults, path
-            (first; ``path``: the pack's folder, absolute; not in older journals)
-identity    free keys about the unit and the call (serial, customer, ...)
-nameplate   param, text (as typed), value (normalised: "24 V", "yes", "unknown")
-complaint   complaint
-answer      check, outcome
-reading     check, text (str or list), verdict, weights, summary, figures
-unsure      check
-skip        check (the check cannot be done now)
-skip_repair repair (the repair cannot be done now: no part on the van, no access)
-ack         caution, item (the check or repair whose card it was acknowledged
-            for; not in older journals), step (steps done when it was given;
-            not in older journals)
-reminder    item, cautions (acknowledged earlier and still valid: shown as a
-            one-line reminder on this card)
-repair      repair, cured
-note        text
-mode        mode ("site" or "phone")
-state       state, value (the technician says the unit is now so: power restored...)
-end         result, cause, p, repair, parts, text
-undo        index (of the event undone), kind (of that event)
-=========== ===================================================================
+The kinds of event and the keys of their data are code: ``diagnose.events.KINDS``.
 
 ``notice``, ``ack``, ``end`` and ``undo`` cannot be undone; a safety
 acknowledgement stays on the record. A DANGER or WARNING caution is
@@ -54,6 +30,7 @@ from datetime import datetime, timezone
 from typing import Any, Protocol
 
 from diagnose.errors import InputError
+from diagnose.events import KINDS, UNDOABLE, effective
 from diagnose.kb.model import Case, Caution, Check, Model, Parameter, Step
 from diagnose.physics.verdict import Verdict
 from diagnose.reasoning.evidence import MODES, Evidence
@@ -63,6 +40,7 @@ from diagnose.reasoning.explain import (
     explain_check,
     explain_ranking,
 )
+from diagnose.reasoning.nameplate import only_if_matches, parameter_needed
 from diagnose.reasoning.planner import (
     DEFAULT,
     Action,
@@ -72,16 +50,10 @@ from diagnose.reasoning.planner import (
     nameplate_value,
     plan,
 )
-from diagnose.reasoning.nameplate import only_if_matches, parameter_needed
 from diagnose.reasoning.posterior import Posterior, Ranking, posterior
 from diagnose.reasoning.safety import card_cautions, lapsed_since, renewals
 from diagnose.reasoning.unitstate import setup_steps, unit_state
 
-EVENT_KINDS = ("notice", "identity", "nameplate", "complaint", "answer", "reading", "unsure",
-               "skip", "skip_repair", "ack", "reminder", "repair", "note", "mode", "state", "end",
-               "undo")
-UNDOABLE = frozenset({"identity", "nameplate", "complaint", "answer", "reading", "unsure",
-                      "skip", "skip_repair", "repair", "note", "mode", "state"})
 END_RESULTS = ("resolved", "visit", "escalated", "abandoned")
 
 
@@ -132,9 +104,7 @@ def _now() -> str:
 
 def effective_events(events: Iterable[Event]) -> list[Event]:
     """The events that still count: ``undo`` events and the events they undid are dropped."""
-    listed = list(events)
-    undone = {int(e.data["index"]) for e in listed if e.kind == "undo" and "index" in e.data}
-    return [e for i, e in enumerate(listed) if i not in undone and e.kind != "undo"]
+    return effective(events)
 
 
 def apply(evidence: Evidence, event: Event) -> Evidence:
@@ -312,6 +282,9 @@ class Session:
         return str(first.data.get("content_hash", "")) != self.model.content_hash
 
     def _record(self, kind: str, data: dict[str, Any]) -> Event:
+        missing = [k for k in KINDS[kind].needs if k not in data]  # KeyError: not a kind
+        if missing:  # a bug of the caller, never of the person typing
+            raise ValueError(f"a {kind} event needs {', '.join(missing)}")
         event = Event(kind, data, self._clock())
         evidence = fold(self._events + [event]) if kind == "undo" else apply(self._evidence, event)
         self.sink.write(self.session_id, event)  # committed before the state changes

@@ -1,19 +1,26 @@
 """What the faces show, as rich renderables: one presentation for the shell and `run`.
 
 Each object is a small frozen value built from the compiled model and the
-session's answers, and draws itself with ``__rich_console__``; a face
-computes, then ``console.print(obj)``. Probabilities are shown by
-:func:`percent` everywhere (the repair log's templates use it too). Everything fits 80 columns and reads
-the same without colour (NO_COLOR, a pipe, a log file).
+session's answers (or wrapping a value of a lower layer: a measurement's
+verdict, the journal's statistics), and draws itself with
+``__rich_console__``; a face computes, then ``console.print(view)``. The
+views of the reasoning's results are in :mod:`diagnose.views_reasoning`.
+Probabilities are shown by :func:`percent` everywhere (the repair log's
+templates use it too). Everything fits 80 columns and reads the same
+without colour (NO_COLOR, a pipe, a log file).
 """
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field, replace
-from typing import Any, NamedTuple
+from typing import TYPE_CHECKING, Any, NamedTuple
 
 from diagnose.text import clean, percent
+
+if TYPE_CHECKING:
+    from diagnose.journal.stats import Stats
+    from diagnose.physics.verdict import Verdict
 
 #: Width of the probability bars in the ranking, in characters.
 BAR_WIDTH = 20
@@ -540,3 +547,74 @@ class HelpView:
         yield table
         for line in self.extra:
             yield Text(clean(line))
+
+
+@dataclass(frozen=True)
+class VerdictView:
+    """A measurement's verdict: a small table of the figures, then the verdict line and summary."""
+
+    verdict: Verdict
+
+    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
+        from rich.table import Table
+        from rich.text import Text
+
+        from diagnose.physics.verdict import GOOD_VERDICTS, format_number, unit_text
+
+        v = self.verdict
+        table = Table(box=None, show_header=False, pad_edge=False, title=v.evaluator,
+                      title_justify="left", title_style="bold")
+        table.add_column("figure", overflow="fold")
+        table.add_column("value", justify="right", no_wrap=True)
+        table.add_column("unit", no_wrap=True)
+        for fig in v.figures.values():
+            table.add_row(fig.label, format_number(fig.value), unit_text(fig.unit))
+        if v.figures:
+            yield table
+        style = "bold green" if v.verdict in GOOD_VERDICTS else "bold red"
+        line = Text("verdict: ")
+        line.append(v.label, style=style)
+        if v.fallback:
+            line.append(f"  (plain verdict: {v.fallback.replace('_', ' ')})")
+        if v.weights:
+            shares = ", ".join(f"{name.replace('_', ' ')} {share:.0%}"
+                               for name, share in v.weights.items())
+            line.append(f"  (near a band edge: {shares})")
+        yield line
+        if v.summary:
+            yield Text(v.summary)
+
+
+@dataclass(frozen=True)
+class StatsView:
+    """The statistics of a journal: counts, end results, minutes to the cure, the top tables."""
+
+    stats: Stats
+
+    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
+        from rich.table import Table
+
+        st = self.stats
+        scope = f"pack {st.pack}" if st.pack else "all packs"
+        yield (f"{st.sessions} session(s) of {scope}: {st.open} open, {st.closed} closed, "
+               f"{st.cures} cured, {st.escalated} escalated")
+        if st.results:
+            yield "end results: " + ", ".join(f"{k} {v}" for k, v in st.results.items())
+        if st.mean_minutes_to_cure is not None:
+            yield (f"mean minutes to the cure: {st.mean_minutes_to_cure:.1f} on the clock, "
+                   f"{st.mean_work_minutes_to_cure:.1f} by the pack's estimates")
+        rate = st.first_repair_rate
+        if rate is not None:
+            yield (f"first repair cured: {st.first_repair_cured} of {st.with_repair} "
+                   f"({rate:.0%})")
+        for title, rows, label in (("Confirmed causes", st.causes, "cause"),
+                                   ("Checks used most", st.checks, "check")):
+            if not rows:
+                continue
+            table = Table(title=title, title_justify="left", box=None, pad_edge=False)
+            table.add_column("#", justify="right")
+            table.add_column(label, overflow="fold")
+            table.add_column("id", style="dim", overflow="fold")
+            for ident, name, n in rows:
+                table.add_row(str(n), name, ident)
+            yield table

@@ -16,6 +16,7 @@ from diagnose.errors import InputError
 from diagnose.reasoning import analysis as analysis_module
 from diagnose.reasoning.analysis import NO_SIMULATOR, Effort, analyze, entropy_bound
 from diagnose.report_analysis import render_analysis, write_analysis
+from diagnose.views_reasoning import PackAnalysisView
 
 SILENT = {"ok": 0.05, "bad": 0.95}
 
@@ -99,7 +100,7 @@ def test_effort_from_a_simulator(monkeypatch):
     html = render_analysis(result, "html")
     assert '<td class="n">75%</td><td class="n">0.5</td>' in html
     con = Console(file=io.StringIO(), width=80, color_system=None)
-    con.print(result)
+    con.print(PackAnalysisView(result))
     text = " ".join(con.file.getvalue().split())
     assert "escalated or 'unknown' first: planner 75%, chart 0%" in text
     assert "repairs in vain: planner 0.5, chart 2.0" in text
@@ -120,7 +121,7 @@ def test_unknown_complaint_is_an_input_error():
 
 def test_screen_rendering(no_simulator):
     con = Console(file=io.StringIO(), width=80, color_system=None)
-    con.print(analyze(_model()))
+    con.print(PackAnalysisView(analyze(_model())))
     text = con.file.getvalue()
     assert "Knowledge analysis: test-pack" in text
     assert "P(top) exact 0.0589" in text

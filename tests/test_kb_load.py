@@ -13,6 +13,7 @@ import yaml
 
 from diagnose.cli import main
 from diagnose.errors import KnowledgeError
+from diagnose.kb.compiler import build_graph
 from diagnose.kb.loader import load_model, read_chain
 from diagnose.kb.locate import shipped_dir
 from diagnose.kb.schema import pack_schema
@@ -92,7 +93,7 @@ def test_fault_tree_logic():
 
 
 def test_graph_has_typed_nodes_and_edges():
-    g = load_model(str(MINI)).graph
+    g = build_graph(load_model(str(MINI)))
     assert g.nodes["cause:coil_open"]["kind"] == "cause"
     assert g.nodes["cause:coil_open"]["line"] > 0
     assert g.edges["cause:fuse_blown", "event:no_coil_power"]["kind"] == "feeds"
@@ -104,7 +105,7 @@ def test_graph_has_typed_nodes_and_edges():
 def test_graph_exports_read_back(tmp_path, fmt):
     out = tmp_path / f"g.{fmt}"
     assert main(["kb", "graph", str(MINI), "--format", fmt, "-o", str(out)]) == 0
-    original = load_model(str(MINI)).graph
+    original = build_graph(load_model(str(MINI)))
     if fmt == "graphml":
         g = nx.read_graphml(out)
         assert set(g.nodes) == set(original.nodes)

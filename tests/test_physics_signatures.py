@@ -309,8 +309,10 @@ def test_verdict_fallback_in_dict_and_on_screen():
     v = evaluate("supply", {**BRIDGE, "volts": 103})
     assert v.to_dict()["fallback"] == "low"
     assert "fallback" not in Verdict("supply", "low").to_dict()
+    from diagnose.views import VerdictView
+
     console = Console(file=io.StringIO(), width=80, color_system=None)
-    console.print(v)
+    console.print(VerdictView(v))
     out = console.file.getvalue()
     assert "verdict: half wave" in out and "plain verdict: low" in out
 

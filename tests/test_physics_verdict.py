@@ -9,11 +9,12 @@ from rich.console import Console
 
 from diagnose.physics import evaluate
 from diagnose.physics.verdict import Figure, Verdict, format_number, make_figures
+from diagnose.views import VerdictView
 
 
 def _render(obj) -> str:
     console = Console(file=io.StringIO(), width=80, color_system=None)
-    console.print(obj)
+    console.print(VerdictView(obj))
     return console.file.getvalue()
 
 

@@ -13,6 +13,7 @@ from diagnose.reasoning.evidence import Evidence
 from diagnose.reasoning.explain import explain_check, explain_ranking
 from diagnose.reasoning.posterior import posterior
 from diagnose.reasoning.synthetic import tiny_model
+from diagnose.views_reasoning import CheckExplanationView, RankingExplanationView
 
 WNR = Evidence(complaints=("will_not_release",))
 
@@ -79,6 +80,7 @@ def test_explain_unknown_check():
 def test_explanations_render_in_80_columns():
     m = tiny_model()
     ev = WNR.with_outcome("listen_click", "silent")
-    text = render(explain_ranking(m, ev)) + render(explain_check(m, ev, "coil_ohms"))
+    text = (render(RankingExplanationView(explain_ranking(m, ev)))
+            + render(CheckExplanationView(explain_check(m, ev, "coil_ohms"))))
     assert all(len(line) <= 80 for line in text.splitlines())
     assert "listen_click = silent" in text and "if the answer is" in text

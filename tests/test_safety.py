@@ -37,7 +37,7 @@ def _errors_after(sources, si, di, section, pos, change):
     mutated = copy.deepcopy(sources)
     item = mutated[si].documents[di].data[section][pos]
     change(item)
-    model, problems = compile_sources(mutated, with_graph=False, schema=False)
+    model, problems = compile_sources(mutated, schema=False)
     return [p for p in problems if p.level == "error"]
 
 

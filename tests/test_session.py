@@ -265,8 +265,17 @@ def test_reasoning_views_render_in_80_columns():
     s.answer("listen_click", "silent")
     out = io.StringIO()
     con = Console(file=out, width=80, color_system=None)
-    for thing in (s.ranking(), s.next_action(), s.checks_table(), s.explain_ranking(),
-                  s.explain_check("fuse")):
+    from diagnose.views_reasoning import (
+        ActionView,
+        CheckExplanationView,
+        ChecksTableView,
+        RankingExplanationView,
+        RankingTableView,
+    )
+
+    for thing in (RankingTableView(s.ranking()), ActionView(s.next_action()),
+                  ChecksTableView(s.checks_table()), RankingExplanationView(s.explain_ranking()),
+                  CheckExplanationView(s.explain_check("fuse"))):
         con.print(thing)
     text = out.getvalue()
     assert all(len(line) <= 80 for line in text.splitlines())

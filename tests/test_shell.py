@@ -11,6 +11,7 @@ from __future__ import annotations
 import io
 import random
 import re
+from dataclasses import replace
 from pathlib import Path
 
 import pytest
@@ -453,10 +454,11 @@ def test_bad_answer_at_a_repair(model):
 
 
 def test_an_error_inside_a_command_is_one_line(model, monkeypatch):
-    def broken(self):
+    def broken(shell, arg):
         raise RuntimeError("boom")
 
-    monkeypatch.setattr(Shell, "show_checks", broken)
+    monkeypatch.setitem(commands.COMMANDS, "checks",
+                        replace(commands.COMMANDS["checks"], func=broken))
     _shell, screen, status = drive(model, PRELUDE + ["checks", "quit"])
     assert status == 0
     assert "Error: internal error (RuntimeError: boom)" in screen

@@ -18,8 +18,9 @@ from rich.console import Console
 from diagnose.kb.loader import load_model
 from diagnose.session import MemorySink, Session
 from diagnose.shell import commands
-from diagnose.shell.app import Shell, main, resume
+from diagnose.shell.app import Shell
 from diagnose.shell.complete import CompletionState, ShellCompleter, choose, matches
+from diagnose.shell.entry import main, resume
 from diagnose.shell.keys import load_shell_bindings
 from diagnose.shell.reader import LineReader, history_path
 from diagnose.views import (

@@ -24,6 +24,7 @@ from diagnose.reasoning.simulate import (
     simulate,
 )
 from diagnose.reasoning.synthetic import synthetic_model, tiny_model
+from diagnose.views_reasoning import SimulationView
 
 MINI = str(Path(__file__).parent / "fixtures" / "mini")
 
@@ -59,7 +60,7 @@ def test_report_has_every_policy_and_the_planner_keys_on_top():
         assert key in d
     assert d["mean_minutes"] == d["policies"]["planner"]["mean_minutes"]
     out = io.StringIO()
-    Console(file=out, width=80, color_system=None).print(r)
+    Console(file=out, width=80, color_system=None).print(SimulationView(r))
     assert "planner" in out.getvalue() and "chart" in out.getvalue()
     assert all(len(line) <= 80 for line in out.getvalue().splitlines())
 
@@ -192,7 +193,7 @@ def test_the_chart_repairs_in_vain_and_the_planner_figures_are_shares():
     for p in r.policies.values():
         assert 0.0 <= p.cured <= 1.0 and 0.0 <= p.first_repair_success <= 1.0
     out = io.StringIO()
-    Console(file=out, width=80, color_system=None).print(r)
+    Console(file=out, width=80, color_system=None).print(SimulationView(r))
     text = out.getvalue()
     assert "unknown: escalated" in text and "unknown: repairs" in text
     assert all(len(line) <= 80 for line in text.splitlines())

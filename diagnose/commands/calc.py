@@ -20,10 +20,11 @@ def run(args: argparse.Namespace) -> int:
     """Evaluate the chosen evaluator on the options given and print the verdict."""
     from diagnose.service.calc import verdict_of
     from diagnose.text import console, json_text
+    from diagnose.views import VerdictView
 
     verdict = verdict_of(args)
     if args.calc_json:
         print(json_text(verdict.to_dict(), indent=2))
     else:
-        console().print(verdict)
+        console().print(VerdictView(verdict))
     return 0

@@ -189,8 +189,9 @@ def _stats(args: argparse.Namespace) -> int:
         print(json_text(result.to_dict(), indent=2))
         return 0
     from diagnose.text import console
+    from diagnose.views import StatsView
 
-    console().print(result)
+    console().print(StatsView(result))
     return 0
 
 

@@ -162,10 +162,11 @@ def _label(title: str, detail: str, style: str = "") -> Any:
 
 
 def _graph(args: argparse.Namespace) -> int:
+    from diagnose.kb.compiler import build_graph
     from diagnose.kb.export import export
 
     model = load(args, args.pack)
-    write_output(export(model.graph, args.format), args.output, **output_options(args))
+    write_output(export(build_graph(model), args.format), args.output, **output_options(args))
     return 0
 
 

@@ -98,8 +98,9 @@ def analyze_command(args: argparse.Namespace) -> int:
             sys.stdout.write(render_analysis(result, args.format))
     else:
         from diagnose.text import console
+        from diagnose.views_reasoning import PackAnalysisView
 
-        console().print(result)
+        console().print(PackAnalysisView(result))
     return 0
 
 

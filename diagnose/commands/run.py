@@ -258,9 +258,11 @@ class _View:
     def ready(self) -> None:
         """The ranking and the next action once the nameplate and complaints are in."""
         if self.console is not None:
+            from diagnose.views_reasoning import ActionView
+
             self.console.rule("the complaint", align="left")
             self.console.print(_ranking_view(self.session))
-            self.console.print(self.session.next_action())
+            self.console.print(ActionView(self.session.next_action()))
 
     def step(self, i: int, step: Any, result: Any) -> None:
         from diagnose.session import Event, Finding
@@ -273,11 +275,13 @@ class _View:
         entry.update(self.snapshot())
         self.steps.append(entry)
         if self.console is not None:
+            from diagnose.views_reasoning import ActionView
+
             self.console.rule(f"step {i}: {_step_text(step)}", align="left")
             if isinstance(result, Finding):
                 self.console.print(result)
             self.console.print(_ranking_view(self.session))
-            self.console.print(self.session.next_action())
+            self.console.print(ActionView(self.session.next_action()))
 
     def finish(self, *, recorded: bool, resumed: bool, journal: str | None) -> None:
         s = self.session
@@ -311,10 +315,9 @@ def _ranking_view(session: Any) -> Any:
 
 
 def _steps_so_far(session: Any) -> int:
-    from diagnose.journal.record import STEP_KINDS
-    from diagnose.session import effective_events
+    from diagnose.events import steps_taken
 
-    return sum(1 for e in effective_events(session.events) if e.kind in STEP_KINDS)
+    return steps_taken(session.events)
 
 
 # --- the command ---------------------------------------------------------------------------

@@ -49,6 +49,7 @@ def _simulate(args: argparse.Namespace) -> int:
         print(json.dumps(report.to_dict(), indent=2))
     else:
         from diagnose.text import console
+        from diagnose.views_reasoning import SimulationView
 
-        console().print(report)
+        console().print(SimulationView(report))
     return 0

@@ -21,8 +21,9 @@ from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any, NamedTuple
 
+from diagnose.events import STEP_KINDS, effective_indices
+
 CHECK_KINDS = ("answer", "reading", "unsure", "skip")
-STEP_KINDS = CHECK_KINDS + ("repair", "skip_repair")
 RESOLVED = "resolved"  # the end result that means a repair cured the unit
 
 
@@ -158,14 +159,6 @@ def _text(value: Any) -> str:
     return str(value)
 
 
-def effective(events: Sequence[Any]) -> tuple[list[int], int]:
-    """Indices of the events that still count (as ``diagnose.session.effective_events``)
-    and how many were undone."""
-    undone = {int(e.data["index"]) for e in events if e.kind == "undo" and "index" in e.data}
-    keep = [i for i, e in enumerate(events) if i not in undone and e.kind != "undo"]
-    return keep, len(undone)
-
-
 def recompute_rankings(events: Sequence[Any], model: Any) -> list[list[dict[str, Any]] | None]:
     """The ranking after each step, worked out again from the events with ``model``."""
     from diagnose.journal.recorder import RANKED_KINDS
@@ -199,7 +192,7 @@ def build_record(info: Any, events: Sequence[Any], model: Any = None,
     ranks, recomputed = _rankings(events, model, rankings)
     fold = _Fold(_Tables.of(model), getattr(info, "who", None),
                  getattr(info, "mode", "site") or "site")
-    keep, undone = effective(events)
+    keep, undone = effective_indices(events)
     # The last ranking kept, an undo's included: the ranking once a step was taken back.
     final: tuple[dict[str, Any], ...] = ()
     counted = set(keep) | {i for i, e in enumerate(events) if e.kind == "undo"}

@@ -12,7 +12,7 @@
 from __future__ import annotations
 
 from collections import Counter
-from collections.abc import Callable, Iterator
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -55,33 +55,6 @@ class Stats:
                              else round(self.first_repair_rate, 4)},
             "escalated": self.escalated, "results": dict(self.results),
         }
-
-    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
-        from rich.table import Table
-
-        scope = f"pack {self.pack}" if self.pack else "all packs"
-        yield (f"{self.sessions} session(s) of {scope}: {self.open} open, {self.closed} closed, "
-               f"{self.cures} cured, {self.escalated} escalated")
-        if self.results:
-            yield "end results: " + ", ".join(f"{k} {v}" for k, v in self.results.items())
-        if self.mean_minutes_to_cure is not None:
-            yield (f"mean minutes to the cure: {self.mean_minutes_to_cure:.1f} on the clock, "
-                   f"{self.mean_work_minutes_to_cure:.1f} by the pack's estimates")
-        rate = self.first_repair_rate
-        if rate is not None:
-            yield (f"first repair cured: {self.first_repair_cured} of {self.with_repair} "
-                   f"({rate:.0%})")
-        for title, rows, label in (("Confirmed causes", self.causes, "cause"),
-                                   ("Checks used most", self.checks, "check")):
-            if not rows:
-                continue
-            table = Table(title=title, title_justify="left", box=None, pad_edge=False)
-            table.add_column("#", justify="right")
-            table.add_column(label, overflow="fold")
-            table.add_column("id", style="dim", overflow="fold")
-            for ident, name, n in rows:
-                table.add_row(str(n), name, ident)
-            yield table
 
 
 def _mean(values: list[float]) -> float | None:

@@ -52,6 +52,7 @@ from pathlib import Path
 from typing import Any
 
 from diagnose.errors import JournalError
+from diagnose.events import EVENT_KEYS
 from diagnose.paths import APPLICATION_ID
 from diagnose.text import storable
 
@@ -66,13 +67,6 @@ DISK_FULL = "the disk is full: nothing more was written; free space and resume"
 # What replaying a session reads from an event's data with no default
 # (``diagnose.session.apply``, ``diagnose.journal.record``): an event without it
 # was altered by hand. A reading needs its verdict or its weights besides.
-EVENT_KEYS: dict[str, tuple[str, ...]] = {
-    "nameplate": ("param", "value"), "complaint": ("complaint",),
-    "answer": ("check", "outcome"), "reading": ("check",), "unsure": ("check",),
-    "skip": ("check",), "skip_repair": ("repair",), "ack": ("caution",),
-    "repair": ("repair", "cured"), "mode": ("mode",), "state": ("state", "value"),
-    "undo": ("index",),
-}
 
 # _MIGRATIONS[n] takes a journal from schema n to n + 1. Append only; never edit one
 # that has shipped.

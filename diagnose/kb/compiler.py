@@ -1,4 +1,4 @@
-"""Compile pack documents into a validated ``Model`` and its networkx graph.
+"""Compile pack documents into a validated ``Model``; the graph only when asked.
 
 Every problem is collected (not only the first), each tied to the file, line
 and column where the trainer wrote the thing, with the closest existing id
@@ -1066,8 +1066,7 @@ def build_graph(model: Model) -> Any:
 
 
 def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None = None,
-                    with_graph: bool = True, schema: bool = True
-                    ) -> tuple[Model | None, list[Problem]]:
+                    schema: bool = True) -> tuple[Model | None, list[Problem]]:
     """Compile the documents of a pack chain (base packs first) into a Model.
 
     Returns the model (``None`` when any error was found) and every problem.
@@ -1129,7 +1128,7 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
         repairs=repairs, cautions=cautions, cases=cases, states=states, hazards=hazards,
         unknown_prior=_num(manifest.get("unknown_prior"), 5.0),
         leak=_num(manifest.get("leak"), 0.01), content_hash=digest.hexdigest()[:16],
-        path=top.folder,
+        path=top.folder, cause_order={c: i for i, c in enumerate(causes)},
     )
     if not any(p.level == "error" and p.code == "unknown-ref" for p in ctx.problems):
         if _tree_checks(model, ctx):
@@ -1137,13 +1136,11 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
         _safety_checks(model, ctx)
     if any(p.level == "error" for p in ctx.problems):
         return None, ctx.problems
-    if with_graph:
-        object.__setattr__(model, "graph", build_graph(model))
     return model, ctx.problems
 
 
 def compile_pack(files: list[tuple[str, dict[str, Any]]], *, pack_id: str = "inline",
-                 with_graph: bool = True, schema: bool = True) -> Model:
+                 schema: bool = True) -> Model:
     """Compile in-memory pack files (name, data) with no positions: for benchmarks and tests.
 
     Raises:
@@ -1154,7 +1151,7 @@ def compile_pack(files: list[tuple[str, dict[str, Any]]], *, pack_id: str = "inl
 
     src = PackSource(id=pack_id, folder=pack_id,
                      documents=[Document(name, data) for name, data in files])
-    model, problems = compile_sources([src], with_graph=with_graph, schema=schema)
+    model, problems = compile_sources([src], schema=schema)
     if model is None:
         raise KnowledgeError([p for p in problems if p.level == "error"])
     return model

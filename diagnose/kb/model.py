@@ -289,7 +289,8 @@ class Model:
     leak: float = 0.01  # P(complaint | a hypothesis whose tree does not produce it)
     content_hash: str = ""
     path: str = ""
-    graph: Any = None
+    #: Listing position of each cause, built when the pack is compiled (empty: worked out).
+    cause_order: Mapping[str, int] = field(default_factory=dict, repr=False, compare=False)
 
     # --- fault-tree logic (pure) -------------------------------------------------
     def holds(self, node: str, faults: frozenset[str] | set[str]) -> bool:
@@ -318,13 +319,9 @@ class Model:
         order = self._cause_order()
         return tuple(sorted(found, key=order.__getitem__))
 
-    def _cause_order(self) -> dict[str, int]:
-        """Listing position of each cause (computed once per model)."""
-        order = self.__dict__.get("_order")
-        if order is None:
-            order = {c: i for i, c in enumerate(self.causes)}
-            object.__setattr__(self, "_order", order)
-        return order
+    def _cause_order(self) -> Mapping[str, int]:
+        """Listing position of each cause: built at compile time, else worked out now."""
+        return self.cause_order or {c: i for i, c in enumerate(self.causes)}
 
     def repairs_for(self, cause: str) -> tuple[str, ...]:
         return tuple(r.id for r in self.repairs.values() if cause in r.fixes)

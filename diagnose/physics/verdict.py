@@ -121,30 +121,3 @@ class Verdict:
     def label(self) -> str:
         """The verdict name for people: "too_much_drop" -> "too much drop"."""
         return self.verdict.replace("_", " ")
-
-    def __rich_console__(self, console: Any, options: Any) -> Any:
-        """A small table of the figures, then the verdict line and the summary."""
-        from rich.table import Table
-        from rich.text import Text
-
-        table = Table(box=None, show_header=False, pad_edge=False, title=self.evaluator,
-                      title_justify="left", title_style="bold")
-        table.add_column("figure", overflow="fold")
-        table.add_column("value", justify="right", no_wrap=True)
-        table.add_column("unit", no_wrap=True)
-        for fig in self.figures.values():
-            table.add_row(fig.label, format_number(fig.value), unit_text(fig.unit))
-        if self.figures:
-            yield table
-        style = "bold green" if self.verdict in GOOD_VERDICTS else "bold red"
-        line = Text("verdict: ")
-        line.append(self.label, style=style)
-        if self.fallback:
-            line.append(f"  (plain verdict: {self.fallback.replace('_', ' ')})")
-        if self.weights:
-            shares = ", ".join(f"{name.replace('_', ' ')} {share:.0%}"
-                               for name, share in self.weights.items())
-            line.append(f"  (near a band edge: {shares})")
-        yield line
-        if self.summary:
-            yield Text(self.summary)

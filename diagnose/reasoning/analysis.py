@@ -13,9 +13,9 @@
   the effort says how often each policy escalated (or ranked "unknown" first)
   on those and how many repairs it tried in vain.
 
-The values render themselves on a rich console and turn into plain data with
-``to_dict()`` (what ``--json`` prints and the Markdown / HTML reports read), so
-that screen and report agree. Pure: no I/O.
+The values turn into plain data with ``to_dict()`` (what ``--json`` prints and
+the Markdown / HTML reports read); the screen draws them
+(:class:`diagnose.views_reasoning.PackAnalysisView`). Pure: no I/O.
 
 See "Reading the analysis" (DEVELOPERS.md; drafted in docs_analysis.md) for what
 each figure means.
@@ -24,7 +24,7 @@ each figure means.
 from __future__ import annotations
 
 import math
-from collections.abc import Iterator, Mapping
+from collections.abc import Mapping
 from dataclasses import asdict, dataclass, field, replace
 from typing import Any
 
@@ -54,7 +54,6 @@ NO_SIMULATOR = "simulator not available: expected effort not computed"
 RUNS = 100  # simulated calls per policy and complaint, unless asked otherwise
 SEED = 1  # the same draws every time: the figures of two analyses compare
 UNKNOWN_RATE = 0.1  # share of simulated calls whose cause is outside the pack
-SHOWN_CUT_SETS = 12  # on screen; the JSON and the reports carry them all
 
 
 @dataclass(frozen=True)
@@ -133,46 +132,6 @@ class ComplaintAnalysis:
             "effort": self.effort.to_dict(),
         }
 
-    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
-        from rich.padding import Padding
-        from rich.table import Table
-        from rich.text import Text
-
-        titles = {c: t for c, t, _ in self.causes}
-        yield Text(f"{self.title} ({self.complaint})", style="bold")
-        yield Text(
-            f"P(top) exact {_num(self.probability)}, rare-event {_num(self.rare_event)}, "
-            f"min-cut upper bound {_num(self.upper_bound)}; "
-            f"{len(self.cut_sets)} minimal cut set(s)"
-        )
-        shown = self.cut_sets[:SHOWN_CUT_SETS]
-        if any(len(s) > 1 for s in self.cut_sets):
-            more = len(self.cut_sets) - len(shown)
-            yield Text("cut sets: " + "; ".join(" & ".join(s) for s in shown)
-                       + (f"; and {more} more" if more else ""))
-        imp = Table(title="Importance of each cause", title_justify="left", show_edge=False)
-        for head in ("cause", "q", "Birnbaum", "F-V", "RAW", "RRW"):
-            imp.add_column(head, justify="left" if head == "cause" else "right")
-        for i in sorted(self.importances, key=lambda i: -i.fussell_vesely):
-            imp.add_row(i.cause, _num(i.q), _num(i.birnbaum), _num(i.fussell_vesely),
-                        _num(i.risk_achievement_worth), _num(i.risk_reduction_worth))
-        yield imp
-        for mode in MODES:
-            t = self.testability[mode]
-            line = (f"{mode}: detected {_pct(t.detection)}, isolated {_pct(t.isolation)} "
-                    f"(by prior)")
-            if t.closest is not None:
-                line += f"; closest pair {t.closest[0]} / {t.closest[1]} at {t.closest[2]:.2f}"
-            if t.undetected:
-                line += "; no check detects " + ", ".join(t.undetected)
-            yield Text(line)
-            for g in t.groups:
-                names = ", ".join(f"{c} ({titles.get(c, c)})" for c in g.causes)
-                yield Padding(Text(f"ambiguity group: {names}", style="yellow"), (0, 0, 0, 2))
-                yield Padding(Text(f"hint: {g.hint}"), (0, 0, 0, 4))
-        yield Text(_effort_line(self.effort))
-        yield Text("")
-
 
 @dataclass(frozen=True)
 class PackAnalysis:
@@ -214,31 +173,6 @@ class PackAnalysis:
             "complaints": [c.to_dict() for c in self.complaints],
         }
 
-    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
-        from rich.rule import Rule
-        from rich.text import Text
-
-        yield Text(f"Knowledge analysis: {self.title} ({self.pack} {self.version})",
-                   style="bold underline")
-        yield Text(f"rows told apart at total variation > {self.threshold:g}")
-        yield Text("")
-        for c in self.complaints:
-            yield Rule(style="dim")
-            yield c
-        yield Rule("pack", style="dim")
-        for mode in MODES:
-            line = (f"{mode}: detected {_pct(self.detection[mode])}, isolated "
-                    f"{_pct(self.isolation[mode])} of the causes (by prior); "
-                    f"{sum(1 for g in self.groups if g.mode == mode)} ambiguity group(s)")
-            yield Text(line)
-        if self.undetected["site"]:
-            yield Text("no check detects: " + ", ".join(self.undetected["site"]), style="yellow")
-        if self.idle_checks:
-            yield Text("checks that never change any ranking: " + ", ".join(self.idle_checks),
-                       style="yellow")
-        for note in self.notes:
-            yield Text(note, style="dim")
-
 
 def analyze(
     model: Model,
@@ -268,7 +202,7 @@ def analyze(
     if simulator is not None:
         note = f"simulated, {runs or RUNS} calls per policy and complaint (seed {SEED})"
         if unknown_rate > 0:
-            note += f", {_pct(unknown_rate)} of them with a cause outside the pack"
+            note += f", {100 * unknown_rate:.0f}% of them with a cause outside the pack"
     else:
         note = NO_SIMULATOR if effort else "effort not asked for"
     parts = tuple(
@@ -391,7 +325,6 @@ def complaint_model(model: Model, complaint: str) -> Model:
         events={e: g for e, g in model.events.items() if e in keep},
         causes={c: v for c, v in model.causes.items() if c in tree},
         cases={},
-        graph=None,
     )
 
 
@@ -430,40 +363,3 @@ def _simulator() -> Any:
         )
 
     return run
-
-
-def _effort_line(e: Effort) -> str:
-    bound = ""
-    if e.bound_minutes is not None:
-        bound = (f"entropy bound {e.bound_minutes:.0f} min, {e.bound_checks:.1f} checks "
-                 f"({e.entropy_bits:.2f} bits)")
-    if not e.available:
-        return f"effort: {e.note}" + (f"; {bound}" if bound else "")
-    line = f"effort to cure: {e.expected_minutes:.0f} min, {e.expected_checks:.1f} checks"
-    if e.chart_minutes is not None:
-        line += f"; chart {e.chart_minutes:.0f} min, {e.chart_checks:.1f} checks"
-    line += f"; {bound}" if bound else ""
-    if e.escalated_when_unknown is not None and e.wrong_repairs_when_unknown is not None:
-        esc = f"planner {_pct(e.escalated_when_unknown)}"
-        wrong = f"planner {e.wrong_repairs_when_unknown:.1f}"
-        if (e.chart_escalated_when_unknown is not None
-                and e.chart_wrong_repairs_when_unknown is not None):
-            esc += f", chart {_pct(e.chart_escalated_when_unknown)}"
-            wrong += f", chart {e.chart_wrong_repairs_when_unknown:.1f}"
-        line += (f"\ncause outside the pack: escalated or 'unknown' first: {esc}; "
-                 f"repairs in vain: {wrong}")
-    return line
-
-
-def _num(x: float) -> str:
-    if math.isinf(x):
-        return "inf"
-    if x == 0:
-        return "0"
-    if abs(x) >= 0.01:
-        return f"{x:.4g}"
-    return f"{x:.3g}"
-
-
-def _pct(x: float) -> str:
-    return f"{100 * x:.0f}%"

@@ -1,4 +1,4 @@
-"""Why the ranking is what it is, and why a check is worth doing: values that render themselves.
+"""Why the ranking is what it is, and why a check is worth doing, as values.
 
 Why this ranking. For a leading hypothesis ``h`` and each piece of evidence
 ``e`` (a complaint, a finding, a repair that did not cure), the likelihood
@@ -25,7 +25,6 @@ References:
 from __future__ import annotations
 
 import math
-from collections.abc import Iterator
 from dataclasses import dataclass
 from typing import Any
 
@@ -79,16 +78,6 @@ class Leading:
         return out
 
 
-def _ratio_text(r: float) -> str:
-    if not math.isfinite(r):
-        return "rules in"
-    if r <= 0:
-        return "rules out"
-    if r >= 1:
-        return f"×{r:.3g}"
-    return f"÷{1 / r:.3g}"
-
-
 @dataclass(frozen=True)
 class RankingExplanation:
     """Why the leading causes lead."""
@@ -97,24 +86,6 @@ class RankingExplanation:
 
     def to_dict(self) -> dict[str, Any]:
         return {"leading": [x.to_dict() for x in self.leading]}
-
-    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
-        from rich.table import Table
-
-        for x in self.leading:
-            t = Table(title=f"{x.cause}: p {x.p:.3f} (prior {x.prior:.3f})", title_justify="left",
-                      box=None, pad_edge=False, show_header=False)
-            t.add_column("evidence", overflow="fold", max_width=52)
-            t.add_column("ratio", justify="right", no_wrap=True)
-            t.add_column("", no_wrap=True)
-            for f in x.factors:
-                arrow = "for" if f.ratio > 1 else ("against" if f.ratio < 1 else "neutral")
-                t.add_row("  " + f.label, _ratio_text(f.ratio), arrow)
-            if not x.factors:
-                t.add_row("  (no evidence yet: the prior alone)", "", "")
-            for note in x.notes:
-                t.add_row("  " + note, "", "")
-            yield t
 
 
 def explain_ranking(model: Model, evidence: Evidence, *, max_faults: int = 1,
@@ -214,29 +185,6 @@ class CheckExplanation:
                 "ecr": round(self.ecr, 2), "status": self.status or "available",
                 "needs": list(self.needs), "outcomes": [o.to_dict() for o in self.outcomes],
                 "top": self.top, "top_p": round(self.top_p, 6)}
-
-    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
-        from rich.table import Table
-
-        head = f"{self.check}: {self.minutes:.0f} min"
-        if self.needs:
-            head += f" (with {', '.join(self.needs)} first)"
-        head += f", {self.bits:.2f} bits expected ({self.bits_per_minute:.3f} bits/min)"
-        if self.status:
-            head += f"; not offered now: {self.status}"
-        yield head
-        if self.eco is not None:
-            yield (f"  expected minutes to a cure: {self.eco:.0f} checking first, "
-                   f"{self.ecr:.0f} repairing now")
-        t = Table(box=None, pad_edge=False, title=f"now: {self.top} {self.top_p:.2f}",
-                  title_justify="left")
-        t.add_column("if the answer is", overflow="fold", max_width=26)
-        t.add_column("P", justify="right")
-        t.add_column("top cause then", overflow="fold", max_width=30)
-        t.add_column("p", justify="right")
-        for o in self.outcomes:
-            t.add_row(o.title, f"{o.p:.2f}", o.top, f"{o.top_p:.2f}")
-        yield t
 
 
 def explain_check(model: Model, evidence: Evidence, check: str, *, max_faults: int = 1,

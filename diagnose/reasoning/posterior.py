@@ -278,26 +278,3 @@ class Ranking:
 
     def to_list(self) -> list[dict[str, Any]]:
         return [e.to_dict() for e in self.entries]
-
-    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
-        from rich.table import Table
-
-        table = Table(title="Ranking" + (" (up to two faults)" if self.max_faults > 1 else ""),
-                      title_justify="left", expand=False, box=None, pad_edge=False)
-        table.add_column("#", justify="right", style="dim")
-        table.add_column("cause", overflow="fold", max_width=44)
-        table.add_column("p", justify="right")
-        table.add_column("", no_wrap=True)
-        for i, e in enumerate(self.entries[: self.shown], 1):
-            bar = "█" * round(e.p * 20)
-            name = e.title if e.cause == UNKNOWN_CAUSE else f"{e.cause}"
-            table.add_row(str(i), name, f"{e.p:.3f}", bar)
-        yield table
-        rest = len(self.entries) - self.shown
-        if rest > 0:
-            yield f"  ... and {rest} more"
-        if self.hypotheses:
-            yield "  leading hypotheses: " + "; ".join(
-                f"{h.cause} {h.p:.3f}" for h in self.hypotheses[:3])
-        if self.contradiction:
-            yield "  The evidence contradicts every known cause: escalate."

@@ -2,14 +2,15 @@
 
 Each run draws a true cause from the priors (known causes only: a run must be
 curable; the simulated unit has the pack's default nameplate, so a cause that
-nameplate rules out with ``only_if`` is never drawn), then the complaint from the complaints whose fault tree that cause
-produces alone (uniformly; when none does, because of AND gates, from those
-whose tree holds it). Every check answers from the true cause's row of its
-effects (``normal`` for a cause it does not list; measurements give their
-verdict directly); with probability ``noise`` an answer is replaced by a
-different outcome, chosen uniformly. A repair that fixes the true cause cures
-with probability ``success``; any other repair does not. A run ends at the
-cure, or at an escalation, which adds ``escalation_minutes``.
+nameplate rules out with ``only_if`` is never drawn), then the complaint from
+the complaints whose fault tree that cause produces alone (uniformly; when
+none does, because of AND gates, from those whose tree holds it). Every check
+answers from the true cause's row of its effects (``normal`` for a cause it
+does not list; measurements give their verdict directly); with probability
+``noise`` an answer is replaced by a different outcome, chosen uniformly. A
+repair that fixes the true cause cures with probability ``success``; any
+other repair does not. A run ends at the cure, or at an escalation, which
+adds ``escalation_minutes``.
 
 Unknown causes: a share ``unknown_rate`` of the runs has a true cause outside
 the pack. Such a run gets a complaint drawn uniformly from the pack's
@@ -66,7 +67,6 @@ References:
 from __future__ import annotations
 
 import math
-from collections.abc import Iterator
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -75,6 +75,7 @@ import numpy as np
 from diagnose.errors import InputError
 from diagnose.kb.model import UNKNOWN_CAUSE, Model
 from diagnose.reasoning.evidence import Evidence
+from diagnose.reasoning.nameplate import excluded_causes
 from diagnose.reasoning.planner import (
     DEFAULT,
     Settings,
@@ -82,7 +83,6 @@ from diagnose.reasoning.planner import (
     next_action,
     only_if_matches,
 )
-from diagnose.reasoning.nameplate import excluded_causes
 from diagnose.reasoning.posterior import posterior
 from diagnose.reasoning.unitstate import setup_minutes, unit_state
 
@@ -246,41 +246,6 @@ class SimulationReport:
         if len(self.policies) > 1:
             out["policies"] = {k: v.to_dict() for k, v in self.policies.items()}
         return out
-
-    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
-        from rich.table import Table
-
-        t = Table(title=f"{self.pack}: {self.runs} runs, seed {self.seed}, noise {self.noise}",
-                  title_justify="left", box=None, pad_edge=False)
-        t.add_column("", no_wrap=True)
-        for name in self.policies:
-            t.add_column(name, justify="right")
-        rows = (("mean checks", "mean_checks", "{:.2f}"),
-                ("mean minutes", "mean_minutes", "{:.1f}"),
-                ("first repair cures", "first_repair_success", "{:.3f}"),
-                ("top-1 at 1st repair", "top1_accuracy", "{:.3f}"),
-                ("1st repair on cause", "first_repair_hits", "{:.3f}"),
-                ("cured", "cured", "{:.3f}"))
-        for label, key, fmt in rows:
-            t.add_row(label, *(fmt.format(getattr(r, key)) for r in self.policies.values()))
-        if any(r.unknown_runs for r in self.policies.values()):
-            for label, key, fmt in (("unknown: escalated", "escalated_when_unknown", "{:.3f}"),
-                                    ("unknown: repairs", "wrong_repairs_when_unknown",
-                                     "{:.2f}")):
-                t.add_row(label, *("n/a" if getattr(r, key) is None
-                                   else fmt.format(getattr(r, key))
-                                   for r in self.policies.values()))
-        yield t
-        if self.unknown_rate > 0:
-            yield (f"unknown cause in {self.main.unknown_runs} of {self.runs} runs "
-                   f"(rate {self.unknown_rate:g}); the figures above the 'unknown' rows "
-                   "are over the known-cause runs")
-        yield (f"entropy bound: {self.entropy_bound:.2f} checks "
-               f"({self.prior_entropy_bits:.2f} bits of cause prior)")
-        if "planner" in self.policies and "chart" in self.policies:
-            ratio = self.policies["planner"].mean_minutes / max(
-                self.policies["chart"].mean_minutes, 1e-9)
-            yield f"planner minutes / chart minutes: {ratio:.3f}"
 
 
 class _Run:

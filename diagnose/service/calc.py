@@ -3,8 +3,9 @@
 Both faces build their parsers here and get the verdict from
 :func:`verdict_of`, so the two never disagree. Options are generated from the
 evaluator registry: input ``rated_voltage`` becomes ``--rated-voltage``;
-``--temp`` is kept as a short form of ``--temperature``. Only the light registry is imported here; pint and rich
-are imported when a calculation runs, so ``diagnose --help`` stays fast.
+``--temp`` is kept as a short form of ``--temperature``. Only the light
+registry is imported here; pint and rich are imported when a calculation
+runs, so ``diagnose --help`` stays fast.
 """
 
 from __future__ import annotations

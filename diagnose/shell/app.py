@@ -11,6 +11,8 @@ Everything goes through :class:`diagnose.session.Session`, the same API the
 scripted run uses, so both write the same events. The shell gets its
 ``reader`` (a terminal prompt or lines of text, see ``reader``) and its rich
 ``Console`` from the caller, so tests give a pipe and a string buffer.
+What each command does is in ``commands`` (written against the public
+methods of :class:`Shell`); how the shell is started is in ``entry``.
 
 A shell that never dies: bad input gets one line of explanation and the
 same question again, with nothing lost; Ctrl-C clears the line; Ctrl-D
@@ -19,13 +21,10 @@ asks whether to save and leave; an error inside a command is one line.
 
 from __future__ import annotations
 
-import argparse
 import difflib
-import os
 import re
-import sys
 from collections.abc import Callable, Sequence
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, NoReturn
 
 from diagnose.errors import DiagnoseError, InputError, JournalError
 from diagnose.physics.verdict import unit_text
@@ -37,10 +36,10 @@ from diagnose.views import (
     CautionView,
     CheckCard,
     EndView,
-    HelpView,
     NoticeView,
     RankingView,
     RepairCard,
+    VerdictView,
     percent,
     why_text,
 )
@@ -78,8 +77,11 @@ class Leave(Exception):
     """Raised by `quit` (and Ctrl-D): leave the shell, the session stays resumable."""
 
 
-class _Restart(Exception):
-    """The state changed under the current question (undo, do, repair, mode): start the turn anew."""
+class Restart(Exception):
+    """The state changed under the current question (undo, do, repair, mode): start the turn anew.
+
+    Raised by :meth:`Shell.restart` and :meth:`Shell.show_again`, which commands call.
+    """
 
 
 class Shell:
@@ -132,15 +134,14 @@ class Shell:
             self.say(f"Session {self.session.session_id}: {self.model.title} "
                      f"({self.model.id} {self.model.version}), {self.session.mode} mode. "
                      "Type help for the commands.")
-        if self.session.mode == "phone":
-            self.say(PHONE_HINT, style="dim")
+        self.mode_hint()
         failures = 0
         while True:
             try:
                 if self._step():
                     return 0
                 failures = 0
-            except _Restart:
+            except Restart:
                 failures = 0
                 continue
             except Leave:
@@ -181,7 +182,8 @@ class Shell:
         if not self._identity_done:
             self.ask_identity()
             return False
-        if not ev.complaints:
+        if not ev.complaints:  # none yet, or undone: another one is asked after the first
+            self._more_complaints_done = False
             self.ask_complaint(first=True)
             return False
         if not self._more_complaints_done:
@@ -222,8 +224,8 @@ class Shell:
         answer_ids = {a.lower() for a, _ in answers}
         more = self._card_now() is not None and MORE_WORD not in answer_ids
         offered = tuple(answers) + (((MORE_WORD, "show the whole card"),) if more else ())
-        state = CompletionState(answers=offered, commands=self.command_choices(),
-                                arguments=self.argument_choices())
+        state = CompletionState(answers=offered, commands=commands.command_choices(),
+                                arguments=commands.argument_choices(self))
         while True:
             try:
                 line = self.reader.ask(wrap_prompt(message, self.console.width), state, default)
@@ -256,7 +258,7 @@ class Shell:
         """Run a command typed at a question; False when it was refused (one line said why)."""
         try:
             cmd(self, arg)
-        except (_Restart, Leave):
+        except (Restart, Leave):
             raise
         except InputError as exc:
             self.error(_message(exc))
@@ -309,24 +311,6 @@ class Shell:
             self.console.print(CautionsView(f"{shown.label}: {shown.title}",
                                             tuple(shown.cautions)))
 
-    def command_choices(self) -> tuple[Choice, ...]:
-        return tuple((c.name, c.help) for c in commands.COMMANDS.values())
-
-    def argument_choices(self) -> dict[str, tuple[Choice, ...]]:
-        from diagnose.physics.registry import EVALUATORS
-
-        phone = self.session.mode == "phone"
-        checks = tuple((c.id, c.title) for c in self.model.checks.values()
-                       if not phone or c.phone_ok)
-        repairs = tuple((r.id, r.title) for r in self.model.repairs.values()
-                        if not phone or r.where == "phone")
-        params = tuple((p.id, p.prompt) for p in self.model.parameters.values())
-        return {"do": checks, "why": checks, "repair": repairs, "nameplate": params,
-                "mode": (("site", "a technician at the unit"), ("phone", "guiding a caller")),
-                "help": self.command_choices(), "ranking": (("all", "every cause"),),
-                "calc": tuple((e.name, e.title) for e in EVALUATORS.values()),
-                "state": tuple((v.id, v.title) for v in self.model.states.values())}
-
     def on_end_of_input(self) -> None:
         """Ctrl-D (or the end of a script): ask whether to save and leave."""
         self.say("")
@@ -350,7 +334,10 @@ class Shell:
 
     # --- stages ------------------------------------------------------------------------------
     def ask_parameter(self, pid: str) -> None:
-        """One nameplate value, checked as typed; Enter keeps the default, `defaults` all of them."""
+        """One nameplate value, checked as typed.
+
+        Enter keeps the default, `defaults` the defaults of all of them.
+        """
         p = self.model.parameters[pid]
         hints = []
         if p.choices:
@@ -451,7 +438,7 @@ class Shell:
                     raise InputError("complaint", "type a number or words of the complaint "
                                      "(Tab completes)")
                 return None
-            return self._pick(text, self.complaint_choices(both=True), "complaint")
+            return self.pick(text, self.complaint_choices(both=True), "complaint")
 
         msg = ("Complaint (number or words of it): " if first else
                "Another complaint? (number or words; Enter to go on): ")
@@ -462,7 +449,7 @@ class Shell:
         self.session.add_complaint(cid)
         self.say(f"  complaint: {self.model.complaints[cid].title}", style="dim")
 
-    def _pick(self, text: str, choices: Sequence[Choice], what: str) -> str:
+    def pick(self, text: str, choices: Sequence[Choice], what: str) -> str:
         """The id of ``choices`` that ``text`` names: a number, an id, or words of the title."""
         t = text.strip()
         if t.isdigit():
@@ -687,7 +674,7 @@ class Shell:
             self.say(f"  {chk.id}: unsure (recorded; no evidence either way)", style="dim")
             return
         if finding.verdict is not None:
-            self.console.print(finding.verdict)
+            self.console.print(VerdictView(finding.verdict))
             if finding.soft:
                 self.say("  near a band edge: counted as "
                          + ", ".join(f"{o} {w:.0%}" for o, w in finding.weights.items()))
@@ -875,7 +862,7 @@ class Shell:
         else:
             self.say("Left without a journal: nothing was stored.", style="bold")
 
-    # --- what the commands call ------------------------------------------------------------
+    # --- the toolbar ----------------------------------------------------------------------
     def steps(self) -> int:
         from diagnose.session import effective_events
 
@@ -897,164 +884,33 @@ class Shell:
             cause = cause[: max(room - 1, 1)] + "…"
         return f"{head}{cause}{share} "
 
-    def show_help(self, topic: str) -> None:
-        if topic:
-            cmd = commands.find(topic)
-            if cmd is None:
-                raise InputError("help", f"no command {topic!r}; commands: "
-                                 f"{', '.join(commands.COMMANDS)}")
-            self.console.print(HelpView(((cmd.usage, cmd.help),)))
-            return
-        rows = tuple((c.usage, c.help) for c in commands.COMMANDS.values())
-        self.console.print(HelpView(rows, (
-            ("To answer a check: type an outcome (or its number), a reading with its unit "
-            "(3.2 ohm, 23.5V, OL), unsure, or skip. Tab completes; Ctrl-C clears the line; "
-            "Ctrl-D asks whether to save and leave."),
-            "At a check or repair, more shows the whole card (a long one is cut short).")))
-
-    def show_why(self, arg: str) -> None:
-        s = self.session
-        if arg:
-            cid = self._pick(arg, [(c.id, c.title) for c in self.model.checks.values()], "check")
-            self.console.print(s.explain_check(cid))
-            return
-        self.console.print(s.explain_ranking())
-        if self._current and self._current[0] == "check":
-            self.console.print(s.explain_check(self._current[1]))
-
-    def show_ranking(self, everything: bool = False) -> None:
-        n = len(self.model.causes) if everything else 8
-        self.console.print(self.ranking_view(top=n))
-
-    def show_checks(self) -> None:
-        self.console.print(self.session.checks_table())
-
-    def choose_check(self, arg: str) -> None:
-        s = self.session
-        if not s.evidence.complaints:
-            raise InputError("check", "first say what the complaint is")
-        phone = s.mode == "phone"
-        cid = self._pick(arg, [(c.id, c.title) for c in self.model.checks.values()], "check")
-        chk = self.model.checks[cid]
-        if phone and not chk.phone_ok:
-            raise InputError("check", f"{cid} is done on site only; by phone only checks "
-                             "safe for a caller are offered")
-        from diagnose.reasoning.planner import only_if_matches
-
-        if not only_if_matches(self.model, s.evidence, chk):
-            raise InputError("check", f"{cid} does not apply to this unit (nameplate)")
-        if cid in s.evidence.findings:
-            self.warn(f"{cid} was answered before; a new answer replaces the old one")
-        self._forced = ("check", cid)
-        raise _Restart
-
-    def choose_repair(self, arg: str) -> None:
-        s = self.session
-        if not s.evidence.complaints:
-            raise InputError("repair", "first say what the complaint is")
-        rid = self._pick(arg, [(r.id, r.title) for r in self.model.repairs.values()], "repair")
-        rep = self.model.repairs[rid]
-        if s.mode == "phone" and rep.where != "phone":
-            raise InputError("repair", f"{rid} is done on site only; in phone mode the end is "
-                             "a site visit with the parts to bring")
-        self._forced = ("repair", rid)
-        raise _Restart
-
-    def undo(self) -> None:
-        event = self.session.undo()
-        if event is None:
-            raise InputError("undo", "nothing to undo")
-        what = {"nameplate": "nameplate value", "complaint": "complaint", "answer": "answer",
-                "reading": "reading", "unsure": "unsure answer", "skip": "skip",
-                "skip_repair": "skipped repair",
-                "repair": "repair", "note": "note", "mode": "mode change",
-                "identity": "identity"}.get(event.kind, event.kind)
-        detail = event.data.get("check") or event.data.get("repair") or event.data.get(
-            "param") or event.data.get("complaint") or event.data.get("text") or ""
-        self.say(f"  undone: {what} {detail}".rstrip(), style="yellow")
-        if event.kind == "complaint" and not self.session.evidence.complaints:
-            self._more_complaints_done = False
-        raise _Restart
-
-    def nameplate(self, arg: str) -> None:
-        """Show the nameplate, or set ``PARAM VALUE`` (checked like the first time)."""
-        s = self.session
-        if not arg:
-            from rich.table import Table
-
-            table = Table(show_header=False, box=None, pad_edge=False, title="Nameplate",
-                          title_justify="left", title_style="bold")
-            table.add_column("parameter", no_wrap=True)
-            table.add_column("value", overflow="fold")
-            for pid, p in self.model.parameters.items():
-                value = s.evidence.nameplate.get(pid)
-                shown = unit_text(value) if value is not None else (
-                    f"{unit_text(str(p.default))} (default)" if p.default else "not set")
-                table.add_row(pid, shown)
-            self.console.print(table)
-            return
-        pid, _, text = arg.partition(" ")
-        if not text.strip():
-            raise InputError("nameplate", "type: nameplate PARAM VALUE")
-        pid = self._pick(pid, [(p.id, p.prompt) for p in self.model.parameters.values()],
-                         "parameter")
-        value = s.set_nameplate(pid, text.strip())
-        self.say(f"  {pid} = {unit_text(value)}", style="dim")
-        if self._current is not None:  # show the card again: it may depend on the value
-            self._forced = self._turn_forced
-            raise _Restart
-
-    def unit_state(self, arg: str) -> None:
-        """Show the state of the unit, or record ``STATE VALUE`` (the technician changed it)."""
-        s = self.session
-        states = self.model.states
-        if not states:
-            self.say("This pack keeps no state of the unit.")
-            return
-        if arg:
-            var, _, value = arg.partition(" ")
-            var = self._pick(var, [(v.id, v.title) for v in states.values()], "state")
-            choices = list(states[var].values.items())
-            value = self._pick(value.strip(), choices, "value") if value.strip() else ""
-            if not value:
-                raise InputError("state", f"type: state {var} "
-                                 f"{'|'.join(states[var].values)}")
-            s.set_state(var, value)
-        now = s.unit_state()
-        for var, sv in states.items():
-            self.say(f"  {sv.title}: {sv.values.get(now.get(var, sv.initial), '')}")
-
-    def add_note(self, text: str) -> None:
-        self.session.note(text)
-        self.say("  noted.", style="dim")
-
-    def calc(self, arg: str) -> None:
-        from diagnose.shell.calc import run_calc
-
-        self.console.print(run_calc(arg))
-
-    def set_mode(self, mode: str) -> None:
-        s = self.session
-        if mode not in ("site", "phone"):
-            raise InputError("mode", f"expected phone or site, got {mode!r}")
-        if mode == s.mode:
-            self.say(f"  already in {mode} mode.", style="dim")
-            return
-        s.set_mode(mode)
-        self.say(f"  now in {mode} mode.", style="bold")
-        if mode == "phone":
+    # --- what the commands call ------------------------------------------------------------
+    def mode_hint(self) -> None:
+        """What the mode means, said as it starts (phone mode only)."""
+        if self.session.mode == "phone":
             self.say(PHONE_HINT, style="dim")
-        raise _Restart
 
-    def save(self) -> None:
-        sid = self.session.session_id
-        if self.journal_path:
-            self.say(f"  Saved: every answer is in the journal as it is given. Resume with: "
-                     f"diagnose resume {sid}")
-        else:
-            self.say("  No journal in use: nothing can be saved.")
+    @property
+    def current(self) -> tuple[str, str] | None:
+        """What the question being asked is about: ("check"|"repair", id), or None."""
+        return self._current
 
-    def leave(self) -> None:
+    def restart(self, then: tuple[str, str] | None = None) -> NoReturn:
+        """Start the turn anew: the state changed under the question (undo, mode...).
+
+        ``then``: the ("check"|"repair", id) the person chose to do next.
+        """
+        if then is not None:
+            self._forced = then
+        raise Restart
+
+    def show_again(self) -> NoReturn:
+        """Start the turn anew on the same question: its card may depend on what changed."""
+        self._forced = self._turn_forced
+        raise Restart
+
+    def leave(self) -> NoReturn:
+        """Leave the shell (`quit`); the session stays resumable."""
         raise Leave
 
 
@@ -1160,107 +1016,3 @@ def _sentence(text: str) -> str:
 
 def _message(exc: InputError) -> str:
     return f"{exc.field}: {exc.message}" if exc.field else exc.message
-
-
-# --- entry points ---------------------------------------------------------------------------
-
-def _console() -> Any:
-    from diagnose.text import console
-
-    return console()
-
-
-def _reader(console: Any, holder: list[Shell]) -> Any:
-    """A terminal prompt when stdin is a terminal, else lines from stdin."""
-    from diagnose.shell.reader import LineReader, PromptReader, file_history
-
-    if not sys.stdin.isatty():
-        return LineReader(sys.stdin, console)
-    from prompt_toolkit import PromptSession
-    from prompt_toolkit.output import ColorDepth
-
-    depth = ColorDepth.MONOCHROME if os.environ.get("NO_COLOR") else None
-    session: Any = PromptSession(history=file_history(), color_depth=depth,
-                                 reserve_space_for_menu=MENU_ROWS)
-    return PromptReader(session, toolbar=lambda: holder[0].toolbar() if holder else "")
-
-
-def main(args: argparse.Namespace, *, console: Any = None, reader: Any = None) -> int:
-    """`diagnose start` and bare `diagnose`: a new session in the shell.
-
-    At a terminal the safety notice (from the pack's manifest) is shown at once
-    and read while the pack loads in the background (see ``startup``); from a
-    script, the pack is loaded first and the notice shown as the session starts.
-
-    Raises:
-        InputError: no such pack or a bad mode; KnowledgeError: the pack is broken;
-        JournalError: the journal cannot be written.
-    """
-    from diagnose.kb.locate import DEFAULT_PACK
-    from diagnose.service import Where, journal_path, open_journal, open_pack, start
-
-    where = Where.of(args)
-
-    ref = getattr(args, "pack", None) or DEFAULT_PACK
-    mode = getattr(args, "mode", None) or "site"
-    console = console or _console()
-    holder: list[Shell] = []
-    notice = None
-    if reader is None and sys.stdin.isatty():
-        from diagnose.shell.startup import manifest_notice
-
-        notice = manifest_notice(ref, getattr(args, "packs", None))
-    if notice is not None:
-        from diagnose.shell.startup import Preload, read_notice_while_loading
-        from diagnose.views import NoticeView
-
-        console.print(NoticeView(notice))
-        reader = _reader(console, holder)  # imported first: the loading then has the CPU
-        loading = Preload(lambda: open_pack(ref, where))
-        try:
-            model = read_notice_while_loading(console, reader, notice, loading)
-        except EOFError:
-            console.print("Left before the diagnosis started: nothing was recorded.",
-                          markup=False)
-            return 0
-    else:
-        if console.is_terminal:  # reading and checking a pack takes a moment
-            console.print(f"Loading the pack {ref} ...", style="dim", markup=False)
-        model = open_pack(ref, where)
-    with open_journal(where) as journal:
-        session = start(journal, model, where, mode=mode, who=getattr(args, "who", None) or None)
-        return _run(session, console, reader, str(journal_path(where)), resumed=False,
-                    holder=holder, notice_shown=notice is not None)
-
-
-def resume(args: argparse.Namespace, session_id: str, *, console: Any = None,
-           reader: Any = None) -> int:
-    """Continue session ``session_id`` from the journal in the shell (for `diagnose resume ID`).
-
-    The pack is chosen by the service's one rule (``diagnose.service.recorded_pack``:
-    ``args.pack`` when given, else the recorded knowledge by its content hash, from
-    the folder the session recorded or its id on the search path); the events are
-    replayed and new ones are appended to the same session.
-
-    Raises:
-        JournalError: no journal, no such session, or the session is closed;
-        InputError: the pack cannot be found, or the session was recorded with another pack.
-    """
-    from diagnose.service import Where, journal_path, need_journal, open_journal
-    from diagnose.service import resume as resume_session
-
-    where = Where.of(args)
-    need_journal(where).close()  # a missing journal is said as such, not made anew
-    console = console or _console()
-    with open_journal(where) as journal:
-        resumed = resume_session(journal, session_id, where, getattr(args, "pack", None))
-        return _run(resumed.session, console, reader, str(journal_path(where)), resumed=True)
-
-
-def _run(session: Session, console: Any, reader: Any, path: str | None, *,
-         resumed: bool, holder: list[Shell] | None = None, notice_shown: bool = False) -> int:
-    holder = [] if holder is None else holder
-    shell = Shell(session, console, reader or _reader(console, holder), journal_path=path,
-                  resumed=resumed, notice_shown=notice_shown)
-    holder.append(shell)
-    return shell.run()

@@ -62,5 +62,6 @@ def run_calc(line: str) -> Any:
     if len(tokens) == 1 or any(t in ("-h", "--help", "help") for t in tokens[1:]):
         return Text(names[name].format_help().replace("usage:  calc", "usage: calc"))
     from diagnose.service.calc import verdict_of
+    from diagnose.views import VerdictView
 
-    return verdict_of(root.parse_args(["calc", *tokens]))  # a verdict draws itself
+    return VerdictView(verdict_of(root.parse_args(["calc", *tokens])))

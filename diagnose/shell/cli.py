@@ -51,12 +51,12 @@ def default(args: argparse.Namespace) -> int:
 
 
 def run(args: argparse.Namespace) -> int:
-    from diagnose.shell.app import main
+    from diagnose.shell.entry import main
 
     return main(args)
 
 
 def resume(args: argparse.Namespace) -> int:
-    from diagnose.shell.app import resume as resume_shell
+    from diagnose.shell.entry import resume as resume_shell
 
     return resume_shell(args, args.session_id)
