@@ -20,6 +20,7 @@ from pathlib import Path
 import pytest
 
 from diagnose.service import Where, recorded_pack
+from diagnose.text import percent
 
 MINI = Path(__file__).parent / "fixtures" / "mini"
 
@@ -100,6 +101,12 @@ def test_every_face_continues_with_the_recorded_knowledge(recorded):
     assert _top_in_text(seen["run"]).startswith("Lining worn")  # the same view as the shell
     for face, text in seen.items():
         assert "has changed" not in text, face
+    # the same ranking shows the same number in all three (one view, one percent)
+    shown = percent(report["final_ranking"][0]["p"])
+    assert _top_in_text(seen["shell"]).endswith(shown), (shown, _top_in_text(seen["shell"]))
+    assert _top_in_text(seen["run"]).endswith(shown)
+    md = _diagnose(tmp, "--packs", str(tmp / "local"), "report", sid).stdout
+    assert f"| {report['final_ranking'][0]['title']} | {shown} |" in md
 
 
 def test_a_changed_pack_is_named_by_every_face(recorded):

@@ -15,6 +15,7 @@ from typing import Any
 
 from diagnose.commands import add_output_arguments, output_options, write_output
 from diagnose.errors import InputError
+from diagnose.journal import REPORT_FORMATS
 from diagnose.text import clean, json_text, say
 
 
@@ -36,8 +37,9 @@ def register(sub: Any) -> None:
                        "ranking after each step, cautions acknowledged, repairs, the confirmed "
                        "cause, minutes, notes, and the pack's id, version and content hash.")
     p.add_argument("session_id", metavar="ID")
-    p.add_argument("--format", choices=("md", "html", "json"), default="md",
-                   help="md (default), html (one self-contained file) or json")
+    p.add_argument("--format", choices=REPORT_FORMATS, default="md",
+                   help="md (default), html (one self-contained file), json (the record), or "
+                   "another format a template in diagnose/templates adds")
     add_output_arguments(p)
     p.set_defaults(handler=_report)
 

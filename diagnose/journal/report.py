@@ -19,9 +19,10 @@ from pathlib import Path
 from typing import Any
 
 from diagnose.errors import InputError
+from diagnose.journal import REPORT_FORMATS
 from diagnose.journal.record import Record
 
-FORMATS = ("md", "html", "json")
+FORMATS = REPORT_FORMATS
 REPORT_FORMAT = 1  # version of the JSON layout
 _TEMPLATES = Path(__file__).resolve().parent.parent / "templates"
 DEFERENCE = ("This repair log records what was entered during the diagnosis; it does not "
@@ -44,7 +45,8 @@ def render_report(record: Record, fmt: str = "md") -> str:
         InputError: an unknown format.
     """
     if fmt not in FORMATS:
-        raise InputError("--format", f"unknown report format {fmt!r}; use md, html or json")
+        raise InputError("--format", f"unknown report format {fmt!r}; use "
+                                     f"{', '.join(FORMATS)}")
     data = report_data(record)
     if fmt == "json":
         from diagnose.text import json_text
