@@ -24,7 +24,7 @@ from __future__ import annotations
 
 import os
 import uuid
-from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from datetime import datetime, timezone
 from typing import Any, Protocol
@@ -181,19 +181,6 @@ class Finding:
         if self.verdict is not None:
             out["verdict"] = self.verdict.to_dict()
         return out
-
-    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
-        if self.outcome is None:
-            yield f"{self.check}: unsure (no evidence)"
-            return
-        what = ", ".join(f"{o} {w:.2f}" for o, w in self.weights.items()) if self.soft \
-            else self.outcome
-        yield f"{self.check}: {what}" + (" (near a band edge)" if self.soft else "")
-        if self.verdict is not None:
-            if self.verdict.summary:
-                yield f"  {self.verdict.summary}"
-            for f in self.verdict.figures.values():
-                yield f"  {f.label}: {f.value:.4g} {f.unit}".rstrip()
 
 
 def _squash(text: str) -> str:

@@ -618,3 +618,43 @@ class StatsView:
             for ident, name, n in rows:
                 table.add_row(str(n), name, ident)
             yield table
+
+
+@dataclass(frozen=True)
+class FindingView:
+    """What a check's answer or reading established (``diagnose.session.Finding``), for `run`."""
+
+    finding: Any
+
+    def __rich_console__(self, console: Any, options: Any) -> Any:
+        from rich.text import Text
+
+        f = self.finding
+        if f.outcome is None:
+            yield Text(f"{clean(f.check)}: unsure (no evidence)")
+            return
+        what = ", ".join(f"{o} {w:.2f}" for o, w in f.weights.items()) if f.soft else f.outcome
+        yield Text(clean(f"{f.check}: {what}" + (" (near a band edge)" if f.soft else "")))
+        if f.verdict is not None:
+            from diagnose.physics.verdict import unit_text
+
+            if f.verdict.summary:
+                yield Text(f"  {clean(f.verdict.summary)}")
+            for fig in f.verdict.figures.values():
+                yield Text(f"  {clean(fig.label)}: {fig.value:.4g} {unit_text(fig.unit)}".rstrip())
+
+
+@dataclass(frozen=True)
+class CaseResultView:
+    """One knowledge test case's result (``diagnose.service.cases.CaseResult``), for `kb test`."""
+
+    result: Any
+
+    def __rich_console__(self, console: Any, options: Any) -> Any:
+        from rich.text import Text
+
+        r = self.result
+        yield Text(clean(str(r)), style="green" if r.passed else "bold red")
+        if not r.passed and r.ranking:
+            for cause, p in r.ranking:
+                yield Text(f"    {p:.3f}  {clean(cause)}")

@@ -166,3 +166,15 @@ def test_no_import_guard_around_the_projects_own_modules():
 @pytest.mark.parametrize("module", sorted(MODULES))
 def test_every_module_is_in_a_layer(module):
     assert _part(module) in LAYERS
+
+
+def test_only_the_views_draw():
+    """Results are values; only the view modules (layer 5) and the faces know how they look."""
+    wrong = []
+    for module, (path, tree) in MODULES.items():
+        if LAYERS[_part(module)] >= 5:
+            continue
+        for node in ast.walk(tree):
+            if isinstance(node, ast.FunctionDef) and node.name == "__rich_console__":
+                wrong.append(f"{_where(path, node.lineno)}: {module}")
+    assert not wrong, "drawing below the views:\n" + "\n".join(wrong)

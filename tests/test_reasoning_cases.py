@@ -28,9 +28,11 @@ def test_a_failing_case_shows_the_ranking():
     assert not r.passed and r.top == "fuse_blown" and r.ranking[0][0] == "fuse_blown"
     d = r.to_dict()
     assert d["ranking"][0]["cause"] == "fuse_blown" and "expected coil_open" in d["message"]
+    from diagnose.views import CaseResultView
+
     out = io.StringIO()
-    Console(file=out, width=80, color_system=None).print(r)
-    assert "FAIL wrong" in out.getvalue()
+    Console(file=out, width=80, color_system=None).print(CaseResultView(r))
+    assert "FAIL wrong" in out.getvalue() and "fuse_blown" in out.getvalue()
 
 
 def test_a_refused_step_fails_the_case_with_the_reason():

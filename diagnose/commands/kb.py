@@ -185,9 +185,11 @@ def _test(args: argparse.Namespace) -> int:
     if args.json:
         print(json_text([r.to_dict() for r in results], indent=2))
     else:
+        from diagnose.views import CaseResultView
+
         con = _console()
         for r in results:
-            con.print(r)
+            con.print(CaseResultView(r))
         passed = sum(1 for r in results if r.passed)
         con.print(f"{model.id}: {passed} of {len(results)} case(s) passed")
     if not results:

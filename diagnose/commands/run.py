@@ -279,7 +279,9 @@ class _View:
 
             self.console.rule(f"step {i}: {_step_text(step)}", align="left")
             if isinstance(result, Finding):
-                self.console.print(result)
+                from diagnose.views import FindingView
+
+                self.console.print(FindingView(result))
             self.console.print(_ranking_view(self.session))
             self.console.print(ActionView(self.session.next_action()))
 

@@ -17,7 +17,6 @@ A case passes when, after all its steps, the top of the ranking (a cause or
 
 from __future__ import annotations
 
-from collections.abc import Iterator
 from dataclasses import dataclass
 from typing import Any
 
@@ -56,14 +55,6 @@ class CaseResult:
         if self.passed:
             return f"{where}PASS {self.case}: {self.top} ({self.p:.2f})"
         return f"{where}FAIL {self.case}: {self.message}"
-
-    def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
-        from rich.text import Text
-
-        yield Text(str(self), style="green" if self.passed else "bold red")
-        if not self.passed and self.ranking:
-            for cause, p in self.ranking:
-                yield Text(f"    {p:.3f}  {cause}")
 
 
 def run_case(model: Model, case: Case, *, shown: int = 5) -> CaseResult:
