@@ -243,13 +243,6 @@ def say(*parts: Any, file: IO[str] | None = None, sep: str = " ") -> None:
     print(clean(sep.join(str(p) for p in parts)), file=file if file is not None else sys.stdout)
 
 
-def plain(text: Any, style: str = "") -> Any:
-    """A rich ``Text`` of ``text`` cleaned: never read as markup, whatever brackets it holds."""
-    from rich.text import Text
-
-    return Text(clean(text), style=style)
-
-
 def console(**options: Any) -> Any:
     """A rich ``Console`` for the program's output: no markup, no emoji codes, text gated.
 

@@ -101,15 +101,6 @@ _MIGRATIONS: tuple[tuple[str, ...], ...] = (
 
 
 @dataclass(frozen=True)
-class StoredEvent:
-    """An event as read back, when ``diagnose.session`` is not there to give its own type."""
-
-    kind: str
-    data: dict[str, Any]
-    time: str
-
-
-@dataclass(frozen=True)
 class SessionInfo:
     """One session's metadata, as ``sessions`` and ``session`` return it."""
 

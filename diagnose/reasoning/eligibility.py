@@ -153,12 +153,7 @@ def check_standing(model: Model, evidence: Evidence, tables: Tables) -> Standing
         elif extra > 0:
             cmin[i] += extra
     _withhold(model, evidence, tables.checks_withheld, st)
-    if evidence.mode == "phone":
-        code[~tables.check_phone] = 4
-        for i in tables.checks_hazardous:
-            if code[i] != 4 and not caller_safe(model, evidence,
-                                                model.checks[tables.check_ids[i]]):
-                code[i] = 10
+    _by_phone(model, evidence, st, tables.check_phone, tables.checks_hazardous, (4, 10))
     pos = tables.check_pos
     for ids, c in ((evidence.skipped, 3), (evidence.unsure, 2), (evidence.findings, 1)):
         for cid in ids:
@@ -181,18 +176,27 @@ def repair_standing(model: Model, evidence: Evidence, tables: Tables, p: np.ndar
     for i in tables.repairs_only_if:
         if not only_if_matches(model, evidence, model.repairs[tables.repair_ids[i]]):
             rcode[i] = 6
-    if evidence.mode == "phone":
-        rcode[~tables.repair_phone] = 2
-        for i in tables.repairs_hazardous:
-            if rcode[i] != 2 and not caller_safe(model, evidence,
-                                                 model.repairs[tables.repair_ids[i]]):
-                rcode[i] = 7
+    _by_phone(model, evidence, st, tables.repair_phone, tables.repairs_hazardous, (2, 7))
     for rid in evidence.repairs_skipped:
         if rid in tables.repair_index:
             rcode[tables.repair_index[rid]] = 5
     for rid in evidence.repairs_done:
         rcode[tables.repair_index[rid]] = 1
     return st, p_fix
+
+
+def _by_phone(model: Model, evidence: Evidence, st: Standing, by_phone: np.ndarray,
+              hazardous: tuple[int, ...], codes: tuple[int, int]) -> None:
+    """In phone mode: items done on site only get ``codes[0]``; items whose hazards are not
+    caller-safe for this unit get ``codes[1]`` (see :func:`diagnose.reasoning.safety.caller_safe`).
+    """
+    if evidence.mode != "phone":
+        return
+    site_only, unsafe = codes
+    st.code[~by_phone] = site_only
+    for i in hazardous:
+        if st.code[i] != site_only and not caller_safe(model, evidence, st.items[st.ids[i]]):
+            st.code[i] = unsafe
 
 
 def _withhold(model: Model, evidence: Evidence, which: tuple[int, ...], st: Standing) -> None:
