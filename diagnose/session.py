@@ -3,15 +3,17 @@
 Every face (the shell, ``diagnose run``, the knowledge tests) goes through
 :class:`Session`. A method that changes the state validates first (bad input
 raises :class:`~diagnose.errors.InputError` and changes nothing), then makes
-one :class:`Event`, hands it to the sink (``write(session_id, event)``; the
+one typed event (``diagnose.events``: :class:`~diagnose.events.Answered`,
+:class:`~diagnose.events.Repaired`, ...), hands it to the sink (``write(session_id, event)``; the
 journal's SQLite store is one), and only then appends it. The state
 (:class:`~diagnose.reasoning.evidence.Evidence`) is :func:`fold` of the
 events, so :meth:`Session.undo` is an ``undo`` event that hides an earlier
 one, and :meth:`Session.replay` rebuilds a session from a journal.
 
-The kinds of event and the keys of their data are code: ``diagnose.events.KINDS``.
+:func:`apply` says what each kind of event means for the evidence; the
+repair log folds the same events through it.
 
-``notice``, ``ack``, ``end`` and ``undo`` cannot be undone; a safety
+``notice``, ``ack``, ``reminder``, ``end`` and ``undo`` cannot be undone; a safety
 acknowledgement stays on the record. A DANGER or WARNING caution is
 acknowledged per card: an ``ack`` covers the card its ``item`` names and no
 other. An ``ack`` without ``item`` (older journals) is kept on the record but
@@ -27,10 +29,32 @@ import uuid
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from datetime import datetime, timezone
-from typing import Any, Protocol
+from typing import Any, Protocol, TypeVar
 
 from diagnose.errors import InputError
-from diagnose.events import KINDS, UNDOABLE, effective
+from diagnose.events import (
+    Acknowledged,
+    Answered,
+    ComplaintReported,
+    Ended,
+    Event,
+    EventError,
+    IdentityGiven,
+    LeftUnsure,
+    ModeSet,
+    NameplateRead,
+    Noted,
+    ReadingTaken,
+    Reminded,
+    Repaired,
+    RepairSkipped,
+    Skipped,
+    Started,
+    StateSet,
+    Undone,
+    effective,
+)
+from diagnose.events import fold as fold_events
 from diagnose.kb.model import Case, Caution, Check, Model, Parameter, Step
 from diagnose.physics.verdict import Verdict
 from diagnose.reasoning.evidence import MODES, Evidence
@@ -54,23 +78,9 @@ from diagnose.reasoning.posterior import Posterior, Ranking, posterior
 from diagnose.reasoning.safety import card_cautions, lapsed_since, renewals
 from diagnose.reasoning.unitstate import setup_steps, unit_state
 
+E = TypeVar("E", bound=Event)
+
 END_RESULTS = ("resolved", "visit", "escalated", "abandoned")
-
-
-@dataclass(frozen=True)
-class Event:
-    """One thing that happened in a diagnosis. ``time`` is ISO 8601 (UTC)."""
-
-    kind: str
-    data: dict[str, Any]
-    time: str
-
-    def to_dict(self) -> dict[str, Any]:
-        return {"kind": self.kind, "data": dict(self.data), "time": self.time}
-
-    @classmethod
-    def from_dict(cls, d: Mapping[str, Any]) -> Event:
-        return cls(str(d["kind"]), dict(d.get("data") or {}), str(d.get("time", "")))
 
 
 class Sink(Protocol):
@@ -108,53 +118,44 @@ def effective_events(events: Iterable[Event]) -> list[Event]:
 
 
 def apply(evidence: Evidence, event: Event) -> Evidence:
-    """The evidence after one event (unknown kinds change nothing)."""
-    d = event.data
-    k = event.kind
-    if k == "notice":
-        return replace(evidence, mode=str(d.get("mode", evidence.mode)))
-    if k == "identity":
-        return replace(evidence, identity={**evidence.identity,
-                                           **{str(a): str(b) for a, b in d.items()}})
-    if k == "nameplate":
-        return evidence.with_nameplate(d["param"], str(d["value"]))
-    if k == "complaint":
-        return evidence.with_complaint(d["complaint"])
-    if k == "answer":
-        return evidence.with_outcome(d["check"], d["outcome"])
-    if k == "reading":
-        weights = d.get("weights") or {d["verdict"]: 1.0}
-        return evidence.with_finding(d["check"], {str(o): float(w) for o, w in weights.items()})
-    if k == "unsure":
-        return evidence.with_unsure(d["check"])
-    if k == "skip":
-        return evidence.with_skip(d["check"])
-    if k == "skip_repair":
-        return evidence.with_skipped_repair(d["repair"])
-    if k == "ack":
-        item = d.get("item")
-        step = d.get("step")
-        return evidence.with_acknowledgement(d["caution"], str(item) if item else None,
-                                             int(step) if isinstance(step, int) else None)
-    if k == "repair":
-        return evidence.with_repair(d["repair"], bool(d["cured"]))
-    if k == "note":
-        return replace(evidence, notes=evidence.notes + (str(d.get("text", "")),))
-    if k == "mode":
-        return evidence.with_mode(d["mode"])
-    if k == "state":
-        return evidence.with_state(str(d["state"]), str(d["value"]))
-    if k == "end":
-        return replace(evidence, end=dict(d))
+    """The evidence after one event (a kind this program does not know changes nothing)."""
+    match event:
+        case Started(mode=mode):
+            return replace(evidence, mode=mode)
+        case IdentityGiven(fields=fields):
+            return replace(evidence, identity={**evidence.identity, **fields})
+        case NameplateRead(param=param, value=value):
+            return evidence.with_nameplate(param, value)
+        case ComplaintReported(complaint=complaint):
+            return evidence.with_complaint(complaint)
+        case Answered(check=check, outcome=outcome):
+            return evidence.with_outcome(check, outcome)
+        case ReadingTaken(check=check):
+            return evidence.with_finding(check, event.finding)
+        case LeftUnsure(check=check):
+            return evidence.with_unsure(check)
+        case Skipped(check=check):
+            return evidence.with_skip(check)
+        case RepairSkipped(repair=repair):
+            return evidence.with_skipped_repair(repair)
+        case Acknowledged(caution=caution, item=item, step=step):
+            return evidence.with_acknowledgement(caution, item or None, step)
+        case Repaired(repair=repair, cured=cured):
+            return evidence.with_repair(repair, cured)
+        case Noted(text=text):
+            return replace(evidence, notes=evidence.notes + (text,))
+        case ModeSet(mode=mode):
+            return evidence.with_mode(mode)
+        case StateSet(state=state, value=value):
+            return evidence.with_state(state, value)
+        case Ended():
+            return replace(evidence, end=event.data)
     return evidence
 
 
-def fold(events: Iterable[Event]) -> Evidence:
-    """The state of a diagnosis: its effective events applied in order to empty evidence."""
-    evidence = Evidence()
-    for event in effective_events(events):
-        evidence = apply(evidence, event)
-    return evidence
+def fold(events: Iterable[Event], start: Evidence | None = None) -> Evidence:
+    """The state of a diagnosis: its effective events applied in order (the one fold)."""
+    return fold_events(events, apply, start if start is not None else Evidence())
 
 
 # --- findings ------------------------------------------------------------------------------
@@ -229,11 +230,10 @@ class Session:
         self._evidence = Evidence(mode=mode)
         self._cache: dict[str, Any] = {}
         if _events is None:
-            self._record("notice", {
-                "pack": model.id, "version": model.version, "content_hash": model.content_hash,
-                "packs": list(model.packs), "text": model.notice, "mode": mode,
-                "max_faults": max_faults,
-                "path": os.path.abspath(model.path) if model.path else ""})
+            self._record(Started, pack=model.id, version=model.version,
+                         content_hash=model.content_hash, packs=tuple(model.packs),
+                         text=model.notice, mode=mode, max_faults=max_faults,
+                         path=os.path.abspath(model.path) if model.path else "")
         else:
             self._events = list(_events)
             self._evidence = fold(self._events)
@@ -264,16 +264,14 @@ class Session:
     def pack_changed(self) -> bool:
         """True when the session was recorded with other knowledge (its content hash differs)."""
         first = self._events[0] if self._events else None
-        if first is None or first.kind != "notice":
+        if not isinstance(first, Started):
             return False
-        return str(first.data.get("content_hash", "")) != self.model.content_hash
+        return first.content_hash != self.model.content_hash
 
-    def _record(self, kind: str, data: dict[str, Any]) -> Event:
-        missing = [k for k in KINDS[kind].needs if k not in data]  # KeyError: not a kind
-        if missing:  # a bug of the caller, never of the person typing
-            raise ValueError(f"a {kind} event needs {', '.join(missing)}")
-        event = Event(kind, data, self._clock())
-        evidence = fold(self._events + [event]) if kind == "undo" else apply(self._evidence, event)
+    def _record(self, kind: type[E], **fields: Any) -> E:
+        event = kind(**fields, time=self._clock())  # TypeError: a bug of the caller
+        undo = isinstance(event, Undone)
+        evidence = fold(self._events + [event]) if undo else apply(self._evidence, event)
         self.sink.write(self.session_id, event)  # committed before the state changes
         self._events.append(event)
         self._evidence = evidence
@@ -293,7 +291,7 @@ class Session:
     # --- recording -------------------------------------------------------------------------
     def set_identity(self, **fields: Any) -> Event:
         """Facts about the unit and the call: serial number, customer, site, ..."""
-        return self._record("identity", {k: _text(v) for k, v in fields.items()})
+        return self._record(IdentityGiven, fields={k: _text(v) for k, v in fields.items()})
 
     def set_nameplate(self, param_id: str, text: Any) -> str:
         """Record a nameplate value; returns it normalised ("24 V", "yes", "unknown").
@@ -308,7 +306,7 @@ class Session:
             known = ", ".join(self.model.parameters) or "none"
             raise InputError("nameplate", f"unknown parameter {param_id!r}; known: {known}")
         value = normalise_parameter(param, text)
-        self._record("nameplate", {"param": param_id, "text": _text(text), "value": value})
+        self._record(NameplateRead, param=param_id, text=_text(text), value=value)
         return value
 
     def add_complaint(self, complaint_id: str) -> Event:
@@ -317,7 +315,7 @@ class Session:
         if complaint_id not in self.model.complaints:
             known = ", ".join(self.model.complaints)
             raise InputError("complaint", f"unknown complaint {complaint_id!r}; known: {known}")
-        return self._record("complaint", {"complaint": complaint_id})
+        return self._record(ComplaintReported, complaint=complaint_id)
 
     def answer(self, check_id: str, text: Any) -> Finding:
         """Answer a check: an outcome id, or for a measurement a reading (with unit) or readings.
@@ -336,7 +334,7 @@ class Session:
             return self.unsure(check_id)
         outcome = _match_outcome(chk, text)
         if outcome is not None:
-            self._record("answer", {"check": check_id, "outcome": outcome})
+            self._record(Answered, check=check_id, outcome=outcome)
             return Finding(check_id, outcome, {outcome: 1.0}, _text(text))
         if chk.measurement is None:
             raise InputError(check_id, f"{text!r} is not an outcome; expected one of "
@@ -347,10 +345,10 @@ class Session:
         if bad:
             raise InputError(check_id, f"the verdict {bad[0]!r} is not an outcome of this check")
         shown = [_text(t) for t in text] if isinstance(text, (list, tuple)) else _text(text)
-        self._record("reading", {
-            "check": check_id, "text": shown, "verdict": verdict.verdict, "weights": weights,
-            "summary": verdict.summary,
-            "figures": {k: f.to_dict() for k, f in verdict.figures.items()}})
+        self._record(ReadingTaken, check=check_id,
+                     text=tuple(shown) if isinstance(shown, list) else shown,
+                     verdict=verdict.verdict, weights=weights, summary=verdict.summary,
+                     figures={k: f.to_dict() for k, f in verdict.figures.items()})
         return Finding(check_id, verdict.verdict, weights, shown, verdict)
 
     def _evaluate(self, chk: Check, text: Any) -> Verdict:
@@ -408,14 +406,14 @@ class Session:
         """The check was done but the answer is not clear: no evidence, not offered again."""
         self._open()
         self._check(check_id)
-        self._record("unsure", {"check": check_id})
+        self._record(LeftUnsure, check=check_id)
         return Finding(check_id, None)
 
     def skip(self, check_id: str) -> Event:
         """The check cannot be done now: not offered again (until undone or answered)."""
         self._open()
         self._check(check_id)
-        return self._record("skip", {"check": check_id})
+        return self._record(Skipped, check=check_id)
 
     def skip_repair(self, repair_id: str) -> Event:
         """The repair cannot be done now (no part on the van, no access): not proposed again.
@@ -425,7 +423,7 @@ class Session:
         self._open()
         if repair_id not in self.model.repairs:
             raise InputError("repair", f"unknown repair {repair_id!r}")
-        return self._record("skip_repair", {"repair": repair_id})
+        return self._record(RepairSkipped, repair=repair_id)
 
     def acknowledge(self, caution_id: str, item_id: str | None = None) -> Event:
         """Record that a caution was read and acknowledged on the card of ``item_id``.
@@ -440,21 +438,19 @@ class Session:
         """
         if caution_id not in self.model.cautions:
             raise InputError("caution", f"unknown caution {caution_id!r}")
-        data: dict[str, Any] = {"caution": caution_id}
         if item_id is not None:
             self._item(item_id)
             if caution_id not in self.card_cautions(item_id):
                 raise InputError("caution", f"{item_id} does not carry the caution {caution_id}")
-            data["item"] = item_id
-        data["step"] = len(self._evidence.steps)
-        return self._record("ack", data)
+        return self._record(Acknowledged, caution=caution_id, item=item_id,
+                            step=len(self._evidence.steps))
 
     def remind(self, item_id: str, cautions: Sequence[str]) -> Event | None:
         """Record that the card of ``item_id`` showed ``cautions`` as one-line reminders."""
         if not cautions:
             return None
         self._item(item_id)
-        return self._record("reminder", {"item": item_id, "cautions": list(cautions)})
+        return self._record(Reminded, item=item_id, cautions=tuple(cautions))
 
     def repair(self, repair_id: str, cured: bool) -> Event:
         """Record a repair done and whether it cured the complaint."""
@@ -463,7 +459,7 @@ class Session:
             raise InputError("repair", f"unknown repair {repair_id!r}")
         if not isinstance(cured, bool):
             raise InputError("cured", f"expected true or false, got {cured!r}")
-        return self._record("repair", {"repair": repair_id, "cured": cured})
+        return self._record(Repaired, repair=repair_id, cured=cured)
 
     def note(self, text: str) -> Event:
         """A free-text note for the repair log (not after the end: the log is closed).
@@ -475,10 +471,10 @@ class Session:
             raise InputError("note", "the diagnosis is closed; a note can no longer be added")
         if not str(text).strip():
             raise InputError("note", "empty note")
-        return self._record("note", {"text": str(text).strip()})
+        return self._record(Noted, text=str(text).strip())
 
     def set_state(self, state_id: str, value: str) -> Event:
-        """The technician says the unit is now ``state_id = value`` (power restored, brake refitted).
+        """The unit is now ``state_id = value`` (power restored, brake refitted), as said.
 
         Raises:
             InputError: a state or value the pack does not declare.
@@ -490,7 +486,7 @@ class Session:
             raise InputError("state", f"unknown state {state_id!r}; known: {known}")
         if value not in var.values:
             raise InputError(state_id, f"expected one of {', '.join(var.values)}, got {value!r}")
-        return self._record("state", {"state": state_id, "value": value})
+        return self._record(StateSet, state=state_id, value=value)
 
     def unit_state(self) -> dict[str, str]:
         """The state of the unit now (see :mod:`diagnose.reasoning.unitstate`)."""
@@ -553,7 +549,7 @@ class Session:
         self._open()
         if mode not in MODES:
             raise InputError("mode", f"expected site or phone, got {mode!r}")
-        return self._record("mode", {"mode": mode})
+        return self._record(ModeSet, mode=mode)
 
     def end(self, result: str | None = None, *, text: str = "",
             parts: Sequence[str] = ()) -> Event:
@@ -581,20 +577,19 @@ class Session:
                 parts = list(action.parts)
         top = self.ranking().top
         cured = [r for r, c in self._evidence.repairs if c]
-        return self._record("end", {
-            "result": result, "cause": top.cause, "p": round(top.p, 6),
-            "repair": cured[-1] if cured else None,
-            "parts": parts if result == "visit" else [], "text": str(text)})
+        return self._record(Ended, result=result, cause=top.cause, p=round(top.p, 6),
+                            repair=cured[-1] if cured else None,
+                            parts=tuple(parts) if result == "visit" else (), text=str(text))
 
     def undo(self) -> Event | None:
         """Undo the last event that can be undone; returns it (None when there is none)."""
-        undone = {int(e.data["index"]) for e in self._events if e.kind == "undo"}
+        undone = {e.index for e in self._events if isinstance(e, Undone)}
         for i in range(len(self._events) - 1, -1, -1):
             e = self._events[i]
-            if e.kind == "end" and i not in undone:
+            if isinstance(e, Ended) and i not in undone:
                 return None  # nothing before the end can be changed any more
-            if e.kind in UNDOABLE and i not in undone:
-                self._record("undo", {"index": i, "kind": e.kind})
+            if e.UNDOABLE and i not in undone:
+                self._record(Undone, index=i, was=e.kind)
                 return e
         return None
 
@@ -712,16 +707,23 @@ class Session:
         Raises:
             InputError: the events were recorded with another pack, or are malformed.
         """
-        evs = [e if isinstance(e, Event) else Event.from_dict(e) for e in events]
+        evs = [e if isinstance(e, Event) else _event_of(e) for e in events]
         mode, max_faults = "site", 1
-        if evs and evs[0].kind == "notice":
-            d = evs[0].data
-            if d.get("pack") not in (None, model.id):
-                raise InputError("session", f"recorded with pack {d.get('pack')}, not {model.id}")
-            mode, max_faults = str(d.get("mode", mode)), int(d.get("max_faults", max_faults))
+        first = evs[0] if evs else None
+        if isinstance(first, Started):
+            if first.pack not in ("", model.id):
+                raise InputError("session", f"recorded with pack {first.pack}, not {model.id}")
+            mode, max_faults = first.mode, first.max_faults
         session = cls(model, mode=mode, max_faults=max_faults, sink=sink,
                       session_id=session_id, clock=clock, settings=settings, _events=evs)
         return session
+
+
+def _event_of(d: Mapping[str, Any]) -> Event:
+    try:
+        return Event.from_dict(d)
+    except EventError as exc:
+        raise InputError("session", f"a malformed event: {exc}") from None
 
 
 def finding_weights(chk: Check, verdict: Verdict) -> dict[str, float]:

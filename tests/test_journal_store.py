@@ -132,14 +132,27 @@ def test_events_round_trip_in_order(jpath):
 
     with Journal(jpath) as j:
         sid = j.new_session("p", "1", "h", "site")
-        sent = [Ev("nameplate", {"values": {"rated_voltage": "24 V"}}, "2025-01-14T09:00:00Z"),
-                Ev("reading", {"check": "coil_resistance", "value": "28.8 ohm",
-                               "verdict": {"verdict": "ok", "figures": {}}},
+        sent = [Ev("nameplate", {"param": "rated_voltage", "text": "24", "value": "24 V"},
+                   "2025-01-14T09:00:00Z"),
+                Ev("reading", {"check": "coil_resistance", "text": "28.8 ohm", "verdict": "ok",
+                               "weights": {"ok": 1.0}, "summary": "", "figures": {}},
                    "2025-01-14T09:01:00Z"),
-                Ev("note", {"text": "ünïcode <b>"}, "2025-01-14T09:02:00Z")]
-        assert [j.write(sid, e) for e in sent] == [1, 2, 3]
+                Ev("note", {"text": "ünïcode <b>"}, "2025-01-14T09:02:00Z"),
+                Ev("from_a_newer_program", {"what": [1, 2]}, "2025-01-14T09:03:00Z")]
+        assert [j.write(sid, e) for e in sent] == [1, 2, 3, 4]
         got = j.load_events(sid)
     assert [(e.kind, e.data, e.time) for e in got] == [(e.kind, e.data, e.time) for e in sent]
+
+
+def test_a_malformed_event_is_refused_before_it_is_written(jpath):
+    with Journal(jpath) as j:
+        sid = j.new_session("p", "1", "h", "site")
+        for kind, data in [("nameplate", {"values": {"rated_voltage": "24 V"}}),
+                           ("repair", {"repair": "replace_fuse", "cured": "yes"}),
+                           ("undo", {"index": 1.5})]:
+            with pytest.raises(JournalError, match="malformed event"):
+                j.write(sid, {"kind": kind, "data": data})
+        assert j.load_events(sid) == [] and j.session(sid).events == 0
 
 
 def test_sessions_filter_and_close(filled):
@@ -347,11 +360,11 @@ def test_two_writers_lose_nothing(jpath):
 def test_events_are_json_text(jpath):
     with Journal(jpath) as j:
         sid = j.new_session("p", "1", "h", "site")
-        j.write(sid, _event("reading", check="c", figures={"ohms": 28.8}, done={"a"}))
+        j.write(sid, _event("note", text="c", figures={"ohms": 28.8}, done={"a"}))
     conn = sqlite3.connect(jpath)
     data = conn.execute("SELECT data FROM event").fetchone()[0]
     conn.close()
-    assert json.loads(data) == {"check": "c", "figures": {"ohms": 28.8}, "done": ["a"]}
+    assert json.loads(data) == {"text": "c", "figures": {"ohms": 28.8}, "done": ["a"]}
 
 
 # --- the commands ------------------------------------------------------------------------------

@@ -125,3 +125,29 @@ def test_an_answers_file_round_trip_is_the_same_fold(tmp_path):
         replayed = Session.replay(model, journal.load_events(recorded.session_id))
     assert replayed.evidence.findings == memory.evidence.findings
     assert replayed.evidence.repairs == memory.evidence.repairs
+
+
+def test_the_statistics_count_what_the_sessions_fold(tmp_path):
+    """``stats`` reads sessions through the same fold: its counts are the replayed sessions'."""
+    from collections import Counter
+
+    from diagnose.journal.stats import stats
+
+    model = load_model(str(MINI))
+    with Journal(tmp_path / "journal.sqlite3") as journal:
+        for seed in range(10):
+            session = start_session(journal, model)
+            _random_session(session, random.Random(100 + seed))
+            if not session.ended and seed % 2:
+                session.end("abandoned" if seed % 3 else None)
+        folded = [Session.replay(model, journal.load_events(i.id)).evidence
+                  for i in journal.sessions()]
+        figures = stats(journal, model_for=lambda _pid: model, top=100)
+    assert figures.sessions == len(folded) == 10
+    assert figures.closed == sum(ev.end is not None for ev in folded)
+    assert figures.results == dict(Counter(str(ev.end["result"]) for ev in folded if ev.end))
+    assert figures.with_repair == sum(bool(ev.repairs) for ev in folded)
+    assert figures.first_repair_cured == sum(bool(ev.repairs and ev.repairs[0][1])
+                                             for ev in folded)
+    counted = Counter(c for ev in folded for c in ev.done)
+    assert {c: n for c, _title, n in figures.checks} == dict(counted)

@@ -8,11 +8,10 @@ from pathlib import Path
 import pytest
 
 from diagnose.errors import InputError
+from diagnose.events import UNDOABLE, Started
 from diagnose.kb.model import UNKNOWN_CAUSE
 from diagnose.reasoning.synthetic import tiny_model
 from diagnose.session import (
-    UNDOABLE,
-    Event,
     MemorySink,
     NullSink,
     Session,
@@ -133,7 +132,7 @@ def test_replay_rebuilds_the_same_state_and_keeps_recording():
 
 
 def test_replay_refuses_events_of_another_pack():
-    events = [Event("notice", {"pack": "other"}, "")]
+    events = [Started(pack="other")]
     with pytest.raises(InputError):
         Session.replay(tiny_model(), events)
 

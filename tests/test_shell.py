@@ -21,8 +21,9 @@ from prompt_toolkit.output import DummyOutput
 from rich.console import Console
 
 from diagnose.errors import DiagnoseError
+from diagnose.events import Acknowledged
 from diagnose.kb.loader import load_model
-from diagnose.session import Event, MemorySink, Session
+from diagnose.session import MemorySink, Session
 from diagnose.shell import commands
 from diagnose.shell.app import Shell
 from diagnose.shell.complete import CompletionState
@@ -245,7 +246,7 @@ def test_a_resumed_old_acknowledgement_is_asked_again(model):
     """An ``ack`` of an older journal names no card: the shell asks before the next one."""
     first = Session(model, sink=MemorySink())
     events = [first.events[0],
-              Event("ack", {"caution": "lockout"}, "2025-01-14T09:00:00+00:00")]
+              Acknowledged("lockout", time="2025-01-14T09:00:00+00:00")]
     session = Session.replay(model, events, sink=MemorySink(), session_id="t-1")
     shell, screen, _ = drive(model, PRELUDE + ["do coil_resistance", "ack", "3.2 ohm", "quit"],
                              session=session)

@@ -1,17 +1,20 @@
 """The record of one session: its events read back into what a repair log shows.
 
-``build_record(info, events, model, rankings)`` folds a session's events (as
-the journal stored them; see the table of kinds in ``diagnose.session``) into
+``build_record(info, events, model, rankings)`` folds a session's events (the
+typed events of ``diagnose.events``, as the journal reads them back) into
 a :class:`Record`: the unit and its nameplate, the complaint, every step with
 its time, answer or reading (with the computed figures and the verdict), the
 ranking after it, the cautions acknowledged, the repairs and their results,
 the confirmed cause and the minutes. The report, the statistics and the
 learning all read sessions through it, so they agree on what a session says.
 
-Undone events (``undo``) are left out, as the session's own fold leaves them
-out. The model (the compiled pack) is optional: it gives titles, prompts and
-the pack's minutes, and recomputes a ranking the journal does not hold;
-without it (a pack since removed) ids stand in for titles.
+It is the session's own fold (``diagnose.events.walk`` for which events
+count, ``diagnose.session.apply`` for what each one says) with the times,
+titles, figures and rankings a log needs beside it: the identity, mode,
+complaints and end of a record are those of the session's evidence. The
+model (the compiled pack) is optional: it gives titles, prompts and the
+pack's minutes, and recomputes a ranking the journal does not hold; without
+it (a pack since removed) ids stand in for titles.
 """
 
 from __future__ import annotations
@@ -21,7 +24,27 @@ from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any, NamedTuple
 
-from diagnose.events import STEP_KINDS, effective_indices
+from diagnose.events import (
+    STEP_KINDS,
+    Acknowledged,
+    Answered,
+    ComplaintReported,
+    Ended,
+    Event,
+    LeftUnsure,
+    NameplateRead,
+    Noted,
+    ReadingTaken,
+    Repaired,
+    RepairSkipped,
+    Skipped,
+    Started,
+    Undone,
+    effective_indices,
+    started,
+    walk,
+)
+from diagnose.reasoning.evidence import Evidence
 
 CHECK_KINDS = ("answer", "reading", "unsure", "skip")
 RESOLVED = "resolved"  # the end result that means a repair cured the unit
@@ -165,9 +188,7 @@ def recompute_rankings(events: Sequence[Any], model: Any) -> list[list[dict[str,
     from diagnose.reasoning.posterior import posterior
     from diagnose.session import fold
 
-    max_faults = 1
-    if events and events[0].kind == "notice":
-        max_faults = int(events[0].data.get("max_faults", 1))
+    max_faults = started(events).max_faults
     out: list[list[dict[str, Any]] | None] = []
     for i, ev in enumerate(events):
         if ev.kind not in RANKED_KINDS:
@@ -181,7 +202,7 @@ def recompute_rankings(events: Sequence[Any], model: Any) -> list[list[dict[str,
     return out
 
 
-def build_record(info: Any, events: Sequence[Any], model: Any = None,
+def build_record(info: Any, events: Sequence[Event], model: Any = None,
                  rankings: Sequence[Any] | None = None) -> Record:
     """The record of a session from its metadata (``SessionInfo``), events and the model.
 
@@ -191,23 +212,23 @@ def build_record(info: Any, events: Sequence[Any], model: Any = None,
     events = list(events)
     ranks, recomputed = _rankings(events, model, rankings)
     fold = _Fold(_Tables.of(model), getattr(info, "who", None),
-                 getattr(info, "mode", "site") or "site")
+                 Evidence(mode=getattr(info, "mode", "site") or "site"))
     keep, undone = effective_indices(events)
     # The last ranking kept, an undo's included: the ranking once a step was taken back.
     final: tuple[dict[str, Any], ...] = ()
-    counted = set(keep) | {i for i, e in enumerate(events) if e.kind == "undo"}
+    counted = set(keep) | {i for i, e in enumerate(events) if isinstance(e, Undone)}
     for i in sorted(counted):
         if ranks[i]:
             final = _named(ranks[i], model)
-    for i in keep:
-        ev = events[i]
-        fold.add(ev.kind, dict(ev.data or {}), str(ev.time), _named(ranks[i], model))
+    for i, event in walk(events):
+        fold.add(event, _named(ranks[i], model))
 
-    steps, end = fold.steps, fold.end
-    started = str(events[0].time) if events else str(getattr(info, "started", ""))
+    ev, steps = fold.evidence, fold.steps
+    end = dict(ev.end) if ev.end is not None else None
+    started_at = str(events[0].time) if events else str(getattr(info, "started", ""))
     ended = str((events[keep[-1]] if keep else events[-1]).time) if events else ""
     if end is not None:
-        ended = next(str(e.time) for e in events if e.kind == "end")
+        ended = next(str(e.time) for e in events if isinstance(e, Ended))
     cure = next((s for s in steps if s.kind == "repair" and s.cured), None)
     result = _text((end or {}).get("result")) or getattr(info, "outcome", None)
     cause_id = confirmed_cause(result, end, steps, model)
@@ -215,13 +236,15 @@ def build_record(info: Any, events: Sequence[Any], model: Any = None,
     return Record(
         session=session, pack=_pack_of(session, events, model),
         notice=fold.notice or str(getattr(model, "notice", "") or ""),
-        identity=fold.identity, nameplate=tuple(fold.nameplate.values()),
-        complaints=tuple(fold.complaints), mode=fold.mode, steps=tuple(steps),
-        cautions=tuple(fold.cautions), notes=tuple(fold.notes), initial_ranking=fold.initial,
-        final_ranking=final or fold.initial, result=result or None,
+        identity=dict(ev.identity), nameplate=tuple(fold.nameplate.values()),
+        complaints=tuple({"id": c, "title": _title(fold.tables.complaints, c)}
+                         for c in ev.complaints),
+        mode=ev.mode, steps=tuple(steps), cautions=tuple(fold.cautions), notes=tuple(fold.notes),
+        initial_ranking=fold.initial, final_ranking=final or fold.initial, result=result or None,
         cause={"id": cause_id, "title": _cause_title(model, cause_id)} if cause_id else None,
-        end=end, started=started, ended=ended, clock_minutes=minutes_between(started, ended),
-        minutes_to_cure=minutes_between(started, cure.time) if cure else None,
+        end=end, started=started_at, ended=ended,
+        clock_minutes=minutes_between(started_at, ended),
+        minutes_to_cure=minutes_between(started_at, cure.time) if cure else None,
         work_minutes=sum(float(s.minutes or 0) for s in steps
                          if s.kind not in ("skip", "skip_repair")),
         events=len(events), undone=undone, recomputed=recomputed)
@@ -243,11 +266,11 @@ def _rankings(events: list[Any], model: Any, rankings: Sequence[Any] | None,
 
 def _pack_of(session: Mapping[str, Any], events: list[Any], model: Any) -> dict[str, Any]:
     """The pack a session ran with (from its metadata and first notice) and the one loaded now."""
-    first = events[0].data if events and events[0].kind == "notice" else {}
-    return {"id": session.get("pack_id") or first.get("pack") or getattr(model, "id", ""),
-            "version": session.get("pack_version") or first.get("version", ""),
-            "content_hash": session.get("content_hash") or first.get("content_hash", ""),
-            "packs": list(first.get("packs", [])),
+    first = started(events)
+    return {"id": session.get("pack_id") or first.pack or getattr(model, "id", ""),
+            "version": session.get("pack_version") or first.version,
+            "content_hash": session.get("content_hash") or first.content_hash,
+            "packs": list(first.packs),
             "title": str(getattr(model, "title", "")) if model is not None else "",
             "current_hash": getattr(model, "content_hash", None) if model is not None else None,
             "loaded": model is not None,
@@ -271,96 +294,82 @@ class _Tables(NamedTuple):
 
 @dataclass
 class _Fold:
-    """What the events of a session have said so far, folded one event at a time."""
+    """The session's evidence, and what a log shows beside it, folded one event at a time."""
 
     tables: _Tables
     who: str | None
-    mode: str
+    evidence: Evidence
     notice: str = ""
-    identity: dict[str, str] = field(default_factory=dict)
     nameplate: dict[str, dict[str, Any]] = field(default_factory=dict)
-    complaints: list[dict[str, str]] = field(default_factory=list)
     steps: list[Step] = field(default_factory=list)
     cautions: list[dict[str, Any]] = field(default_factory=list)
     notes: list[dict[str, Any]] = field(default_factory=list)
     initial: tuple[dict[str, Any], ...] = ()
-    end: dict[str, Any] | None = None
 
-    def add(self, kind: str, data: dict[str, Any], when: str,
-            ranking: tuple[dict[str, Any], ...]) -> None:
+    def add(self, event: Event, ranking: tuple[dict[str, Any], ...]) -> None:
         """Fold in one event that still counts; ``ranking`` is the one after it."""
-        if kind == "notice":
-            self.notice = _text(data.get("text"))
-            self.mode = _text(data.get("mode")) or self.mode
-        elif kind == "identity":
-            self.identity.update({str(k): _text(v) for k, v in data.items()})
-        elif kind == "nameplate":
-            pid = str(data.get("param", ""))
-            p = self.tables.parameters.get(pid)
-            self.nameplate[pid] = {"id": pid, "prompt": getattr(p, "prompt", pid),
-                                   "value": _text(data.get("value")),
-                                   "typed": _text(data.get("text"))}
-        elif kind == "complaint":
-            cid = str(data.get("complaint", ""))
-            if cid and all(c["id"] != cid for c in self.complaints):
-                self.complaints.append({"id": cid, "title": _title(self.tables.complaints, cid)})
-            self.initial = ranking or self.initial
-        elif kind == "mode":
-            self.mode = _text(data.get("mode")) or self.mode
-        elif kind == "ack":
-            self.cautions.append(self._caution(data, when))
-        elif kind == "note":
-            self.notes.append({"time": when, "who": self.who, "text": _text(data.get("text"))})
-        elif kind in CHECK_KINDS:
-            self.steps.append(self._check_step(kind, when, data, ranking))
-        elif kind in ("repair", "skip_repair"):
-            self.steps.append(self._repair_step(kind, when, data, ranking))
-        elif kind == "end":
-            self.end = data
+        from diagnose.session import apply
 
-    def _caution(self, data: Mapping[str, Any], when: str) -> dict[str, Any]:
+        self.evidence = apply(self.evidence, event)
+        match event:
+            case Started(text=text):
+                self.notice = text
+            case NameplateRead(param=pid, value=value, text=typed):
+                p = self.tables.parameters.get(pid)
+                self.nameplate[pid] = {"id": pid, "prompt": getattr(p, "prompt", pid),
+                                       "value": value, "typed": typed}
+            case ComplaintReported():
+                self.initial = ranking or self.initial
+            case Acknowledged():
+                self.cautions.append(self._caution(event))
+            case Noted(text=text):
+                self.notes.append({"time": event.time, "who": self.who, "text": text})
+            case Answered() | ReadingTaken() | LeftUnsure() | Skipped():
+                self.steps.append(self._check_step(event, ranking))
+            case Repaired() | RepairSkipped():
+                self.steps.append(self._repair_step(event, ranking))
+
+    def _caution(self, event: Acknowledged) -> dict[str, Any]:
         """A caution acknowledged, with its level and text."""
-        cid = str(data.get("caution", ""))
-        c = self.tables.cautions.get(cid)
-        item = data.get("item")  # the card it was acknowledged for (not in older journals)
-        return {"id": cid, "time": when, "who": self.who, "level": str(getattr(c, "level", "")),
-                "text": str(getattr(c, "text", "")), "item": str(item) if item else None}
+        c = self.tables.cautions.get(event.caution)
+        return {"id": event.caution, "time": event.time, "who": self.who,
+                "level": str(getattr(c, "level", "")), "text": str(getattr(c, "text", "")),
+                "item": event.item or None}  # the card it was for (not in older journals)
 
-    def _check_step(self, kind: str, when: str, data: Mapping[str, Any],
+    def _check_step(self, event: Answered | ReadingTaken | LeftUnsure | Skipped,
                     ranking: tuple[dict[str, Any], ...]) -> Step:
         """A check answered, read, marked unsure or skipped."""
         checks = self.tables.checks
-        cid = str(data.get("check", ""))
+        cid = event.check
         check = checks.get(cid)
-        outcome = data.get("outcome") if kind == "answer" else data.get("verdict")
+        outcome = event.outcome if isinstance(event, Answered) else \
+            event.verdict if isinstance(event, ReadingTaken) else None
         titles = getattr(check, "outcome_titles", None) or {}
-        figures = data.get("figures") if isinstance(data.get("figures"), Mapping) else {}
-        weights = data.get("weights") if isinstance(data.get("weights"), Mapping) else {}
+        reading = event if isinstance(event, ReadingTaken) else None
         return Step(
-            n=len(self.steps) + 1, kind=kind, time=when, id=cid, title=_title(checks, cid),
-            who=self.who, outcome=_text(outcome) or None,
+            n=len(self.steps) + 1, kind=event.kind, time=event.time, id=cid,
+            title=_title(checks, cid), who=self.who, outcome=outcome or None,
             outcome_title=str(titles[outcome]) if outcome in titles else None,
-            reading=_text(data.get("text")) if kind == "reading" else None,
-            summary=_text(data.get("summary")) or None,
-            figures=tuple({"key": str(k), "label": str(f.get("label", k)),
-                           "value": f.get("value"), "unit": str(f.get("unit", ""))}
-                          for k, f in figures.items() if isinstance(f, Mapping)),
-            weights={str(k): float(v) for k, v in weights.items()},
-            minutes=None if kind == "skip" else getattr(check, "minutes", None),
+            reading=_text(reading.text) if reading else None,
+            summary=(reading.summary or None) if reading else None,
+            figures=tuple({"key": k, "label": str(f.get("label", k)), "value": f.get("value"),
+                           "unit": str(f.get("unit", ""))}
+                          for k, f in reading.figures.items()) if reading else (),
+            weights=dict(reading.weights) if reading else {},
+            minutes=None if isinstance(event, Skipped) else getattr(check, "minutes", None),
             ranking=ranking)
 
-    def _repair_step(self, kind: str, when: str, data: Mapping[str, Any],
+    def _repair_step(self, event: Repaired | RepairSkipped,
                      ranking: tuple[dict[str, Any], ...]) -> Step:
         """A repair done (cured or not), or set aside (``skip_repair``)."""
         repairs = self.tables.repairs
-        rid = str(data.get("repair", ""))
+        rid = event.repair
         n, title = len(self.steps) + 1, _title(repairs, rid)
-        if kind == "skip_repair":
-            return Step(n=n, kind=kind, time=when, id=rid, title=title, who=self.who,
+        if isinstance(event, RepairSkipped):
+            return Step(n=n, kind=event.kind, time=event.time, id=rid, title=title, who=self.who,
                         outcome="set aside: cannot be done now", minutes=None, ranking=ranking)
-        cured = bool(data.get("cured"))
-        return Step(n=n, kind=kind, time=when, id=rid, title=title, who=self.who, cured=cured,
-                    outcome="cured" if cured else "not cured",
+        return Step(n=n, kind=event.kind, time=event.time, id=rid, title=title, who=self.who,
+                    cured=event.cured, outcome="cured" if event.cured else "not cured",
                     minutes=getattr(repairs.get(rid), "minutes", None), ranking=ranking)
 
 

@@ -14,6 +14,7 @@ from __future__ import annotations
 from typing import Any
 
 from diagnose.errors import JournalError
+from diagnose.events import started
 
 #: Events after which the ranking is kept: the steps of a diagnosis.
 RANKED_KINDS = frozenset({"complaint", "answer", "reading", "unsure", "skip", "repair",
@@ -99,8 +100,5 @@ def resume_session(journal: Any, session_id: str, model: Any, **options: Any) ->
 
     ensure_open(journal.session(session_id))
     events = journal.load_events(session_id)
-    max_faults = 1
-    if events and events[0].kind == "notice":
-        max_faults = int(events[0].data.get("max_faults", 1))
-    recorder = Recorder(journal, model, max_faults=max_faults, events=events)
+    recorder = Recorder(journal, model, max_faults=started(events).max_faults, events=events)
     return Session.replay(model, events, sink=recorder, session_id=session_id, **options)

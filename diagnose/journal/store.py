@@ -2,7 +2,8 @@
 
 One file (see ``diagnose.paths``) in WAL mode holds every session:
 its pack (id, version, content hash), mode and technician, and each event
-(``kind``, ``data`` as JSON, ``time``) in order. ``Journal.write`` is the
+(``kind``, ``data`` as JSON, ``time``, the ``format`` of its data; see
+``diagnose.events``) in order. ``Journal.write`` is the
 session's sink: one short committed transaction an event, so whatever a
 person has seen on screen is on disk before the next prompt, and a killed
 process loses nothing it had acknowledged.
@@ -22,9 +23,9 @@ Safety rules, in the order ``Journal`` applies them:
 * A full disk stops the write that did not fit and says so; what was
   committed before stays, and the session resumes once there is space.
 * Events are read back checked: a row altered by hand (data that is not a
-  JSON object, a ranking that is no list) raises ``JournalError`` naming the
-  session and the event number; ``verify_events`` also finds events that lack
-  what replaying them needs.
+  JSON object, a field of the wrong type, a missing key, a ranking that is no
+  list) raises ``JournalError`` naming the session and the event number; an
+  event of a newer format is refused the same way.
 * ``backup`` checks the journal's integrity first and writes the copy
   beside its target, renaming it into place; it never writes over the
   journal, another program's database or a path through a symbolic link.
@@ -52,11 +53,11 @@ from pathlib import Path
 from typing import Any
 
 from diagnose.errors import JournalError
-from diagnose.events import EVENT_KEYS
+from diagnose.events import EVENT_KEYS, FORMAT, Event, EventError, Row, decode, encode, problem
 from diagnose.paths import APPLICATION_ID
 from diagnose.text import storable
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 HEADER = b"SQLite format 3\x00"
 BUSY_TIMEOUT_MS = 5000
 _RETRIES = 4  # on top of busy_timeout: a writer waits up to about 20 s in all
@@ -96,6 +97,9 @@ _MIGRATIONS: tuple[tuple[str, ...], ...] = (
             PRIMARY KEY (session_id, seq)
         ) WITHOUT ROWID""",
         "CREATE INDEX session_by_pack ON session (pack_id, status)",
+    ),
+    (  # 2: the version of each event's data, for the codec of diagnose.events
+        "ALTER TABLE event ADD COLUMN format INTEGER NOT NULL DEFAULT 1",
     ),
 )
 
@@ -155,7 +159,11 @@ def to_jsonable(value: Any) -> Any:
     return str(value)
 
 
-def _event_fields(event: Any) -> tuple[str, dict[str, Any], str]:
+def _event_fields(event: Any) -> tuple[str, dict[str, Any], str, int]:
+    """The row of an event: a typed one through the codec, a mapping or object as it is."""
+    if isinstance(event, Event):
+        row = encode(event)
+        return row.kind, row.data, str(row.time or now()), row.format
     if isinstance(event, Mapping):
         kind, data, when = event.get("kind"), event.get("data", {}), event.get("time")
     else:
@@ -163,14 +171,11 @@ def _event_fields(event: Any) -> tuple[str, dict[str, Any], str]:
                             getattr(event, "time", None))
     if not isinstance(kind, str) or not kind:
         raise JournalError(f"cannot record an event without a kind: {event!r}")
-    return kind, to_jsonable(data or {}), str(when or now())
-
-
-def _event_type() -> Any:
-    """The session's own Event class when there is one, so that replay gets what it wrote."""
-    from diagnose.session import Event
-
-    return Event
+    row = Row(kind, to_jsonable(data or {}), str(when or now()), FORMAT)
+    why = problem(row)
+    if why:  # a bug of the caller: the journal keeps only what reads back
+        raise JournalError(f"cannot record a malformed event: {why}")
+    return row.kind, row.data, row.time, row.format
 
 
 # --- checking a file before anything writes to it ----------------------------------
@@ -494,7 +499,7 @@ class Journal:
         Raises:
             JournalError: unknown session, a second end, or the file cannot be written.
         """
-        kind, data, when = _event_fields(event)
+        kind, data, when, fmt = _event_fields(event)
         payload = json.dumps(data, ensure_ascii=False, separators=(",", ":"))
         payload = storable(payload)
         ranked = None if ranking is None else json.dumps(to_jsonable(ranking),
@@ -507,8 +512,9 @@ class Journal:
                 raise JournalError(f"session {session_id} is closed already")
             seq = conn.execute("SELECT coalesce(max(seq), 0) + 1 FROM event WHERE session_id = ?",
                                (session_id,)).fetchone()[0]
-            conn.execute("INSERT INTO event (session_id, seq, kind, time, data, ranking) "
-                         "VALUES (?, ?, ?, ?, ?, ?)", (session_id, seq, kind, when, payload, ranked))
+            conn.execute("INSERT INTO event (session_id, seq, kind, time, data, ranking, format) "
+                         "VALUES (?, ?, ?, ?, ?, ?, ?)",
+                         (session_id, seq, kind, when, payload, ranked, fmt))
             if kind == "end":
                 outcome, cause = _end_fields(data)
                 conn.execute("UPDATE session SET updated = ?, status = 'closed', outcome = ?, "
@@ -529,20 +535,27 @@ class Journal:
             if cur.rowcount == 0:
                 raise JournalError(f"no session {session_id} in the journal {self.path}")
 
-    def load_events(self, session_id: str) -> list[Any]:
-        """The events of a session in the order they were written (for ``Session.replay``).
+    def load_events(self, session_id: str) -> list[Event]:
+        """The events of a session in the order they were written, decoded and checked.
 
         Raises:
-            JournalError: no such session, or an event was damaged (altered by hand).
+            JournalError: no such session, or an event was damaged (altered by hand)
+                or written by a newer diagnose.
         """
         self.session(session_id)
-        make = _event_type()
-        events = []
-        for row in self._read("SELECT seq, kind, data, time, ranking FROM event "
-                              "WHERE session_id = ? ORDER BY seq", (session_id,)):
-            data, _ = self._decode(session_id, row, complete=False)
-            events.append(make(kind=row[1], data=data, time=row[3]))
-        return events
+        return [self._decode(session_id, row)[0] for row in self._event_rows(session_id)]
+
+    def _event_rows(self, session_id: str) -> list[tuple[Any, ...]]:
+        return self._read(f"SELECT seq, kind, data, time, ranking, {self._format} FROM event "
+                          "WHERE session_id = ? ORDER BY seq", (session_id,))
+
+    @property
+    def _format(self) -> str:
+        """The column of the events' format (a journal of schema 1, read only: all format 1)."""
+        if not hasattr(self, "_format_column"):
+            columns = {r[1] for r in self._read("PRAGMA table_info(event)")}
+            self._format_column = "format" if "format" in columns else "1"
+        return self._format_column
 
     def load_rankings(self, session_id: str) -> list[list[dict[str, Any]] | None]:
         """The ranking kept beside each event (None where none was), in event order.
@@ -550,15 +563,12 @@ class Journal:
         Raises:
             JournalError: an event was damaged (altered by hand).
         """
-        rows = self._read("SELECT seq, kind, data, time, ranking FROM event "
-                          "WHERE session_id = ? ORDER BY seq", (session_id,))
-        return [self._decode(session_id, row, complete=False)[1] for row in rows]
+        return [self._decode(session_id, row)[1] for row in self._event_rows(session_id)]
 
     def verify_events(self, session_id: str | None = None) -> None:
         """Check the stored events before a session is replayed or listed.
 
-        Beyond what ``load_events`` checks, each event of a kind the session
-        records must hold what replaying it needs (``EVENT_KEYS``). One
+        Every event must read back through the codec (``diagnose.events``). One
         session's events are all read and checked; for the whole journal
         (``session_id`` None) the database's own JSON functions first pick
         out the rows worth a closer look, so that a long journal lists quickly.
@@ -566,7 +576,7 @@ class Journal:
         Raises:
             JournalError: the first damaged event, by session and number.
         """
-        select = "SELECT session_id, seq, kind, data, time, ranking FROM event"
+        select = f"SELECT session_id, seq, kind, data, time, ranking, {self._format} FROM event"
         if session_id is not None:
             rows = self._read(f"{select} WHERE session_id = ? ORDER BY seq", (session_id,))
         else:
@@ -580,21 +590,23 @@ class Journal:
             except sqlite3.Error as exc:
                 raise _translate(self.path, exc) from None
         for sid, *row in rows:
-            self._decode(sid, tuple(row), complete=True)
+            self._decode(sid, tuple(row))
 
-    def _decode(self, session_id: str, row: tuple[Any, ...], *,
-                complete: bool) -> tuple[dict[str, Any], Any]:
-        """The data and ranking of a stored event row ``(seq, kind, data, time, ranking)``."""
-        seq, kind, text, when, ranked = row
+    def _decode(self, session_id: str, row: tuple[Any, ...]) -> tuple[Event, Any]:
+        """The event and ranking of a stored row ``(seq, kind, data, time, ranking, format)``."""
+        seq, kind, text, when, ranked, fmt = row
         try:
             data = json.loads(text) if isinstance(text, (str, bytes)) else None
             ranking = None if ranked is None else json.loads(ranked)
         except ValueError as exc:
             raise _damaged_event(self.path, session_id, seq, f"not JSON: {exc}") from None
-        why = event_problem(kind, data, when, complete=complete) or _ranking_problem(ranking)
+        why = _ranking_problem(ranking)
         if why:
             raise _damaged_event(self.path, session_id, seq, why)
-        return data, ranking
+        try:
+            return decode(Row(kind, data, when, fmt)), ranking
+        except EventError as exc:
+            raise _damaged_event(self.path, session_id, seq, str(exc)) from None
 
     def session(self, session_id: str) -> SessionInfo:
         """One session's metadata.
@@ -692,42 +704,6 @@ class Journal:
             raise JournalError(f"cannot write the backup {dest}: {why}") from None
 
 
-def event_problem(kind: Any, data: Any, when: Any = "", *, complete: bool = True) -> str:
-    """What is wrong with a stored event, or "" when it can be read back.
-
-    ``complete`` also asks for the keys a replay needs (``EVENT_KEYS``).
-
-    >>> event_problem("complaint", {"complaint": "will_not_release"})
-    ''
-    >>> event_problem("answer", {"check": "fuse_state"})
-    'the answer event has no outcome'
-    >>> event_problem("answer", {"check": "fuse_state"}, complete=False)
-    ''
-    >>> event_problem("note", ["not", "an", "object"])
-    'its data is not a JSON object'
-    """
-    if not isinstance(kind, str) or not kind:
-        return "it has no kind"
-    if not isinstance(when, str):
-        return "its time is not text"
-    if not isinstance(data, dict):
-        return "its data is not a JSON object"
-    missing = [k for k in EVENT_KEYS.get(kind, ()) if k not in data] if complete else []
-    if complete and kind == "reading" and "verdict" not in data and "weights" not in data:
-        missing.append("verdict")
-    if missing:
-        return f"the {kind} event has no {' and no '.join(missing)}"
-    index = data.get("index")
-    if kind == "undo" and "index" in data and (isinstance(index, bool)
-                                                or not isinstance(index, int)):
-        return "the undo event's index is not a whole number"
-    weights = data.get("weights")
-    if weights is not None and not (isinstance(weights, dict) and all(
-            _is_number(w) for w in weights.values())):
-        return "its weights are not numbers by outcome"
-    return ""
-
-
 def _ranking_problem(ranking: Any) -> str:
     if ranking is None:
         return ""
@@ -754,7 +730,7 @@ def _suspect_rows() -> str:
     JSON list, and an event of a kind in ``EVENT_KEYS`` whose text does not
     name one of its keys. It may hold for sound rows too (JSON with NaN or
     Infinity, which the database's parser refuses): every row it picks is
-    checked again with ``event_problem``.
+    checked again through the codec (``diagnose.events.decode``).
     """
     arms = ["WHEN typeof(kind) != 'text' OR typeof(time) != 'text' THEN 1",
             "WHEN NOT json_valid(data) THEN 1",

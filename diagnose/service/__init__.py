@@ -28,6 +28,7 @@ from pathlib import Path
 from typing import Any
 
 from diagnose.errors import DiagnoseError, InputError, JournalError
+from diagnose.events import started
 
 
 @dataclass(frozen=True)
@@ -178,15 +179,12 @@ def changed_note(model: Any, recorded_hash: str) -> str:
 
 def session_note(session: Any) -> str:
     """:func:`changed_note` for a rebuilt session (its notice holds the recorded hash)."""
-    events = session.events
-    first = events[0].data if events and events[0].kind == "notice" else {}
-    return changed_note(session.model, str(first.get("content_hash") or ""))
+    return changed_note(session.model, started(session.events).content_hash)
 
 
 def recorded_folder(events: list[Any]) -> str:
     """The pack folder a session's notice recorded, while it is still there ("" if not)."""
-    first = events[0].data if events and events[0].kind == "notice" else {}
-    folder = str(first.get("path") or "")
+    folder = started(events).path
     return folder if folder and Path(folder).is_dir() else ""
 
 
@@ -198,8 +196,7 @@ def recorded_pack(info: Any, events: list[Any], where: Where, pack: str | None =
         InputError: no candidate can be found (the message says where the folder was);
         KnowledgeError: the only candidate is broken.
     """
-    first = events[0].data if events and events[0].kind == "notice" else {}
-    recorded = str(first.get("content_hash") or getattr(info, "content_hash", "") or "")
+    recorded = started(events).content_hash or str(getattr(info, "content_hash", "") or "")
     if pack:
         return PackChoice(open_pack(pack, where), recorded)
     candidates = [c for c in (recorded_folder(events), info.pack_id) if c]
@@ -218,7 +215,7 @@ def recorded_pack(info: Any, events: list[Any], where: Where, pack: str | None =
         fallback = fallback or model
     if fallback is not None:
         return PackChoice(fallback, recorded)
-    gone = str(first.get("path") or "")
+    gone = started(events).path
     if isinstance(failure, InputError) or failure is None:
         where_was = f" (its folder {gone} is gone)" if gone and not os.path.isdir(gone) else ""
         raise InputError("pack", f"session {info.id} ran on the pack {info.pack_id}{where_was}, "

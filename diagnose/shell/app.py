@@ -27,6 +27,7 @@ from collections.abc import Callable, Sequence
 from typing import TYPE_CHECKING, Any, NoReturn
 
 from diagnose.errors import DiagnoseError, InputError, JournalError
+from diagnose.events import steps_taken
 from diagnose.physics.verdict import unit_text
 from diagnose.shell import commands
 from diagnose.shell.complete import Choice, CompletionState, choose
@@ -56,7 +57,6 @@ YES = frozenset({"yes", "y", "cured", "true"})
 NO = frozenset({"no", "n", "not cured", "false"})
 #: What a reading starts with: a number (one of several), or a word for an open circuit.
 _READING = re.compile(r"^\s*([+-]?(\d|\.\d)|ol\b|o\.l\.?|inf|\+inf|infinity|open|∞)", re.IGNORECASE)
-STEP_KINDS = frozenset({"answer", "reading", "unsure", "skip", "skip_repair", "repair"})
 #: What phone mode means, said when it starts.
 PHONE_HINT = ("Phone mode: every card is a question for the caller, safe without tools or "
               "opening covers; the end is a recommendation: resolved, or a site visit with "
@@ -864,9 +864,7 @@ class Shell:
 
     # --- the toolbar ----------------------------------------------------------------------
     def steps(self) -> int:
-        from diagnose.session import effective_events
-
-        return sum(1 for e in effective_events(self.session.events) if e.kind in STEP_KINDS)
+        return steps_taken(self.session.events)
 
     def toolbar(self) -> str:
         """pack | mode | session | steps | top cause: the bottom toolbar's text."""
