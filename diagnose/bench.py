@@ -11,8 +11,15 @@ causes; :func:`diagnose.reasoning.synthetic.synthetic_model`) it prints:
   effects, the networkx graph), and apart from it the JSON Schema pass, which
   belongs to loading a pack from YAML;
 * the peak memory (tracemalloc) of compiling and of one planning step;
+* the same step with the planner's reference version (``ref ms``:
+  ``plan(..., reference=True)``);
 * on the 200-cause pack, pgmpy's VariableElimination for the same posterior,
-  and how many times slower it is than the reasoner.
+  and how many times slower it is than the reasoner;
+* the simulator on a shipped pack (``spring-applied-brake``, 300 runs, seed
+  1, noise 0.05, a tenth of the calls with a cause outside the pack) with the
+  planner and with its reference version on the same draws, side by side:
+  seconds of each, the ratio, and whether every run went the same way (every
+  check and repair, in order, and every figure).
 
 The Bayesian network given to pgmpy is the reasoner's model written out: one
 root ``H`` over the hypotheses and one child per piece of evidence.
@@ -142,7 +149,8 @@ def _session(model: Model, steps: int, seed: int) -> tuple[str, list[tuple[str, 
     return complaint, out
 
 
-def _step_times(model: Model, answers: list[tuple[str, str]], complaint: str) -> list[float]:
+def _step_times(model: Model, answers: list[tuple[str, str]], complaint: str,
+                reference: bool = False) -> list[float]:
     from diagnose.reasoning.planner import plan
     from diagnose.reasoning.posterior import posterior
 
@@ -152,20 +160,43 @@ def _step_times(model: Model, answers: list[tuple[str, str]], complaint: str) ->
         t0 = time.perf_counter()
         ev = ev.with_outcome(cid, o)
         post = posterior(model, ev)
-        pl = plan(model, ev, post=post)
-        np.lexsort((np.nan_to_num(pl.check_eco, nan=np.inf), pl.check_code != 0))  # all checks
+        pl = plan(model, ev, post=post, reference=reference)
+        # all checks, every ECO filled in (the fast planner computes some only when asked)
+        np.lexsort((np.nan_to_num(pl.ecos(), nan=np.inf), pl.check_code != 0))
         np.argsort(-(pl.p_cure / pl.repair_minutes))  # all repairs
         times.append((time.perf_counter() - t0) * 1000)
     return times
 
 
+def simulate_side_by_side(pack: str = "spring-applied-brake", *, runs: int = 300, seed: int = 1,
+                          noise: float = 0.05, unknown_rate: float = 0.1) -> dict[str, Any]:
+    """Seconds of the simulator with the planner and with its reference, on the same draws.
+
+    ``identical``: every run went the same way (checks and repairs in order, minutes, cure).
+    """
+    from diagnose.kb.loader import load_model
+    from diagnose.reasoning.simulate import draw_cases, run_policy
+
+    model = load_model(pack)
+    draws = draw_cases(model, runs, seed, unknown_rate=unknown_rate)
+    out: dict[str, Any] = {"pack": pack, "runs": runs}
+    results = {}
+    for policy in ("reference", "planner"):
+        gc.collect()
+        t0 = time.perf_counter()
+        results[policy] = run_policy(model, draws, policy, noise=noise)
+        out[f"{policy}_s"] = time.perf_counter() - t0
+    out["ratio"] = out["reference_s"] / out["planner_s"]
+    out["identical"] = results["planner"] == results["reference"]
+    return out
+
+
 def run(sizes: tuple[int, ...] = SIZES, *, seed: int = 1, steps: int = 12,
         pgmpy: bool = True) -> list[dict[str, Any]]:
     """Measure each size; returns one row per size (see the module docstring)."""
+    from diagnose.kb.compiler import compile_pack
     from diagnose.reasoning.synthetic import pack_data, synthetic_model
     from diagnose.reasoning.tables import tables_for
-
-    from diagnose.kb.compiler import compile_pack
 
     warm = synthetic_model(20, seed=seed)  # first use imports networkx and jsonschema
     compile_pack([("pack.yaml", pack_data(warm))], pack_id=warm.id)
@@ -196,6 +227,8 @@ def run(sizes: tuple[int, ...] = SIZES, *, seed: int = 1, steps: int = 12,
         _step_times(model, answers[:2], complaint)  # warm caches
         times = _step_times(model, answers, complaint)
         row["step_ms"] = statistics.median(times) if times else float("nan")
+        times = _step_times(model, answers, complaint, reference=True)
+        row["ref_ms"] = statistics.median(times) if times else float("nan")
         gc.collect()
         tracemalloc.start()
         _step_times(model, answers[:3], complaint)
@@ -234,23 +267,31 @@ def _against_pgmpy(model: Model, answers: list[tuple[str, str]], complaint: str,
     return {"posterior_ms": a, "pgmpy_ms": b, "pgmpy_ratio": b / a}
 
 
-def table(rows: list[dict[str, Any]]) -> str:
-    """The rows as a plain-text table that fits 80 columns."""
-    head = (f"{'causes':>7} {'checks':>6} {'step ms':>8} {'compile s':>9} {'schema s':>8} "
-            f"{'tables s':>8} {'peak MB':>8} {'step MB':>8}")
+def table(rows: list[dict[str, Any]], sim: dict[str, Any] | None = None) -> str:
+    """The rows (and the simulator's side by side) as a plain-text table of 80 columns."""
+    head = (f"{'causes':>7} {'checks':>6} {'step ms':>8} {'ref ms':>7} {'compile s':>9} "
+            f"{'schema s':>8} {'tables s':>8} {'peak MB':>7} {'step MB':>7}")
     lines = [head, "-" * len(head)]
     for r in rows:
         lines.append(f"{r['causes']:>7} {r['checks']:>6} {r['step_ms']:>8.2f} "
+                     f"{r.get('ref_ms', float('nan')):>7.2f} "
                      f"{r['compile_s']:>9.2f} {r.get('schema_s', float('nan')):>8.2f} "
                      f"{r['tables_s']:>8.3f} "
-                     f"{r['compile_peak_mb']:>8.1f} {r['step_peak_mb']:>8.1f}")
+                     f"{r['compile_peak_mb']:>7.1f} {r['step_peak_mb']:>7.1f}")
     for r in rows:
         if "pgmpy_ms" in r:
             lines.append("")
             lines.append(f"posterior at {r['causes']} causes: reasoner {r['posterior_ms']:.3f} ms, "
                          f"pgmpy VariableElimination {r['pgmpy_ms']:.1f} ms "
                          f"({r['pgmpy_ratio']:.0f}x)")
-    lines.append("step: add one finding, posterior, rank every check and repair, choose")
+    lines.append("step: add one finding, posterior, rank every check and repair, choose;")
+    lines.append("ref: the same step with the planner's reference version")
+    if sim is not None:
+        same = "identical runs" if sim["identical"] else "RUNS DIFFER"
+        lines.append("")
+        lines.append(f"simulate {sim['pack']}, {sim['runs']} runs: planner "
+                     f"{sim['planner_s']:.2f} s, reference {sim['reference_s']:.2f} s "
+                     f"({sim['ratio']:.1f}x), {same}")
     return "\n".join(lines)
 
 
@@ -263,10 +304,13 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--sizes", type=int, nargs="+", default=list(SIZES), metavar="N")
     parser.add_argument("--seed", type=int, default=1)
     parser.add_argument("--no-pgmpy", action="store_true", help="skip the pgmpy comparison")
+    parser.add_argument("--sim-runs", type=int, default=300, metavar="N",
+                        help="runs of the simulator, planner against reference (0: skip)")
     args = parser.parse_args(argv)
     rows = run(tuple(args.sizes), seed=args.seed, pgmpy=not args.no_pgmpy)
-    print(table(rows))
-    return 0
+    sim = simulate_side_by_side(runs=args.sim_runs, seed=args.seed) if args.sim_runs > 0 else None
+    print(table(rows, sim))
+    return 0 if sim is None or sim["identical"] else 1
 
 
 if __name__ == "__main__":

@@ -16,6 +16,7 @@ import argparse
 import os
 import sys
 from importlib import import_module
+from typing import Any
 
 from diagnose import __version__
 
@@ -39,23 +40,80 @@ class _Parser(argparse.ArgumentParser):
         self.exit(EXIT_USAGE, f"{self.prog}: error: {excerpt(message, 300)}\n")
 
 
+class _Top(_Parser):
+    """The parser of the whole command line."""
+
+    def parse_known_args(self, args: Any = None, namespace: Any = None) -> Any:  # type: ignore[override]
+        """As argparse does; then ``--packs`` given after the command joins the ones before it."""
+        parsed, extra = super().parse_known_args(args, namespace)
+        # one list a level of command ("diagnose kb", "diagnose kb lint"): outer ones first
+        levels = sorted((k for k in vars(parsed) if k.startswith(_PACKS_AFTER)), key=len)
+        for key in levels:
+            parsed.packs = [*(getattr(parsed, "packs", None) or []), *vars(parsed).pop(key)]
+        return parsed, extra
+
+
+#: The options of every command, accepted before the command and after it.
+GLOBAL_OPTIONS = ("--packs", "--journal", "--no-learned", "--units")
+#: The unit systems of ``--units`` (``diagnose.settings.UNITS``; here so that --help stays fast).
+UNITS = ("metric", "inch")
+
+
+def _global_options(parser: argparse.ArgumentParser, *, after: bool) -> None:
+    """Add ``--packs``, ``--journal``, ``--no-learned`` and ``--units`` to ``parser``.
+
+    Before the command they have their defaults; after it (``after``) they
+    default to nothing (``argparse.SUPPRESS``), so that a value given after the
+    command wins and one given before it is kept when none is given after.
+    ``--packs`` given both before and after adds up: the folders before come first.
+    """
+    target: Any = parser.add_argument_group("options of every command (before or after it)") \
+        if after else parser
+    unset: Any = argparse.SUPPRESS
+    target.add_argument("--packs", metavar="DIR", action="append",
+                        dest=f"{_PACKS_AFTER} {parser.prog}" if after else "packs",
+                        default=unset if after else [],
+                        help="a folder of your own packs, searched before the shipped ones "
+                        "(repeatable; also DIAGNOSE_PACKS, separated by ':')")
+    target.add_argument("--journal", metavar="PATH", default=unset if after else None,
+                        help="the journal file (default: DIAGNOSE_JOURNAL, the settings file's "
+                        "journal, or the user data folder)")
+    target.add_argument("--no-learned", action="store_true",
+                        default=unset if after else False,
+                        help="ignore priors learned from closed repairs")
+    target.add_argument("--units", choices=UNITS, default=unset if after else None,
+                        help="inch: bare lengths (air gap, runout, wear) are read in inches and "
+                        "shown in inches with mm beside them (default: the settings file's "
+                        "units, else metric)")
+
+
+#: Where ``--packs`` given after a command is kept until it joins the ones before it.
+_PACKS_AFTER = "packs_after_command"
+
+
+def _every_command(parser: argparse.ArgumentParser) -> list[argparse.ArgumentParser]:
+    """The parsers of every command and subcommand under ``parser``, each once."""
+    found: list[argparse.ArgumentParser] = []
+    for action in parser._actions:  # argparse keeps its subcommands there
+        if isinstance(action, argparse._SubParsersAction):
+            for child in dict.fromkeys(action.choices.values()):
+                found += [child, *_every_command(child)]
+    return found
+
+
 def build_parser() -> argparse.ArgumentParser:
-    parser = _Parser(
+    parser = _Top(
         prog="diagnose",
         description="Diagnostic assistant for electromagnetic holding brakes. "
         "With no command, opens the interactive shell on the default pack.",
     )
     parser.add_argument("--version", action="version", version=f"diagnose {__version__}")
-    parser.add_argument("--packs", metavar="DIR", action="append", default=[],
-                        help="a folder of your own packs, searched before the shipped ones "
-                        "(repeatable; also DIAGNOSE_PACKS, separated by ':')")
-    parser.add_argument("--journal", metavar="PATH",
-                        help="the journal file (default: DIAGNOSE_JOURNAL or the user data folder)")
-    parser.add_argument("--no-learned", action="store_true",
-                        help="ignore priors learned from closed repairs")
+    _global_options(parser, after=False)
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for group in _GROUPS:
         import_module(group).register(sub)
+    for command in _every_command(parser):
+        _global_options(command, after=True)
     return parser
 
 

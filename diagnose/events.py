@@ -23,9 +23,9 @@ folds them. The session's state (``diagnose.session.apply``), the repair
 log and, through it, the statistics and the learned priors are all built
 by this one fold.
 
-``notice``, ``ack``, ``reminder``, ``end`` and ``undo`` cannot be undone:
-a safety acknowledgement stays on the record, and nothing is recorded
-after the end.
+``notice``, ``ack``, ``reminder``, ``repair_started``, ``end`` and ``undo``
+cannot be undone: a safety acknowledgement stays on the record, and nothing
+is recorded after the end.
 """
 
 from __future__ import annotations
@@ -58,9 +58,9 @@ class Row(NamedTuple):
 
 # --- the kinds ------------------------------------------------------------------------------
 
-def _omit_none() -> Any:
-    """A field left out of the stored data when it is None (absent in older journals)."""
-    return field(default=None, metadata={"omit_none": True})
+def _optional(default: Any = None) -> Any:
+    """A field left out of the stored data while it has its default (absent in older journals)."""
+    return field(default=default, metadata={"optional": True})
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -123,12 +123,16 @@ class IdentityGiven(Event):
 
 @dataclass(frozen=True)
 class NameplateRead(Event):
-    """A nameplate value: as typed (``text``) and normalised (``value``: "24 V", "unknown")."""
+    """A nameplate value: as typed (``text``) and normalised (``value``: "24 V", "unknown").
+
+    ``assumed``: taken from the pack's default, not read off the unit.
+    """
 
     KIND = "nameplate"
     param: str
     value: str
     text: str = ""
+    assumed: bool = _optional(False)
 
 
 @dataclass(frozen=True)
@@ -161,6 +165,7 @@ class ReadingTaken(Event):
     weights: Mapping[str, float] = field(default_factory=dict)
     summary: str = ""
     figures: Mapping[str, Mapping[str, Any]] = field(default_factory=dict)
+    assumed: tuple[str, ...] = _optional(())  # nameplate values it used that were not read
 
     @property
     def finding(self) -> dict[str, float]:
@@ -206,8 +211,8 @@ class Acknowledged(Event):
     KIND = "ack"
     UNDOABLE = False
     caution: str
-    item: str | None = _omit_none()
-    step: int | None = _omit_none()
+    item: str | None = _optional()
+    step: int | None = _optional()
 
 
 @dataclass(frozen=True)
@@ -221,13 +226,26 @@ class Reminded(Event):
 
 
 @dataclass(frozen=True)
+class RepairStarted(Event):
+    """The technician is at a repair (its card is read): pending until done or set aside."""
+
+    KIND = "repair_started"
+    UNDOABLE = False
+    repair: str
+
+
+@dataclass(frozen=True)
 class Repaired(Event):
-    """A repair done, and whether it cured the complaint."""
+    """A repair done, whether it cured the complaint, and the parts fitted.
+
+    Each part fitted is ``{"part": name, "qty": number, "number": part number}``.
+    """
 
     KIND = "repair"
     STEP = True
     repair: str
     cured: bool
+    parts: tuple[Mapping[str, Any], ...] = _optional(())
 
 
 @dataclass(frozen=True)
@@ -236,6 +254,29 @@ class Noted(Event):
 
     KIND = "note"
     text: str = ""
+
+
+@dataclass(frozen=True)
+class HistoryNoted(Event):
+    """The cause was found on this unit ``days`` ago (``sessions``): its prior odds × factor."""
+
+    KIND = "history"
+    cause: str
+    factor: float
+    days: int = 0
+    sessions: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Attached(Event):
+    """A photo or file attached to the log, stored once by its content (``sha256``)."""
+
+    KIND = "attachment"
+    sha256: str
+    name: str = ""
+    caption: str = ""
+    media_type: str = "application/octet-stream"
+    size: int = 0
 
 
 @dataclass(frozen=True)
@@ -257,7 +298,11 @@ class StateSet(Event):
 
 @dataclass(frozen=True)
 class Ended(Event):
-    """The diagnosis ends: resolved, visit, escalated or abandoned."""
+    """The diagnosis ends: resolved, visit, escalated or abandoned.
+
+    ``cause`` and ``p``: the tool's leading cause then; ``finding``: the cause the
+    technician confirms ("what did you find?"), absent when not asked.
+    """
 
     KIND = "end"
     UNDOABLE = False
@@ -267,6 +312,7 @@ class Ended(Event):
     repair: str | None = None
     parts: tuple[str, ...] = ()
     text: str = ""
+    finding: str | None = _optional()
 
 
 @dataclass(frozen=True)
@@ -276,7 +322,7 @@ class Undone(Event):
     KIND = "undo"
     UNDOABLE = False
     index: int
-    was: str | None = _omit_none()
+    was: str | None = _optional()
 
 
 @dataclass(frozen=True)
@@ -294,8 +340,9 @@ class Other(Event):
 
 CLASSES: tuple[type[Event], ...] = (
     Started, IdentityGiven, NameplateRead, ComplaintReported, Answered, ReadingTaken,
-    LeftUnsure, Skipped, RepairSkipped, Acknowledged, Reminded, Repaired, Noted, ModeSet,
-    StateSet, Ended, Undone)
+    LeftUnsure, Skipped, RepairSkipped, Acknowledged, Reminded, RepairStarted, Repaired, Noted,
+    Attached,
+    HistoryNoted, ModeSet, StateSet, Ended, Undone)
 
 #: The stored key of a field whose name differs from it (``Undone.was`` is stored as "kind").
 _KEY = {(Undone, "was"): "kind"}
@@ -367,7 +414,7 @@ def encode(event: Event) -> Row:
     data: dict[str, Any] = {}
     for f in _fields(type(event)):
         value = getattr(event, f.name)
-        if value is None and f.metadata.get("omit_none"):
+        if f.metadata.get("optional") and value == f.default:
             continue
         data[_KEY.get((type(event), f.name), f.name)] = _plain(value)
     return Row(event.KIND, data, event.time)
@@ -444,6 +491,10 @@ def _check(kind: str, key: str, typ: Any, value: Any) -> Any:
         if value is not None and not _is_number(value):
             raise EventError(f"{where} is not a number")
         return None if value is None else float(value)
+    if typ == "float":
+        if not _is_number(value) or not 0 < value < float("inf"):
+            raise EventError(f"{where} is not a positive number")
+        return float(value)
     if typ == "bool":
         if not isinstance(value, bool):
             raise EventError(f"{where} is not true or false")
@@ -462,11 +513,22 @@ def _check_shape(where: str, typ: str, value: Any) -> Any:
         if not isinstance(value, dict) or not all(_is_number(w) for w in value.values()):
             raise EventError(f"{where} are not numbers by outcome")
         return {str(k): float(w) for k, w in value.items()}
+    if typ == "tuple[Mapping[str, Any], ...]":
+        if not isinstance(value, list) or not all(_part(p) for p in value):
+            raise EventError(f"{where} are not parts with a name and a quantity")
+        return tuple(dict(p) for p in value)
     if typ == "Mapping[str, Mapping[str, Any]]":
         if not isinstance(value, dict):
             raise EventError(f"{where} is not a JSON object")
         return {str(k): dict(v) for k, v in value.items() if isinstance(v, dict)}
     raise AssertionError(f"no check for a field of type {typ}")  # a bug: a new field type
+
+
+def _part(value: Any) -> bool:
+    """A part fitted: a name, a positive quantity, a part number (may be empty)."""
+    return (isinstance(value, dict) and isinstance(value.get("part"), str)
+            and _is_number(value.get("qty")) and value["qty"] > 0
+            and isinstance(value.get("number", ""), str))
 
 
 def _is_number(value: Any) -> bool:

@@ -1,13 +1,21 @@
-"""Where the journal and the learned priors live.
+"""Where the journal, the settings, the cache and the learned priors live.
+
+The user's folders for diagnose come from platformdirs (imported when first
+needed): on Linux the XDG Base Directory Specification (``$XDG_DATA_HOME``,
+``$XDG_CONFIG_HOME``, ``$XDG_CACHE_HOME``, ``$XDG_STATE_HOME``; a relative
+value is ignored), on macOS ``~/Library/Application Support/diagnose`` (and
+``~/Library/Caches/diagnose``), on Windows ``%LOCALAPPDATA%\\diagnose``.
 
 The journal is one SQLite file. Its place, first match wins:
 
 1. the ``--journal PATH`` option;
 2. the environment variable ``DIAGNOSE_JOURNAL``;
-3. the user's data folder: ``$XDG_DATA_HOME/diagnose/journal.sqlite3`` or
-   ``~/.local/share/diagnose/journal.sqlite3`` on Linux (the XDG Base
-   Directory Specification), ``~/Library/Application Support/diagnose`` on
-   macOS, ``%LOCALAPPDATA%\\diagnose`` on Windows.
+3. ``journal = "PATH"`` in the settings file (:mod:`diagnose.settings`; the
+   service's ``Where`` applies it);
+4. the user's data folder: ``$XDG_DATA_HOME/diagnose/journal.sqlite3`` or
+   ``~/.local/share/diagnose/journal.sqlite3`` on Linux,
+   ``~/Library/Application Support/diagnose`` on macOS,
+   ``%LOCALAPPDATA%\\diagnose`` on Windows.
 
 Learned priors are JSON files beside the journal, one a pack:
 ``<journal folder>/learned/<pack>.json``.
@@ -34,22 +42,54 @@ FILE_NAME = "journal.sqlite3"
 LEARNED_DIR = "learned"
 
 
-def data_dir(env: Mapping[str, str] | None = None) -> Path:
-    """The user's data folder for diagnose (not created here).
+#: The application's name in the user's folders.
+APP_NAME = "diagnose"
+#: The environment variable of each kind of folder on Linux (XDG Base Directory Specification).
+XDG_VARIABLES = {"data": "XDG_DATA_HOME", "config": "XDG_CONFIG_HOME",
+                 "cache": "XDG_CACHE_HOME", "state": "XDG_STATE_HOME"}
+
+
+def user_dir(kind: str, env: Mapping[str, str] | None = None) -> Path:
+    """The user's folder of ``kind`` (data, config, cache or state) for diagnose; not created.
+
+    platformdirs gives the folder of the platform. ``env`` (for tests; default
+    the process environment) may name the folder by its XDG variable on Linux
+    and macOS; a relative value is ignored, as the specification says.
+
+    Raises:
+        RuntimeError: there is no home folder to put it in.
 
     References:
-        XDG Base Directory Specification 0.8, ``$XDG_DATA_HOME``.
+        XDG Base Directory Specification 0.8; platformdirs (``user_*_dir``).
     """
-    env = os.environ if env is None else env
-    if sys.platform == "win32":
-        base = env.get("LOCALAPPDATA") or str(Path.home() / "AppData" / "Local")
-        return Path(base) / "diagnose"
-    if sys.platform == "darwin":
-        return Path.home() / "Library" / "Application Support" / "diagnose"
-    xdg = env.get("XDG_DATA_HOME", "")
-    # The specification says a relative value is invalid and must be ignored.
-    base = Path(xdg) if xdg and os.path.isabs(xdg) else Path.home() / ".local" / "share"
-    return base / "diagnose"
+    if env is not None and sys.platform != "win32":
+        xdg = env.get(XDG_VARIABLES[kind], "")
+        if xdg and os.path.isabs(xdg):
+            return Path(xdg) / APP_NAME
+    import platformdirs  # ~10 ms: only when a folder is wanted
+
+    folder = getattr(platformdirs, f"user_{kind}_dir")(APP_NAME, appauthor=False)
+    return Path(folder)
+
+
+def data_dir(env: Mapping[str, str] | None = None) -> Path:
+    """The user's data folder for diagnose (not created here): where the journal lives."""
+    return user_dir("data", env)
+
+
+def config_dir(env: Mapping[str, str] | None = None) -> Path:
+    """The user's config folder for diagnose (not created here): where settings.toml lives."""
+    return user_dir("config", env)
+
+
+def cache_dir(env: Mapping[str, str] | None = None) -> Path:
+    """The user's cache folder for diagnose (not created here): what may be thrown away."""
+    return user_dir("cache", env)
+
+
+def state_dir(env: Mapping[str, str] | None = None) -> Path:
+    """The user's state folder for diagnose (not created here): the shell's history."""
+    return user_dir("state", env)
 
 
 def journal_path(explicit: str | os.PathLike[str] | None = None,

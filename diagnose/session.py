@@ -28,17 +28,19 @@ import os
 import uuid
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
-from datetime import datetime, timezone
+from datetime import datetime
 from typing import Any, Protocol, TypeVar
 
 from diagnose.errors import InputError
 from diagnose.events import (
     Acknowledged,
     Answered,
+    Attached,
     ComplaintReported,
     Ended,
     Event,
     EventError,
+    HistoryNoted,
     IdentityGiven,
     LeftUnsure,
     ModeSet,
@@ -48,6 +50,7 @@ from diagnose.events import (
     Reminded,
     Repaired,
     RepairSkipped,
+    RepairStarted,
     Skipped,
     Started,
     StateSet,
@@ -107,7 +110,8 @@ class MemorySink:
 
 
 def _now() -> str:
-    return datetime.now(timezone.utc).isoformat(timespec="seconds")
+    """The local time with its UTC offset, to the second (the log shows times as local)."""
+    return datetime.now().astimezone().isoformat(timespec="seconds")
 
 
 # --- the fold ------------------------------------------------------------------------------
@@ -124,8 +128,8 @@ def apply(evidence: Evidence, event: Event) -> Evidence:
             return replace(evidence, mode=mode)
         case IdentityGiven(fields=fields):
             return replace(evidence, identity={**evidence.identity, **fields})
-        case NameplateRead(param=param, value=value):
-            return evidence.with_nameplate(param, value)
+        case NameplateRead(param=param, value=value, assumed=assumed):
+            return evidence.with_nameplate(param, value, assumed)
         case ComplaintReported(complaint=complaint):
             return evidence.with_complaint(complaint)
         case Answered(check=check, outcome=outcome):
@@ -142,12 +146,16 @@ def apply(evidence: Evidence, event: Event) -> Evidence:
             return evidence.with_acknowledgement(caution, item or None, step)
         case Repaired(repair=repair, cured=cured):
             return evidence.with_repair(repair, cured)
+        case RepairStarted(repair=repair):
+            return replace(evidence, pending_repair=repair)
         case Noted(text=text):
             return replace(evidence, notes=evidence.notes + (text,))
         case ModeSet(mode=mode):
             return evidence.with_mode(mode)
         case StateSet(state=state, value=value):
             return evidence.with_state(state, value)
+        case HistoryNoted(cause=cause, factor=factor):
+            return evidence.with_history(cause, factor)
         case Ended():
             return replace(evidence, end=event.data)
     return evidence
@@ -169,6 +177,7 @@ class Finding:
     weights: dict[str, float] = field(default_factory=dict)
     text: Any = None
     verdict: Verdict | None = None
+    assumed: tuple[str, ...] = ()  # nameplate values the verdict used that were assumed
 
     @property
     def soft(self) -> bool:
@@ -181,6 +190,8 @@ class Finding:
             out["text"] = self.text
         if self.verdict is not None:
             out["verdict"] = self.verdict.to_dict()
+        if self.assumed:
+            out["assumed"] = list(self.assumed)
         return out
 
 
@@ -293,8 +304,11 @@ class Session:
         """Facts about the unit and the call: serial number, customer, site, ..."""
         return self._record(IdentityGiven, fields={k: _text(v) for k, v in fields.items()})
 
-    def set_nameplate(self, param_id: str, text: Any) -> str:
+    def set_nameplate(self, param_id: str, text: Any, *, assumed: bool = False) -> str:
         """Record a nameplate value; returns it normalised ("24 V", "yes", "unknown").
+
+        ``assumed``: the value is the pack's default, not read off the unit; every
+        verdict that uses it says so.
 
         Raises:
             InputError: unknown parameter, a wrong unit, out of range, not a choice,
@@ -306,7 +320,8 @@ class Session:
             known = ", ".join(self.model.parameters) or "none"
             raise InputError("nameplate", f"unknown parameter {param_id!r}; known: {known}")
         value = normalise_parameter(param, text)
-        self._record(NameplateRead, param=param_id, text=_text(text), value=value)
+        self._record(NameplateRead, param=param_id, text=_text(text), value=value,
+                     assumed=bool(assumed))
         return value
 
     def add_complaint(self, complaint_id: str) -> Event:
@@ -339,7 +354,7 @@ class Session:
         if chk.measurement is None:
             raise InputError(check_id, f"{text!r} is not an outcome; expected one of "
                                        f"{', '.join(chk.outcomes)} (or unsure)")
-        verdict = self._evaluate(chk, text)
+        verdict, assumed = self._evaluate(chk, text)
         weights = finding_weights(chk, verdict)
         bad = [o for o in weights if o not in chk.outcomes]
         if bad:
@@ -348,11 +363,15 @@ class Session:
         self._record(ReadingTaken, check=check_id,
                      text=tuple(shown) if isinstance(shown, list) else shown,
                      verdict=verdict.verdict, weights=weights, summary=verdict.summary,
-                     figures={k: f.to_dict() for k, f in verdict.figures.items()})
-        return Finding(check_id, verdict.verdict, weights, shown, verdict)
+                     figures={k: f.to_dict() for k, f in verdict.figures.items()},
+                     assumed=assumed)
+        return Finding(check_id, verdict.verdict, weights, shown, verdict, assumed)
 
-    def _evaluate(self, chk: Check, text: Any) -> Verdict:
-        """Run the check's evaluator on a reading (soft near a band edge when accuracy is set)."""
+    def _evaluate(self, chk: Check, text: Any) -> tuple[Verdict, tuple[str, ...]]:
+        """Run the check's evaluator on a reading (soft near a band edge when accuracy is set).
+
+        Returns the verdict and the nameplate values it used that were assumed.
+        """
         from diagnose.physics import units
         from diagnose.physics.inputs import split_readings
         from diagnose.physics.registry import EVALUATORS, evaluate
@@ -367,6 +386,7 @@ class Session:
         if not field_name:
             raise InputError(chk.id, f"evaluator {m.evaluator} takes no reading")
         values: dict[str, Any] = {}
+        assumed: list[str] = []
         for name, raw in m.inputs.items():
             if isinstance(raw, str) and raw.startswith("$"):
                 pid = raw[1:]
@@ -380,6 +400,8 @@ class Session:
                                                  "set it first")
                     continue
                 values[name] = value
+                if pid in self._evidence.assumed or pid not in self._evidence.nameplate:
+                    assumed.append(pid)  # the pack's default, not read off the unit
             else:
                 values[name] = raw
 
@@ -399,8 +421,8 @@ class Session:
         else:
             values[field_name] = with_unit(text)
         if m.accuracy > 0:
-            return soft_verdict(m.evaluator, values, m.accuracy, reading=field_name)
-        return evaluate(m.evaluator, values)
+            return soft_verdict(m.evaluator, values, m.accuracy, reading=field_name), tuple(assumed)
+        return evaluate(m.evaluator, values), tuple(assumed)
 
     def unsure(self, check_id: str) -> Finding:
         """The check was done but the answer is not clear: no evidence, not offered again."""
@@ -452,14 +474,33 @@ class Session:
         self._item(item_id)
         return self._record(Reminded, item=item_id, cautions=tuple(cautions))
 
-    def repair(self, repair_id: str, cured: bool) -> Event:
-        """Record a repair done and whether it cured the complaint."""
+    def start_repair(self, repair_id: str) -> Event:
+        """The technician is at ``repair_id`` (its card read): it stays pending until done.
+
+        A session left while a repair is pending takes it up again when resumed.
+        """
+        self._open()
+        if repair_id not in self.model.repairs:
+            raise InputError("repair", f"unknown repair {repair_id!r}")
+        return self._record(RepairStarted, repair=repair_id)
+
+    def repair(self, repair_id: str, cured: bool, parts: Sequence[Any] = ()) -> Event:
+        """Record a repair done, whether it cured the complaint, and the parts fitted.
+
+        ``parts``: each a name, or ``{"part": name, "qty": n, "number": part number}``
+        (quantity 1 and no part number when not given).
+
+        Raises:
+            InputError: an unknown repair, ``cured`` not true or false, a part
+                without a name or with a quantity that is not a positive number.
+        """
         self._open()
         if repair_id not in self.model.repairs:
             raise InputError("repair", f"unknown repair {repair_id!r}")
         if not isinstance(cured, bool):
             raise InputError("cured", f"expected true or false, got {cured!r}")
-        return self._record(Repaired, repair=repair_id, cured=cured)
+        fitted = tuple(part_fitted(p) for p in parts)
+        return self._record(Repaired, repair=repair_id, cured=cured, parts=fitted)
 
     def note(self, text: str) -> Event:
         """A free-text note for the repair log (not after the end: the log is closed).
@@ -472,6 +513,39 @@ class Session:
         if not str(text).strip():
             raise InputError("note", "empty note")
         return self._record(Noted, text=str(text).strip())
+
+    def attach(self, sha256: str, *, name: str = "", caption: str = "",
+               media_type: str = "application/octet-stream", size: int = 0) -> Event:
+        """Record a photo or file attached to the log (stored by the journal; no I/O here).
+
+        Raises:
+            InputError: not a SHA-256 hex digest, or the diagnosis is closed.
+        """
+        if self.ended:
+            raise InputError("attach", "the diagnosis is closed; nothing can be attached now")
+        digest = str(sha256).lower()
+        if len(digest) != 64 or any(c not in "0123456789abcdef" for c in digest):
+            raise InputError("attach", f"not a SHA-256 digest: {sha256!r}")
+        return self._record(Attached, sha256=digest, name=str(name), caption=str(caption),
+                            media_type=str(media_type), size=int(size))
+
+    def note_history(self, cause: str, factor: float, *, days: int = 0,
+                     sessions: Sequence[str] = ()) -> Event:
+        """``cause`` was found on this very unit ``days`` ago: its prior odds × ``factor``.
+
+        ``undo`` takes it back (the technician judges the earlier job unrelated).
+
+        Raises:
+            InputError: an unknown cause, or a factor that is not a positive number.
+        """
+        self._open()
+        if cause not in self.model.causes:
+            raise InputError("history", f"unknown cause {cause!r}")
+        if isinstance(factor, bool) or not isinstance(factor, (int, float)) \
+                or not 0 < factor < float("inf"):
+            raise InputError("history", f"the factor must be a positive number, got {factor!r}")
+        return self._record(HistoryNoted, cause=cause, factor=float(factor), days=int(days),
+                            sessions=tuple(str(s) for s in sessions))
 
     def set_state(self, state_id: str, value: str) -> Event:
         """The unit is now ``state_id = value`` (power restored, brake refitted), as said.
@@ -552,21 +626,24 @@ class Session:
         return self._record(ModeSet, mode=mode)
 
     def end(self, result: str | None = None, *, text: str = "",
-            parts: Sequence[str] = ()) -> Event:
+            parts: Sequence[str] = (), finding: str | None = None) -> Event:
         """Close the diagnosis with ``result`` (default: what the evidence says).
 
         ``result``: "resolved" (a repair cured), "visit" (phone: send a technician
         with ``parts``), "escalated", or "abandoned". Given a result, or once a
         repair cured, the planner is not asked (a cure is closed even when
         planning fails); without one, the planner's action decides, and a visit
-        takes its parts unless ``parts`` are given.
+        takes its parts unless ``parts`` are given. ``finding``: the cause the
+        technician confirms (a cause id, or "unknown": none of the known causes).
 
         Raises:
-            InputError: the diagnosis is closed already, or an unknown result.
+            InputError: the diagnosis is closed already, an unknown result or cause.
         """
         self._open()
         if result is not None and result not in END_RESULTS:
             raise InputError("result", f"expected one of {', '.join(END_RESULTS)}, got {result!r}")
+        if finding is not None and finding not in self.model.causes and finding != "unknown":
+            raise InputError("finding", f"unknown cause {finding!r}")
         parts = [str(p) for p in parts]
         if result is None and self._evidence.cured:
             result = "resolved"
@@ -579,7 +656,8 @@ class Session:
         cured = [r for r, c in self._evidence.repairs if c]
         return self._record(Ended, result=result, cause=top.cause, p=round(top.p, 6),
                             repair=cured[-1] if cured else None,
-                            parts=tuple(parts) if result == "visit" else (), text=str(text))
+                            parts=tuple(parts) if result == "visit" else (), text=str(text),
+                            finding=finding)
 
     def undo(self) -> Event | None:
         """Undo the last event that can be undone; returns it (None when there is none)."""
@@ -597,8 +675,9 @@ class Session:
         """Play one scripted step (the format of a pack's test cases and of ``--answers``).
 
         ``{check: id, answer: value}``, ``{check: id, answer: unsure}``,
-        ``{check: id, skip: true}``, ``{repair: id, cured: bool}`` or
-        ``{repair: id, skip: true}`` (the repair cannot be done now).
+        ``{check: id, skip: true}``, ``{repair: id, cured: bool}`` (with
+        ``parts: [...]``, the parts fitted) or ``{repair: id, skip: true}``
+        (the repair cannot be done now).
         """
         s = step if isinstance(step, Step) else _step(step)
         if s.check is not None:
@@ -610,7 +689,7 @@ class Session:
         if s.repair is not None:
             if s.skip:
                 return self.skip_repair(s.repair)
-            return self.repair(s.repair, bool(s.cured))
+            return self.repair(s.repair, bool(s.cured), s.parts)
         raise InputError("step", "a step needs `check` or `repair`")
 
     # --- reasoning ---------------------------------------------------------------------------
@@ -719,6 +798,48 @@ class Session:
         return session
 
 
+def part_fitted(item: Any) -> dict[str, Any]:
+    """A part fitted as recorded: ``{"part", "qty", "number"}``.
+
+    >>> part_fitted("friction disc")
+    {'part': 'friction disc', 'qty': 1, 'number': ''}
+    >>> part_fitted({"part": "mounting screw", "qty": 4, "number": "MS-6x20"})
+    {'part': 'mounting screw', 'qty': 4, 'number': 'MS-6x20'}
+
+    Raises:
+        InputError: no name, or a quantity that is not a positive number.
+    """
+    d = item if isinstance(item, Mapping) else {"part": item}
+    name = _text(d.get("part", "")) if not isinstance(d.get("part"), (Mapping, list)) else ""
+    qty = d.get("qty", 1)
+    if not name:
+        raise InputError("parts", f"a part fitted needs a name, got {item!r}")
+    if isinstance(qty, bool) or not isinstance(qty, (int, float)) or not qty > 0 \
+            or qty != qty or qty == float("inf"):
+        raise InputError("parts", f"{name}: the quantity must be a positive number, got {qty!r}")
+    return {"part": name, "qty": qty, "number": _text(d.get("number") or "")}
+
+
+def assumed_note(evidence: Evidence, params: Sequence[str],
+                 defaults: Mapping[str, Any] | None = None) -> str:
+    """The sentence a verdict that used assumed nameplate values carries ("" for none).
+
+    ``defaults``: the pack's default of each parameter (for one never entered).
+
+    >>> assumed_note(Evidence(nameplate={"max_gap": "0.6 mm"}), ["max_gap"])[:60]
+    'uses assumed values, not read off the unit: max_gap = 0.6 mm'
+    """
+    if not params:
+        return ""
+    from diagnose.physics.verdict import unit_text
+
+    defaults = defaults or {}
+    listed = "; ".join(f"{p} = {unit_text(str(evidence.nameplate.get(p) or defaults.get(p)))}"
+                       for p in params)
+    return (f"uses assumed values, not read off the unit: {listed} (the pack's defaults); "
+            "check them before trusting this verdict")
+
+
 def _event_of(d: Mapping[str, Any]) -> Event:
     try:
         return Event.from_dict(d)
@@ -799,7 +920,7 @@ def _match_outcome(chk: Check, text: Any) -> str | None:
 def _step(d: Mapping[str, Any]) -> Step:
     if not isinstance(d, Mapping):
         raise InputError("step", f"expected a mapping, got {d!r}")
-    extra = set(d) - {"check", "answer", "skip", "repair", "cured"}
+    extra = set(d) - {"check", "answer", "skip", "repair", "cured", "parts"}
     if extra:
         raise InputError("step", f"unknown key {min(extra)!r}")
     for key in ("check", "repair"):
@@ -813,8 +934,11 @@ def _step(d: Mapping[str, Any]) -> Step:
     elif "repair" in d and not isinstance(d.get("cured"), bool):
         raise InputError(str(d["repair"]), "a repair step needs `cured: true` or `cured: false` "
                                            "(or `skip: true`: it cannot be done now)")
+    parts = d.get("parts", ())
+    if "parts" in d and ("repair" not in d or not isinstance(parts, list)):
+        raise InputError("parts", "`parts` is a list of the parts fitted, on a repair step")
     return Step(check=d.get("check"), answer=d.get("answer"), repair=d.get("repair"),
-                cured=d.get("cured"), skip=bool(d.get("skip", False)))
+                cured=d.get("cured"), skip=bool(d.get("skip", False)), parts=tuple(parts))
 
 
 def play_case(model: Model, case: Case, *, sink: Sink | None = None) -> Session:

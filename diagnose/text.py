@@ -238,6 +238,23 @@ def percent(p: float) -> str:
     return f"{p:.0%}"
 
 
+def likelihood_words(p: float) -> str:
+    """A probability in words for a caller or a customer (the figure goes beside it).
+
+    >>> [likelihood_words(x) for x in (0.95, 0.7, 0.4, 0.15, 0.03)]
+    ['almost certain', 'likely', 'possible', 'less likely', 'unlikely']
+    """
+    if p >= 0.9:
+        return "almost certain"
+    if p >= 0.6:
+        return "likely"
+    if p >= 0.3:
+        return "possible"
+    if p >= 0.1:
+        return "less likely"
+    return "unlikely"
+
+
 def say(*parts: Any, file: IO[str] | None = None, sep: str = " ") -> None:
     """Print one line of plain text (a message, a list row) through :func:`clean`."""
     print(clean(sep.join(str(p) for p in parts)), file=file if file is not None else sys.stdout)

@@ -183,16 +183,20 @@ def compact_cautions(cautions: Sequence[CautionView]) -> tuple[CautionView, ...]
     return tuple(c if c.pending else replace(c, brief=True) for c in cautions)
 
 
-def why_text(gain: float | None, minutes: float, *, phone: bool = False) -> str:
+def why_text(gain: float | None, minutes: float, *, phone: bool = False,
+             numbers: bool = False) -> str:
     """Why a check is proposed, in plain words, from its expected information per minute.
 
     ``gain`` is the expected reduction of uncertainty (bits) from the check;
-    ``phone``: a question to a caller, not work on site.
+    ``phone``: a question to a caller, not work on site; ``numbers``: with the
+    figures in bits (as `why` and `checks` show them) rather than words alone.
 
     >>> why_text(0.9, 2)
-    'it is expected to settle a lot about the cause (0.9 bits) for 2 min of work (0.45 bits/min)'
-    >>> why_text(0.9, 2, phone=True)
-    'it is expected to settle a lot about the cause (0.9 bits) for a 2 min question (0.45 bits/min)'
+    'worth checking first: likely to settle the question quickly (2 min of work)'
+    >>> why_text(0.3, 12)
+    'likely to tell a fair amount about the cause for 12 min of work'
+    >>> why_text(0.9, 2, phone=True, numbers=True)[-51:]
+    'quickly (a 2 min question; 0.9 bits, 0.45 bits/min)'
     """
     if gain is None:
         return "it is the next step of the plan"
@@ -206,8 +210,12 @@ def why_text(gain: float | None, minutes: float, *, phone: bool = False) -> str:
         amount = "very little"
     rate = gain / minutes if minutes > 0 else gain
     cost = f"a {minutes_text(minutes)} question" if phone else f"{minutes_text(minutes)} of work"
-    return (f"it is expected to settle {amount} about the cause ({gain:.2g} bits) "
-            f"for {cost} ({rate:.2g} bits/min)")
+    figures = f"; {gain:.2g} bits, {rate:.2g} bits/min" if numbers else ""
+    if gain >= 0.25 and rate >= 0.1:
+        verb = "asking" if phone else "checking"
+        return f"worth {verb} first: likely to settle the question quickly ({cost}{figures})"
+    text = f"likely to tell {amount} about the cause for {cost}"
+    return f"{text} ({figures[2:]})" if numbers else text
 
 
 class _Fact(NamedTuple):
@@ -551,9 +559,14 @@ class HelpView:
 
 @dataclass(frozen=True)
 class VerdictView:
-    """A measurement's verdict: a small table of the figures, then the verdict line and summary."""
+    """A measurement's verdict: a small table of the figures, then the verdict line and summary.
+
+    ``units``: the technician's preference; under "inch" lengths are shown in
+    inches with millimetres beside them (:func:`preferred_figures`).
+    """
 
     verdict: Verdict
+    units: str = "metric"
 
     def __rich_console__(self, console: Any, options: Any) -> Iterator[Any]:
         from rich.table import Table
@@ -567,8 +580,9 @@ class VerdictView:
         table.add_column("figure", overflow="fold")
         table.add_column("value", justify="right", no_wrap=True)
         table.add_column("unit", no_wrap=True)
-        for fig in v.figures.values():
-            table.add_row(fig.label, format_number(fig.value), unit_text(fig.unit))
+        for label, value, unit, beside in preferred_figures(v.figures, self.units):
+            table.add_row(label, format_number(value),
+                          unit_text(unit) + (f" ({beside})" if beside else ""))
         if v.figures:
             yield table
         style = "bold green" if v.verdict in GOOD_VERDICTS else "bold red"
@@ -583,6 +597,27 @@ class VerdictView:
         yield line
         if v.summary:
             yield Text(v.summary)
+
+
+def preferred_figures(figures: Any, units: str = "metric"
+                      ) -> Iterator[tuple[str, float, str, str]]:
+    """``(label, value, unit, beside)`` of a verdict's figures in the preferred ``units``.
+
+    Under "metric" the figures as they are (``beside`` ""). Under "inch" a
+    length is given in inches with its millimetres beside it, and a figure
+    keyed ``X_mm`` that only repeats figure ``X`` in millimetres is left out
+    (its value is the one beside ``X`` now).
+    """
+    from diagnose.physics.verdict import preferred_figure
+
+    for key, fig in figures.items():
+        if units == "metric":
+            yield fig.label, fig.value, fig.unit, ""
+            continue
+        if key.endswith("_mm") and key[:-3] in figures:
+            continue
+        value, unit, beside = preferred_figure(fig.value, fig.unit, units)
+        yield fig.label, value, unit, beside
 
 
 @dataclass(frozen=True)
@@ -622,9 +657,13 @@ class StatsView:
 
 @dataclass(frozen=True)
 class FindingView:
-    """What a check's answer or reading established (``diagnose.session.Finding``), for `run`."""
+    """What a check's answer or reading established (``diagnose.session.Finding``), for `run`.
+
+    ``units``: the technician's preference, as for :class:`VerdictView`.
+    """
 
     finding: Any
+    units: str = "metric"
 
     def __rich_console__(self, console: Any, options: Any) -> Any:
         from rich.text import Text
@@ -640,8 +679,9 @@ class FindingView:
 
             if f.verdict.summary:
                 yield Text(f"  {clean(f.verdict.summary)}")
-            for fig in f.verdict.figures.values():
-                yield Text(f"  {clean(fig.label)}: {fig.value:.4g} {unit_text(fig.unit)}".rstrip())
+            for label, value, unit, beside in preferred_figures(f.verdict.figures, self.units):
+                yield Text(f"  {clean(label)}: {value:.4g} {unit_text(unit)}".rstrip()
+                           + (f" ({beside})" if beside else ""))
 
 
 @dataclass(frozen=True)

@@ -15,4 +15,6 @@ def _clean_environment(monkeypatch, tmp_path_factory):
     monkeypatch.setenv("XDG_DATA_HOME", str(home / "data"))
     monkeypatch.setenv("XDG_STATE_HOME", str(home / "state"))
     monkeypatch.setenv("XDG_CACHE_HOME", str(home / "cache"))
+    monkeypatch.setenv("XDG_CONFIG_HOME", str(home / "config"))  # not the tester's settings
+    monkeypatch.delenv("DIAGNOSE_SETTINGS", raising=False)
     monkeypatch.setenv("DIAGNOSE_DEBUG", "1")  # a bug is a traceback in a test, not one line

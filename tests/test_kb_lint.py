@@ -82,6 +82,13 @@ CASES = [
      "error", "builds_on: [no-such-pack]"),
     ("knowledge.yaml", "    prior: 12\n", "    prior: 12\n    prior: 13\n", "duplicate-key",
      "error", "prior: 13"),
+    ("knowledge.yaml", "    parts:\n      - fuse\n", '    parts: "fuse, relay"\n', "parts-text",
+     "error", 'parts: "fuse, relay"'),
+    ("knowledge.yaml", "    parts:\n      - fuse\n", "    parts: [fuse, if blown]\n",
+     "parts-split", "error", "parts: [fuse, if blown]"),
+    ("knowledge.yaml", "events:\n", "  - id: stuck\n    title: Stuck\n    caller: the axis will "
+     "not move.\n    inputs: [coil_open]\nevents:\n", "same-caller", "warning",
+     "caller: the axis will not move."),
 ]
 
 

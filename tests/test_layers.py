@@ -25,7 +25,7 @@ ROOT = Path(__file__).parent.parent / "diagnose"
 
 #: Layer of each top-level part of the package, lowest first (ARCHITECTURE.md, "Layers").
 LAYERS = {
-    "diagnose": 0, "diagnose.errors": 0, "diagnose.text": 0,
+    "diagnose": 0, "diagnose.errors": 0, "diagnose.text": 0, "diagnose.settings": 0,
     "diagnose.physics": 1,
     "diagnose.kb": 2,
     "diagnose.reasoning": 3,

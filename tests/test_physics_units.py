@@ -178,3 +178,93 @@ def test_importing_physics_does_not_import_pint():
             "diagnose.service.calc; print('pint' in sys.modules, 'rich' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.split() == ["False", "False"]
+
+
+# --- the technician's preferred unit ---------------------------------------------------------
+
+def test_preferred_reading_takes_bare_lengths_in_inches_as_pint_does():
+    import pint
+
+    ureg = pint.UnitRegistry()  # the reference: its own registry, not the project's
+    text = units.preferred_reading("0.018 0.019 0.017", "mm", "inch")
+    assert text == "0.018 in 0.019 in 0.017 in"
+    for reading, typed in zip(split_readings(text), (0.018, 0.019, 0.017)):
+        mm = units.parse_quantity(reading, "mm", "readings")
+        assert mm == pytest.approx(ureg.Quantity(typed, "inch").to("mm").magnitude, rel=1e-12)
+        # 1 in = 25.4 mm exactly, by definition (international yard and pound agreement, 1959)
+        assert mm == pytest.approx(typed * 25.4, rel=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("text", "pack_unit", "prefer", "expected"),
+    [
+        ("0.018", "mm", "inch", "0.018 in"),
+        ("0.018, 0.019; 0.017", "mm", "inch", "0.018 in, 0.019 in; 0.017 in"),
+        ("-0.002 0.003", "mm", "inch", "-0.002 in 0.003 in"),  # a runout indicator zeroed mid-way
+        ("18 um", "um", "inch", "18 um"),
+        ("5", "um", "inch", "5 in"),
+        ("0.46 mm", "mm", "inch", "0.46 mm"),  # a unit typed stays as typed
+        ("0.46mm 0.48", "mm", "inch", "0.46mm 0.48 in"),
+        ("0.46 0.48 mm", "mm", "inch", "0.46 0.48 mm"),  # the unit after them is theirs
+        ("0.46 0.48 mm 0.47", "mm", "inch", "0.46 0.48 mm 0.47 in"),
+        ('0.018"', "mm", "inch", '0.018"'),
+        ("OL", "mm", "inch", "OL"),
+        ("unsure", "mm", "inch", "unsure"),
+        ("", "mm", "inch", ""),
+        ("0.018", "mm", "metric", "0.018"),  # metric: nothing changes
+        ("24", "V", "inch", "24"),  # not a length
+        ("15", "m", "inch", "15"),  # a cable run in metres: feet, not inches, would be the other
+        ("0.1", "thou", "inch", "0.1"),  # the pack's unit is an inch unit already
+        ("0.018", "in", "inch", "0.018"),
+    ],
+)
+def test_preferred_reading_cases(text, pack_unit, prefer, expected):
+    assert units.preferred_reading(text, pack_unit, prefer) == expected
+
+
+def test_preferred_reading_of_numbers_and_lists():
+    assert units.preferred_reading(0.018, "mm", "inch") == "0.018 in"
+    assert units.preferred_reading([0.018, "0.019", "0.017 mm"], "mm", "inch") == [
+        "0.018 in", "0.019 in", "0.017 mm"]
+    assert units.preferred_reading(["0.46", "0.48", "mm"], "mm", "inch") == ["0.46", "0.48", "mm"]
+    assert units.preferred_reading(("0.018",), "mm", "inch") == ("0.018 in",)
+    assert units.preferred_reading(True, "mm", "inch") is True
+    assert units.preferred_reading(None, "mm", "inch") is None
+    assert units.preferred_reading("9" * 50_000, "mm", "inch") == "9" * 50_000  # refused later
+
+
+@pytest.mark.parametrize(("pack_unit", "prefer", "expected"),
+                         [("mm", "inch", "in"), ("mm", "metric", "mm"), ("ohm", "inch", "ohm"),
+                          ("m", "inch", "m"), ("", "inch", "")])
+def test_bare_unit(pack_unit, prefer, expected):
+    assert units.bare_unit(pack_unit, prefer) == expected
+
+
+@pytest.mark.parametrize(("value", "unit", "inches", "beside"), [
+    (0.4572, "mm", 0.018, "0.46 mm"),
+    (0.3, "mm", 0.011811, "0.3 mm"),
+    (12.7, "mm", 0.5, "12.7 mm"),
+    (0.018, "in", 0.018, "0.46 mm"),
+    (0.0508, "mm", 0.002, "0.051 mm"),
+])
+def test_figures_in_inches_with_mm_beside_as_pint_converts(value, unit, inches, beside):
+    import pint
+
+    from diagnose.physics.verdict import preferred_figure, quantity_text
+
+    ureg = pint.UnitRegistry()
+    shown, shown_unit, mm_text = preferred_figure(value, unit, "inch")
+    assert shown_unit == "in" and mm_text == beside
+    assert shown == pytest.approx(ureg.Quantity(value, unit).to("inch").magnitude, rel=1e-5)
+    assert shown == pytest.approx(inches, rel=1e-5)  # 1 in = 25.4 mm exactly (1959 agreement)
+    assert quantity_text(value, unit, "inch").endswith(f" in ({beside})")
+
+
+def test_metric_figures_are_as_before():
+    from diagnose.physics.verdict import preferred_figure, quantity_text
+
+    for value, unit in ((0.4572, "mm"), (24.0, "V"), (12.0, "%"), (0.5, "mm**2")):
+        assert quantity_text(value, unit, "metric") == quantity_text(value, unit)
+        assert preferred_figure(value, unit) == (value, unit, "")
+    assert quantity_text(24.0, "V", "inch") == "24 V"
+    assert quantity_text(5.0, "m", "inch") == "5 m"  # a cable run stays in metres

@@ -21,6 +21,7 @@ from diagnose.reasoning.planner import (
     checks_table,
     expected_cost_of_repair,
     lookahead,
+    lookahead_reference,
     next_action,
     plan,
     repair_order,
@@ -122,7 +123,8 @@ def _brute_lookahead(tables, p, cand, ccost, assign, rcost, esc):
     (synthetic_model(25, seed=4), 2), (synthetic_model(40, seed=5, causes_per_check=12), 1),
     (random_model(9, n_causes=6), 2),
 ])
-def test_vectorised_look_ahead_equals_re_sorting_after_each_outcome(model, max_faults):
+@pytest.mark.parametrize("method", ["dense", "merge", "reference"])
+def test_vectorised_look_ahead_equals_re_sorting_after_each_outcome(model, max_faults, method):
     t = tables_for(model, max_faults)
     rng = np.random.default_rng(0)
     for trial in range(3):
@@ -135,7 +137,12 @@ def test_vectorised_look_ahead_equals_re_sorting_after_each_outcome(model, max_f
         usable = rng.random(len(t.repair_ids)) < 0.8
         rcost = rng.uniform(5, 100, len(t.repair_ids))
         assign = assign_repairs(t, usable, rcost)
-        bits, eco, _ = lookahead(t, p, cand, ccost, assign, rcost, escalation=120.0)
+        if method == "reference":
+            bits, eco, _ = lookahead_reference(t, p, cand, ccost, assign, rcost,
+                                               escalation=120.0)
+        else:
+            bits, eco, _ = lookahead(t, p, cand, ccost, assign, rcost, escalation=120.0,
+                                     method=method)
         b2, e2 = _brute_lookahead(t, p, cand, ccost, assign, rcost, 120.0)
         assert np.allclose(bits, b2, atol=1e-9) and np.allclose(eco, e2, atol=1e-8)
 
@@ -203,7 +210,8 @@ def test_phone_reasons_say_what_the_question_is_for():
     m = tiny_model()
     ev = replace(WNR, mode="phone")
     a = next_action(m, ev)
-    assert a.kind == "check" and a.reason.startswith("to find out by phone whether a site visit is needed")
+    assert a.kind == "check" and a.reason.startswith(
+        "to find out by phone whether a site visit is needed")
     assert "site visit" in a.reason and "tells more about" in a.reason
     assert not any(w in a.reason for w in SITE_WORDS)
     assert next_action(m, WNR).reason in ("observing first saves minutes",

@@ -2,7 +2,11 @@
 
 from __future__ import annotations
 
+import base64
+import hashlib
 import json
+import re
+from html import unescape
 from html.parser import HTMLParser
 
 import pytest
@@ -11,7 +15,7 @@ from test_journal_store import FIXTURES, mini_model, play
 from diagnose.cli import main
 from diagnose.errors import InputError
 from diagnose.journal.record import session_record
-from diagnose.journal.report import render_report
+from diagnose.journal.report import PRINT_SCRIPT, render_report
 from diagnose.journal.store import Journal
 
 EVIL = '<script>alert("x")</script> & <b onmouseover="steal()">bold</b> | pipe'
@@ -85,7 +89,8 @@ def test_markdown(recorded):
                  "Brake will not release", "Coil resistance, leads disconnected", "reading: OL",
                  "verdict: **open**", "| expected resistance at 20 °C | 28.8 | ohm |",
                  "ranking after this step", "Coil winding open", "DANGER", "by Ana",
-                 "Replace the fuse (`replace_fuse`): not cured", "confirmed cause: **Coil",
+                 "Replace the fuse: **not cured**",
+                 "**Coil winding open**, the cause the repair that cured it fixes",
                  "mini-brake 1.0.0", "content hash", "total minutes", "licensed practice"):
         assert part in text, part
     assert "<script>" not in text and "&lt;script&gt;" in text
@@ -96,7 +101,14 @@ def test_html_is_escaped_self_contained_and_printable(recorded):
     text = render_report(_record(*recorded), "html")
     parser = _Tags()
     parser.feed(text)
-    assert "script" not in parser.tags
+    # The one script is the log's own (the appendix folded on screen, opened to print),
+    # and the content security policy allows it by its hash and nothing else.
+    assert parser.tags.count("script") == 1
+    assert re.findall(r"<script>(.*?)</script>", text, re.S) == [PRINT_SCRIPT]
+    digest = base64.b64encode(hashlib.sha256(PRINT_SCRIPT.encode()).digest()).decode()
+    policy = unescape(re.search(r'http-equiv="Content-Security-Policy" content="([^"]*)"',
+                                text).group(1))
+    assert f"script-src 'sha256-{digest}'" in policy and "default-src 'none'" in policy
     assert "b" not in parser.tags and "onmouseover" not in parser.attrs
     assert EVIL in "".join(parser.text)  # shown as text, exactly as typed
     assert "Hoist <3>" in "".join(parser.text)

@@ -38,7 +38,7 @@ from diagnose.shell.complete import CompletionState
 pyte = pytest.importorskip("pyte", reason="the 80×24 screen tests need pyte (test extra)")
 
 COLUMNS, LINES = 80, 24
-TOOLBAR = " spring-applied-brake | site | session t-1 | step 0 | top: coil_open 20% "
+TOOLBAR = " site | session t-1 | step 0 | Coil winding or lead open 20% "
 MARKS = ("!! DANGER", "! WARNING")
 PACK = Path(__file__).parent / "fixtures" / "shell-brake"
 TIMEOUT = 30  # generous: a loaded CI machine

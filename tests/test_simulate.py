@@ -13,6 +13,7 @@ from rich.console import Console
 from diagnose.cli import main
 from diagnose.errors import InputError
 from diagnose.kb.model import UNKNOWN_CAUSE
+from diagnose.reasoning.simulate import ALL_POLICIES as POLICIES_KNOWN
 from diagnose.reasoning.simulate import (
     POLICIES,
     RunResult,
@@ -110,6 +111,16 @@ def test_simulate_command_json(capsys):
     code = main(["simulate", MINI, "--runs", "20", "--policy", "chart", "--json"])
     data = json.loads(capsys.readouterr()[0])
     assert code == 0 and data["policy"] == "chart" and "policies" not in data
+
+
+def test_simulate_command_runs_the_reference_planner_side_by_side(capsys):
+    code = main(["simulate", MINI, "--runs", "25", "--seed", "2", "--noise", "0.05",
+                 "--policy", "planner", "--policy", "reference", "--json"])
+    data = json.loads(capsys.readouterr()[0])
+    assert code == 0 and set(data["policies"]) == {"planner", "reference"}
+    fast, ref = data["policies"]["planner"], data["policies"]["reference"]
+    assert {**fast, "policy": ""} == {**ref, "policy": ""}  # the same runs, only slower
+    assert "reference" in POLICIES_KNOWN and "reference" not in POLICIES
 
 
 def test_simulate_command_table(capsys):

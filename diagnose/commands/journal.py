@@ -1,10 +1,11 @@
-"""The journal's commands: sessions, resume, report, learn, stats, backup.
+"""The journal's commands: sessions, resume, report, learn, stats, backup, export, import.
 
 `diagnose sessions` lists what the journal holds; `diagnose resume ID`
 continues an open session in the shell; `diagnose report ID` writes its
 repair log; `diagnose learn PACK` refines the pack's cause priors from
 confirmed cures; `diagnose stats` sums up; `diagnose backup FILE` copies the
-journal safely while it may be in use. The journal is ``--journal PATH``,
+journal safely while it may be in use; `diagnose export ID` and `diagnose
+import FILE` carry one session to another journal. The journal is ``--journal PATH``,
 else DIAGNOSE_JOURNAL, else the user's data folder.
 """
 
@@ -28,6 +29,12 @@ def register(sub: Any) -> None:
     which.add_argument("--closed", dest="status", action="store_const", const="closed",
                        help="only closed sessions")
     p.add_argument("--pack", metavar="PACK", help="only the sessions of this pack id")
+    p.add_argument("--serial", metavar="S", help="only the sessions of the unit with this serial")
+    p.add_argument("--site", metavar="S", help="only sessions whose site or customer holds S")
+    p.add_argument("--machine", metavar="M", help="only sessions whose machine holds M")
+    p.add_argument("--axis", metavar="A", help="only sessions whose axis holds A")
+    p.add_argument("--since", metavar="DATE", type=_date,
+                   help="only sessions started on or after DATE (YYYY-MM-DD)")
     p.add_argument("--json", action="store_true", help="a JSON list instead of a table")
     p.set_defaults(handler=_sessions)
 
@@ -74,6 +81,22 @@ def register(sub: Any) -> None:
                    "link)")
     p.set_defaults(handler=_backup)
 
+    p = sub.add_parser("export", help="one session as a file, to carry it to another journal",
+                       description="Write session ID as one JSON file (its events, rankings and "
+                       "attached files), for `diagnose import` on another machine: a phone "
+                       "session handed to the technician who visits the site.")
+    p.add_argument("session_id", metavar="ID")
+    add_output_arguments(p)
+    p.set_defaults(handler=_export)
+
+    p = sub.add_parser("import", help="bring an exported session into this journal",
+                       description="Read a session written by `diagnose export` into the "
+                       "journal. Importing the same file again changes nothing; a file with "
+                       "more events adds the missing ones; a copy that went on differently "
+                       "here is never overwritten. The session keeps its id when it is free.")
+    p.add_argument("file", metavar="FILE")
+    p.set_defaults(handler=_import)
+
 
 # --- helpers -------------------------------------------------------------------------------
 
@@ -102,6 +125,16 @@ def _need_reader(args: argparse.Namespace) -> Any:
     return need_journal(_where(args))
 
 
+def _date(text: str) -> str:
+    """A date as YYYY-MM-DD (for ``--since``)."""
+    from datetime import date
+
+    try:
+        return date.fromisoformat(text.strip()).isoformat()
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a date as YYYY-MM-DD, got {text!r}") from None
+
+
 # --- handlers ------------------------------------------------------------------------------
 
 
@@ -111,7 +144,9 @@ def _sessions(args: argparse.Namespace) -> int:
     if journal is not None:
         with journal:
             journal.verify_events()  # a row altered by hand is named, not listed as sound
-            infos = journal.sessions(args.status, pack_id=args.pack)
+            infos = journal.sessions(args.status, pack_id=args.pack, serial=args.serial,
+                                     site=args.site, machine=args.machine, axis=args.axis,
+                                     since=args.since)
     if args.json:
         print(json_text([i.to_dict() for i in infos], indent=2))
         return 0
@@ -124,19 +159,22 @@ def _sessions(args: argparse.Namespace) -> int:
     from diagnose.text import console
 
     table = Table(box=None, pad_edge=False)
-    for col in ("id", "started", "pack", "mode", "who", "status", "cause", "events"):
+    units = any(i.unit for i in infos)
+    for col in ("id", "started", "unit" if units else "pack", "mode", "who", "status", "cause",
+                "events"):
         table.add_column(col, justify="right" if col == "events" else "left")
     for i in infos:
         status = i.status if i.is_open else (i.outcome or "closed")
         cause = (i.cause or "") if i.outcome == "resolved" else ""
+        unit = " / ".join(i.unit.values()) if units else f"{i.pack_id} {i.pack_version}"
         table.add_row(*(clean(v) for v in (
-            i.id, when(i.started), f"{i.pack_id} {i.pack_version}", i.mode, i.who or "", status,
-            cause, str(i.events))))
+            i.id, when(i.started), unit, i.mode, i.who or "", status, cause, str(i.events))))
     console().print(table)
     return 0
 
 
 def _report(args: argparse.Namespace) -> int:
+    from diagnose.journal.attachments import folder_of
     from diagnose.journal.record import session_record
     from diagnose.journal.report import render_report
     from diagnose.service import recorded_events, report_pack
@@ -146,7 +184,8 @@ def _report(args: argparse.Namespace) -> int:
         events = recorded_events(journal, info.id)  # no log from an event altered by hand
         choice = report_pack(info, events, _where(args))
         record = session_record(journal, info.id, choice.model if choice else None)
-    write_output(render_report(record, args.format), args.output, **output_options(args))
+    text = render_report(record, args.format, attachments_dir=folder_of(_path(args)))
+    write_output(text, args.output, **output_options(args))
     return 0
 
 
@@ -194,6 +233,34 @@ def _stats(args: argparse.Namespace) -> int:
     from diagnose.views import StatsView
 
     console().print(StatsView(result))
+    return 0
+
+
+def _export(args: argparse.Namespace) -> int:
+    from diagnose.journal.transfer import export_session
+
+    with _need_reader(args) as journal:
+        data = export_session(journal, args.session_id)
+    write_output(json_text(data, indent=1) + "\n", args.output, **output_options(args))
+    if args.output:
+        say(f"session {args.session_id} written to {args.output}")
+    return 0
+
+
+def _import(args: argparse.Namespace) -> int:
+    from diagnose.journal.transfer import import_session, read_export
+    from diagnose.service import open_journal
+
+    try:
+        with open(args.file, encoding="utf-8") as fh:
+            text = fh.read()
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError("import", f"cannot read {args.file}: "
+                                   f"{getattr(exc, 'strerror', None) or exc}") from None
+    data = read_export(text, args.file)
+    with open_journal(_where(args)) as journal:
+        done = import_session(journal, data)
+    say(str(done))
     return 0
 
 

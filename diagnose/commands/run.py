@@ -22,7 +22,7 @@ from diagnose.text import storable
 
 #: The keys an answers file may hold.
 ANSWER_KEYS = frozenset({"nameplate", "complaints", "steps", "mode", "max_faults", "identity",
-                         "title", "notes", "end"})
+                         "title", "notes", "attach", "end"})
 
 
 def register(sub: Any) -> None:
@@ -33,7 +33,9 @@ def register(sub: Any) -> None:
         "{check: id, answer: value} (an outcome, a reading with unit, a list of readings, "
         "or unsure), {check: id, skip: true}, {repair: id, cured: true|false} or "
         "{repair: id, skip: true} (it cannot be done now); optional "
-        "`identity`, `notes` and `end` (resolved, visit, escalated or abandoned). Shows the "
+        "`identity`, `notes`, `attach` (photos or files: paths from the answers file's folder, "
+        "or {file: PATH, caption: TEXT}) and `end` (resolved, visit, escalated or abandoned). "
+        "Shows the "
         "ranking and the proposed next action after each step. The session is recorded in "
         "the journal as it goes (see `diagnose sessions`) and closed at a cure or at `end`; "
         "--resume ID continues a session of the journal.")
@@ -46,14 +48,16 @@ def register(sub: Any) -> None:
                    "apply FILE (its nameplate values and complaints already there are skipped); "
                    "without --answers, show where it stands")
     p.add_argument("--who", metavar="NAME", type=storable,
-                   help="who does the steps, for the repair log")
+                   help="who does the steps, for the repair log (default: the settings file's "
+                   "technician)")
     p.add_argument("--no-journal", action="store_true",
                    help="a dry run: show the steps but write nothing to the journal")
     p.add_argument("--json", action="store_true", help="one JSON object instead of text")
     p.add_argument("--max-faults", type=int, choices=(1, 2), default=None,
                    help="1: one cause at a time (default); 2: up to two causes at once")
     p.add_argument("--mode", choices=("site", "phone"), default=None,
-                   help="site (default) or phone: only checks a caller can do")
+                   help="site or phone: only checks a caller can do (default: the file's mode, "
+                   "else the settings file's, else site)")
     p.set_defaults(handler=_run)
 
 
@@ -96,7 +100,31 @@ def read_answers(path: str) -> dict[str, Any]:
     if "end" in data and data["end"] not in END_RESULTS:
         raise InputError("answers", f"{path}: `end` must be one of {', '.join(END_RESULTS)}, "
                                     f"not {excerpt(data['end'])}")
+    if "attach" in data:
+        data["attach"] = _attachments(data["attach"], path)
     return data
+
+
+def _attachments(items: Any, path: str) -> list[dict[str, str]]:
+    """The ``attach`` list of an answers file: ``PATH`` or ``{file: PATH, caption: TEXT}``,
+    each path taken from the answers file's folder.
+
+    Raises:
+        InputError: not a list of those.
+    """
+    from diagnose.errors import InputError
+
+    if not isinstance(items, list):
+        raise InputError("answers", f"{path}: `attach` must be a list of files")
+    out = []
+    for item in items:
+        entry = item if isinstance(item, dict) else {"file": item}
+        if not isinstance(entry.get("file"), str) or set(entry) - {"file", "caption"}:
+            raise InputError("answers", f"{path}: each `attach` entry is a path, or `file:` "
+                                        "with an optional `caption:`")
+        out.append({"file": str(Path(path).parent / Path(entry["file"]).expanduser()),
+                    "caption": str(entry.get("caption") or "")})
+    return out
 
 
 def _step_text(step: Any) -> str:
@@ -122,7 +150,8 @@ def _plain(value: Any) -> str:
 
 def play(session: Any, data: dict[str, Any], *,
          on_step: Callable[[int, Any, Any], None] | None = None,
-         on_ready: Callable[[], None] | None = None) -> None:
+         on_ready: Callable[[], None] | None = None, units: str = "metric",
+         journal: str | None = None) -> None:
     """Apply an answers file to ``session``: identity, nameplate, complaints, steps, notes, end.
 
     What the session holds already (an identity fact, a nameplate value, a
@@ -132,6 +161,8 @@ def play(session: Any, data: dict[str, Any], *,
     with the file's ``end`` result, or as the shell closes it when a repair
     cured the unit. ``on_ready()`` is called once the nameplate and complaints are
     in, before the first step; ``on_step(n, step, result)`` after each step.
+    ``units``: the technician's preferred units; under "inch" a bare number
+    read for a length in mm is taken in inches (:func:`preferred_step`).
 
     Raises:
         InputError: a value or step the pack or the physics refuses; its field
@@ -161,7 +192,7 @@ def play(session: Any, data: dict[str, Any], *,
         on_ready()
     for i, step in enumerate(data.get("steps") or [], 1):
         try:
-            result = session.apply_step(step)
+            result = session.apply_step(preferred_step(session.model, step, units))
         except DiagnoseError as exc:
             field = getattr(exc, "field", "")
             raise InputError(f"step {i}", f"{field + ': ' if field else ''}"
@@ -171,6 +202,7 @@ def play(session: Any, data: dict[str, Any], *,
     for note in data.get("notes") or []:
         if str(note).strip() not in session.evidence.notes:
             session.note(str(note))
+    _attach(session, data.get("attach") or [], journal)
     if session.ended:
         return
     if data.get("end"):
@@ -184,6 +216,38 @@ def play(session: Any, data: dict[str, Any], *,
         session.end(result, parts=parts)
     elif session.evidence.cured:  # as the shell does: a cure closes the diagnosis
         session.end()
+
+
+def _attach(session: Any, items: list[dict[str, str]], journal: str | None) -> None:
+    """The files of an answers file: stored and recorded with a journal, else only checked.
+
+    A file attached already with the same caption (a file given again to go on)
+    is not attached twice.
+    """
+    from diagnose.journal.attachments import check
+    from diagnose.service.attach import attach
+
+    done = {(e.sha256, e.caption) for e in session.events if e.kind == "attachment"}
+    for item in items:
+        kept = check(item["file"])
+        if journal and (kept.sha256, item["caption"]) not in done and not session.ended:
+            attach(session, journal, item["file"], item["caption"])
+
+
+def preferred_step(model: Any, step: Any, units: str) -> Any:
+    """``step`` with its reading in the preferred units (a bare length in inches under "inch").
+
+    Only ``{check: id, answer: reading}`` of a measurement changes; the
+    reading the journal records then carries its unit.
+    """
+    if units == "metric" or not isinstance(step, dict) or "answer" not in step:
+        return step
+    check = model.checks.get(str(step.get("check")))
+    if check is None:
+        return step  # the session says what is wrong with it
+    from diagnose.service import preferred_answer
+
+    return {**step, "answer": preferred_answer(check, step["answer"], units)}
 
 
 def _options(args: argparse.Namespace, data: dict[str, Any]) -> tuple[str | None, int | None]:
@@ -203,8 +267,9 @@ def _options(args: argparse.Namespace, data: dict[str, Any]) -> tuple[str | None
 class _View:
     """What a run shows: rich text after each step, or one JSON object at the end."""
 
-    def __init__(self, session: Any, as_json: bool) -> None:
+    def __init__(self, session: Any, as_json: bool, units: str = "metric") -> None:
         self.session = session
+        self.units = units
         self.steps: list[dict[str, Any]] = []
         self.console: Any = None
         if not as_json:
@@ -281,7 +346,13 @@ class _View:
             if isinstance(result, Finding):
                 from diagnose.views import FindingView
 
-                self.console.print(FindingView(result))
+                self.console.print(FindingView(result, self.units))
+                if result.assumed:
+                    from diagnose.session import assumed_note
+
+                    s = self.session
+                    defaults = {k: p.default for k, p in s.model.parameters.items()}
+                    self.say(f"  {assumed_note(s.evidence, result.assumed, defaults)}")
             self.console.print(_ranking_view(self.session))
             self.console.print(ActionView(self.session.next_action()))
 
@@ -341,23 +412,27 @@ def _run(args: argparse.Namespace) -> int:
 
 
 def _start(args: argparse.Namespace, data: dict[str, Any]) -> int:
-    from diagnose.service import Where, journal_path, open_journal, open_pack, start
+    from diagnose.service import Where, journal_path, open_journal, open_pack, preferences, start
 
     where = Where.of(args)
+    prefs = preferences(args)
     model = open_pack(args.pack, where)
     mode, faults = _options(args, data)
-    mode, faults = mode or "site", faults or 1
+    mode, faults = mode or prefs.mode, faults or 1
     if "mode" in data:
         data = {**data, "mode": mode}  # the --mode option wins over the file's
     if args.no_journal:
         session = start(None, model, where, mode=mode, max_faults=faults)
-        return _play(args, session, data, recorded=False, resumed=False, journal=None)
-    play(start(None, model, where, mode=mode, max_faults=faults), data)  # a bad step: nothing
+        return _play(args, session, data, recorded=False, resumed=False, journal=None,
+                     units=prefs.units)
+    # a bad step: nothing is written
+    play(start(None, model, where, mode=mode, max_faults=faults), data, units=prefs.units)
     with open_journal(where) as journal:
-        session = start(journal, model, where, mode=mode, max_faults=faults, who=args.who)
+        session = start(journal, model, where, mode=mode, max_faults=faults,
+                        who=args.who or prefs.technician)
         try:
             return _play(args, session, data, recorded=True, resumed=False,
-                         journal=str(journal_path(where)))
+                         journal=str(journal_path(where)), units=prefs.units)
         except Exception as exc:
             _close_stopped(session, exc)
             raise
@@ -390,12 +465,14 @@ def _resume(args: argparse.Namespace, data: dict[str, Any]) -> int:
         journal_path,
         need_journal,
         open_journal,
+        preferences,
         recorded_events,
         recorded_pack,
     )
     from diagnose.session import Session
 
     where = Where.of(args)
+    units = preferences(args).units
     sid = args.resume
     with need_journal(where) as reader:
         info = reader.session(sid)
@@ -414,25 +491,27 @@ def _resume(args: argparse.Namespace, data: dict[str, Any]) -> int:
     if mode is not None:
         data = {**data, "mode": mode}
     if data:
-        play(old, data)
+        play(old, data, units=units)
     if args.no_journal:
         session = Session.replay(choice.model, events)
-        return _play(args, session, data, recorded=False, resumed=True, journal=None)
+        return _play(args, session, data, recorded=False, resumed=True, journal=None,
+                     units=units)
     from diagnose.service import resume
 
     with open_journal(where) as journal:
         session = resume(journal, sid, where, args.pack, choice=choice).session
         return _play(args, session, data, recorded=True, resumed=True,
-                     journal=str(journal_path(where)))
+                     journal=str(journal_path(where)), units=units)
 
 
 def _play(args: argparse.Namespace, session: Any, data: dict[str, Any], *, recorded: bool,
-          resumed: bool, journal: str | None) -> int:
+          resumed: bool, journal: str | None, units: str = "metric") -> int:
     """Show the start, apply the answers file step by step, show the end."""
-    view = _View(session, args.json)
+    view = _View(session, args.json, units)
     view.start(resumed=resumed, journal=journal if recorded else None)
     if data:
-        play(session, data, on_step=view.step, on_ready=view.ready)
+        play(session, data, on_step=view.step, on_ready=view.ready, units=units,
+             journal=journal if recorded else None)
     else:
         view.ready()
     view.finish(recorded=recorded, resumed=resumed, journal=journal)

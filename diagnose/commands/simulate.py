@@ -6,7 +6,8 @@ import argparse
 import json
 from typing import Any
 
-POLICIES = ("planner", "chart", "listing", "random")
+POLICIES = ("planner", "chart", "listing", "random")  # run when --policy is not given
+CHOICES = (*POLICIES, "reference")
 
 
 def register(sub: Any) -> None:
@@ -18,8 +19,9 @@ def register(sub: Any) -> None:
         "top-1 accuracy at the first repair and the entropy bound. With --unknown-rate a share "
         "of the calls has a cause outside the pack (every check answers normal, no repair "
         "cures): reports how often each policy escalated or ranked 'unknown' first before "
-        "a repair, and how many repairs it tried in vain. Without --policy all "
-        "policies run on the same draws, side by side.")
+        "a repair, and how many repairs it tried in vain. Without --policy the planner and the "
+        "three chart policies run on the same draws, side by side; --policy reference runs "
+        "the planner's slower reference version, which must give the planner's figures.")
     p.add_argument("pack", metavar="PACK", help="pack id or folder")
     p.add_argument("--runs", type=int, default=500, metavar="N", help="simulated calls (500)")
     p.add_argument("--seed", type=int, default=1, metavar="S", help="random seed (1)")
@@ -28,8 +30,9 @@ def register(sub: Any) -> None:
     p.add_argument("--unknown-rate", type=float, default=0.0, metavar="R",
                    help="share of calls whose cause is outside the pack, from 0 up to 1 (0); "
                    "the other figures stay over the known-cause calls")
-    p.add_argument("--policy", choices=POLICIES, default=None,
-                   help="one policy only (listing: the pack's order, for reference)")
+    p.add_argument("--policy", choices=CHOICES, action="append", default=None,
+                   help="run this policy (repeatable; listing: the pack's order, for "
+                   "reference; reference: the planner's reference version)")
     p.add_argument("--max-faults", type=int, choices=(1, 2), default=1,
                    help="hypotheses of the planner: one cause (default) or up to two")
     p.add_argument("--json", action="store_true", help="one JSON object instead of a table")
@@ -41,7 +44,7 @@ def _simulate(args: argparse.Namespace) -> int:
     from diagnose.reasoning.simulate import simulate
 
     model = load(args, args.pack)
-    policies = (args.policy,) if args.policy else POLICIES
+    policies = tuple(dict.fromkeys(args.policy)) if args.policy else POLICIES
     report = simulate(model, runs=args.runs, seed=args.seed, noise=args.noise,
                       policies=policies, max_faults=args.max_faults,
                       unknown_rate=args.unknown_rate)

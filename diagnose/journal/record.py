@@ -28,6 +28,7 @@ from diagnose.events import (
     STEP_KINDS,
     Acknowledged,
     Answered,
+    Attached,
     ComplaintReported,
     Ended,
     Event,
@@ -69,6 +70,8 @@ class Step:
     cured: bool | None = None
     minutes: float | None = None  # the pack's estimate
     ranking: tuple[Mapping[str, Any], ...] = ()  # after this step: cause, title, p
+    assumed: tuple[str, ...] = ()  # nameplate values a reading used that were not read
+    parts: tuple[Mapping[str, Any], ...] = ()  # of a repair: the parts fitted
 
     def to_dict(self) -> dict[str, Any]:
         return {"n": self.n, "kind": self.kind, "time": self.time, "id": self.id,
@@ -77,7 +80,8 @@ class Step:
                 "summary": self.summary, "figures": [dict(f) for f in self.figures],
                 "weights": dict(self.weights) if len(self.weights) > 1 else {},
                 "cured": self.cured, "minutes": self.minutes,
-                "ranking": [dict(r) for r in self.ranking]}
+                "ranking": [dict(r) for r in self.ranking], "assumed": list(self.assumed),
+                "parts": [dict(p) for p in self.parts]}
 
 
 @dataclass(frozen=True)
@@ -94,10 +98,13 @@ class Record:
     steps: tuple[Step, ...] = ()
     cautions: tuple[Mapping[str, Any], ...] = ()
     notes: tuple[Mapping[str, Any], ...] = ()
+    attachments: tuple[Mapping[str, Any], ...] = ()  # sha256, name, caption, media_type, ...
     initial_ranking: tuple[Mapping[str, Any], ...] = ()
     final_ranking: tuple[Mapping[str, Any], ...] = ()
     result: str | None = None  # of the end: resolved, visit, escalated, abandoned
     cause: Mapping[str, str] | None = None  # confirmed by a cure
+    finding: Mapping[str, str] | None = None  # id, title, by: "technician" or "cure"
+    covers: tuple[Mapping[str, str], ...] = ()  # the causes the repair that cured fixes
     end: Mapping[str, Any] | None = None
     started: str = ""
     ended: str = ""
@@ -129,9 +136,12 @@ class Record:
             "cautions": [dict(c) for c in self.cautions],
             "repairs": [s.to_dict() for s in self.repairs],
             "notes": [dict(n) for n in self.notes],
+            "attachments": [dict(a) for a in self.attachments],
             "initial_ranking": [dict(r) for r in self.initial_ranking],
             "final_ranking": [dict(r) for r in self.final_ranking],
             "result": self.result, "cause": dict(self.cause) if self.cause else None,
+            "finding": dict(self.finding) if self.finding else None,
+            "covers": [dict(c) for c in self.covers],
             "end": dict(self.end) if self.end else None,
             "started": self.started, "ended": self.ended,
             "clock_minutes": self.clock_minutes, "minutes_to_cure": self.minutes_to_cure,
@@ -240,14 +250,42 @@ def build_record(info: Any, events: Sequence[Event], model: Any = None,
         complaints=tuple({"id": c, "title": _title(fold.tables.complaints, c)}
                          for c in ev.complaints),
         mode=ev.mode, steps=tuple(steps), cautions=tuple(fold.cautions), notes=tuple(fold.notes),
+        attachments=tuple(fold.attachments),
         initial_ranking=fold.initial, final_ranking=final or fold.initial, result=result or None,
         cause={"id": cause_id, "title": _cause_title(model, cause_id)} if cause_id else None,
+        finding=_finding(end, cause_id, model), covers=_covers(cure, model),
         end=end, started=started_at, ended=ended,
         clock_minutes=minutes_between(started_at, ended),
         minutes_to_cure=minutes_between(started_at, cure.time) if cure else None,
         work_minutes=sum(float(s.minutes or 0) for s in steps
                          if s.kind not in ("skip", "skip_repair")),
         events=len(events), undone=undone, recomputed=recomputed)
+
+
+def _finding(end: Mapping[str, Any] | None, cause_id: str | None,
+             model: Any) -> dict[str, str] | None:
+    """The cause found: the one the technician confirmed at the end, else the one a cure did.
+
+    >>> _finding({"finding": "unknown"}, "coil_open", None)
+    {'id': 'unknown', 'title': 'None of the known causes', 'by': 'technician'}
+    >>> _finding({}, "coil_open", None), _finding(None, None, None)
+    ({'id': 'coil_open', 'title': 'coil_open', 'by': 'cure'}, None)
+    """
+    named = (end or {}).get("finding")
+    if named:
+        return {"id": str(named), "title": _cause_title(model, str(named)), "by": "technician"}
+    if cause_id:
+        return {"id": cause_id, "title": _cause_title(model, cause_id), "by": "cure"}
+    return None
+
+
+def _covers(cure: Step | None, model: Any) -> tuple[dict[str, str], ...]:
+    """The causes the repair that cured fixes, by the model (none without a cure or a model)."""
+    if cure is None:
+        return ()
+    repair = (getattr(model, "repairs", None) or {}).get(cure.id)
+    return tuple({"id": str(c), "title": _cause_title(model, str(c))}
+                 for c in getattr(repair, "fixes", ()))
 
 
 def _rankings(events: list[Any], model: Any, rankings: Sequence[Any] | None,
@@ -304,6 +342,7 @@ class _Fold:
     steps: list[Step] = field(default_factory=list)
     cautions: list[dict[str, Any]] = field(default_factory=list)
     notes: list[dict[str, Any]] = field(default_factory=list)
+    attachments: list[dict[str, Any]] = field(default_factory=list)
     initial: tuple[dict[str, Any], ...] = ()
 
     def add(self, event: Event, ranking: tuple[dict[str, Any], ...]) -> None:
@@ -314,16 +353,19 @@ class _Fold:
         match event:
             case Started(text=text):
                 self.notice = text
-            case NameplateRead(param=pid, value=value, text=typed):
+            case NameplateRead(param=pid, value=value, text=typed, assumed=assumed):
                 p = self.tables.parameters.get(pid)
                 self.nameplate[pid] = {"id": pid, "prompt": getattr(p, "prompt", pid),
-                                       "value": value, "typed": typed}
+                                       "value": value, "typed": "" if assumed else typed,
+                                       "assumed": assumed}
             case ComplaintReported():
                 self.initial = ranking or self.initial
             case Acknowledged():
                 self.cautions.append(self._caution(event))
             case Noted(text=text):
                 self.notes.append({"time": event.time, "who": self.who, "text": text})
+            case Attached():
+                self.attachments.append({**event.data, "time": event.time, "who": self.who})
             case Answered() | ReadingTaken() | LeftUnsure() | Skipped():
                 self.steps.append(self._check_step(event, ranking))
             case Repaired() | RepairSkipped():
@@ -332,9 +374,15 @@ class _Fold:
     def _caution(self, event: Acknowledged) -> dict[str, Any]:
         """A caution acknowledged, with its level and text."""
         c = self.tables.cautions.get(event.caution)
+        item = event.item or None  # the card it was for (not in older journals)
         return {"id": event.caution, "time": event.time, "who": self.who,
                 "level": str(getattr(c, "level", "")), "text": str(getattr(c, "text", "")),
-                "item": event.item or None}  # the card it was for (not in older journals)
+                "item": item, "item_title": self._item_title(item) if item else None}
+
+    def _item_title(self, item: str) -> str:
+        """The title of the check or repair ``item`` (its id without the model)."""
+        table = self.tables.checks if item in self.tables.checks else self.tables.repairs
+        return _title(table, item)
 
     def _check_step(self, event: Answered | ReadingTaken | LeftUnsure | Skipped,
                     ranking: tuple[dict[str, Any], ...]) -> Step:
@@ -356,6 +404,7 @@ class _Fold:
                            "unit": str(f.get("unit", ""))}
                           for k, f in reading.figures.items()) if reading else (),
             weights=dict(reading.weights) if reading else {},
+            assumed=reading.assumed if reading else (),
             minutes=None if isinstance(event, Skipped) else getattr(check, "minutes", None),
             ranking=ranking)
 
@@ -370,7 +419,8 @@ class _Fold:
                         outcome="set aside: cannot be done now", minutes=None, ranking=ranking)
         return Step(n=n, kind=event.kind, time=event.time, id=rid, title=title, who=self.who,
                     cured=event.cured, outcome="cured" if event.cured else "not cured",
-                    minutes=getattr(repairs.get(rid), "minutes", None), ranking=ranking)
+                    minutes=getattr(repairs.get(rid), "minutes", None), ranking=ranking,
+                    parts=event.parts)
 
 
 def confirmed_cause(result: str | None, end: Mapping[str, Any] | None, steps: Iterable[Step],

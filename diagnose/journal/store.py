@@ -57,7 +57,9 @@ from diagnose.events import EVENT_KEYS, FORMAT, Event, EventError, Row, decode, 
 from diagnose.paths import APPLICATION_ID
 from diagnose.text import storable
 
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
+#: The identity keys kept as columns of a session, to find the past jobs on a unit.
+UNIT_FIELDS = ("site", "machine", "axis", "serial")
 HEADER = b"SQLite format 3\x00"
 BUSY_TIMEOUT_MS = 5000
 _RETRIES = 4  # on top of busy_timeout: a writer waits up to about 20 s in all
@@ -101,6 +103,17 @@ _MIGRATIONS: tuple[tuple[str, ...], ...] = (
     (  # 2: the version of each event's data, for the codec of diagnose.events
         "ALTER TABLE event ADD COLUMN format INTEGER NOT NULL DEFAULT 1",
     ),
+    (  # 3: the unit of a session as searchable fields (filled from its identity events)
+        "ALTER TABLE session ADD COLUMN site TEXT",
+        "ALTER TABLE session ADD COLUMN machine TEXT",
+        "ALTER TABLE session ADD COLUMN axis TEXT",
+        "ALTER TABLE session ADD COLUMN serial TEXT",
+        "CREATE INDEX session_by_serial ON session (serial)",
+        "CREATE INDEX session_by_site ON session (site, machine)",
+        # where an imported session came from (diagnose.journal.transfer), to import it once
+        "ALTER TABLE session ADD COLUMN origin TEXT",
+        "CREATE INDEX session_by_origin ON session (origin)",
+    ),
 )
 
 
@@ -122,6 +135,16 @@ class SessionInfo:
     learned: str | None = None
     events: int = 0
     last_kind: str | None = None
+    site: str | None = None
+    machine: str | None = None
+    axis: str | None = None
+    serial: str | None = None
+    origin: str | None = None  # of an imported session: its key in the journal it came from
+
+    @property
+    def unit(self) -> dict[str, str]:
+        """The unit's identity fields that are known (site, machine, axis, serial)."""
+        return {k: str(getattr(self, k)) for k in UNIT_FIELDS if getattr(self, k)}
 
     @property
     def is_open(self) -> bool:
@@ -414,6 +437,8 @@ class Journal:
             for step in _MIGRATIONS[current:SCHEMA_VERSION]:
                 for statement in step:
                     conn.execute(statement)
+            if 0 < current < 3:
+                _fill_unit_fields(conn)
             conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
             conn.execute(f"PRAGMA user_version = {SCHEMA_VERSION}")
 
@@ -468,22 +493,32 @@ class Journal:
 
     def new_session(self, pack_id: str, pack_version: str, content_hash: str, mode: str,
                     who: str | None = None, *, started: str | None = None,
-                    learned: str | None = None) -> str:
+                    learned: str | None = None, wanted: str | None = None,
+                    origin: str | None = None) -> str:
         """Record a new open session; return its id, the date and a counter: ``250114-3``.
 
         ``learned`` says which learned priors the session ranks with (None: the pack's own).
+        ``wanted``: the id to use if it is free (an imported session keeps its id when it
+        can); ``origin``: where an imported session came from.
         """
         when = started or now()
         day = when[2:10].replace("-", "")
         with self._transaction() as conn:
-            rows = conn.execute("SELECT id FROM session WHERE id LIKE ?", (f"{day}-%",)).fetchall()
-            taken = [int(r[0].split("-", 1)[1]) for r in rows if r[0].split("-", 1)[1].isdigit()]
-            sid = f"{day}-{max(taken, default=0) + 1}"
+            free = wanted and conn.execute("SELECT 1 FROM session WHERE id = ?",
+                                           (wanted,)).fetchone() is None
+            if free:
+                sid = str(wanted)
+            else:
+                rows = conn.execute("SELECT id FROM session WHERE id LIKE ?",
+                                    (f"{day}-%",)).fetchall()
+                taken = [int(r[0].split("-", 1)[1]) for r in rows
+                         if r[0].split("-", 1)[1].isdigit()]
+                sid = f"{day}-{max(taken, default=0) + 1}"
             conn.execute(
                 "INSERT INTO session (id, pack_id, pack_version, content_hash, mode, who, "
-                "started, updated, learned) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                "started, updated, learned, origin) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
                 (sid, pack_id, pack_version, content_hash, mode,
-                 None if who is None else storable(who), when, when, learned))
+                 None if who is None else storable(who), when, when, learned, origin))
         return sid
 
     def write(self, session_id: str, event: Any, *, ranking: Any = None) -> int:
@@ -515,6 +550,11 @@ class Journal:
             conn.execute("INSERT INTO event (session_id, seq, kind, time, data, ranking, format) "
                          "VALUES (?, ?, ?, ?, ?, ?, ?)",
                          (session_id, seq, kind, when, payload, ranked, fmt))
+            unit = {k: str(data[k]).strip() for k in UNIT_FIELDS
+                    if kind == "identity" and str(data.get(k) or "").strip()}
+            if unit:
+                conn.execute(f"UPDATE session SET {', '.join(f'{k} = ?' for k in unit)} "
+                             "WHERE id = ?", (*unit.values(), session_id))
             if kind == "end":
                 outcome, cause = _end_fields(data)
                 conn.execute("UPDATE session SET updated = ?, status = 'closed', outcome = ?, "
@@ -552,10 +592,7 @@ class Journal:
     @property
     def _format(self) -> str:
         """The column of the events' format (a journal of schema 1, read only: all format 1)."""
-        if not hasattr(self, "_format_column"):
-            columns = {r[1] for r in self._read("PRAGMA table_info(event)")}
-            self._format_column = "format" if "format" in columns else "1"
-        return self._format_column
+        return "format" if "format" in self._columns("event") else "1"
 
     def load_rankings(self, session_id: str) -> list[list[dict[str, Any]] | None]:
         """The ranking kept beside each event (None where none was), in event order.
@@ -621,8 +658,14 @@ class Journal:
             raise JournalError(f"no session {session_id} in the journal {self.path}{hint}")
         return found[0]
 
-    def sessions(self, status: str | None = None, pack_id: str | None = None) -> list[SessionInfo]:
-        """Sessions, newest first; ``status`` is ``open``, ``closed`` or None for all."""
+    def sessions(self, status: str | None = None, pack_id: str | None = None,
+                 **unit: str | None) -> list[SessionInfo]:
+        """Sessions, newest first; ``status`` is ``open``, ``closed`` or None for all.
+
+        ``unit`` filters by the unit: ``serial`` (the same, ignoring case and
+        spaces at the ends), ``site``, ``machine``, ``axis`` (containing the
+        words, ignoring case), and ``since`` (started on or after an ISO date).
+        """
         if status is not None and status not in STATUSES:
             raise ValueError(f"status must be one of {STATUSES}, not {status!r}")
         where, params = [], []
@@ -632,17 +675,37 @@ class Journal:
         if pack_id:
             where.append("s.pack_id = ?")
             params.append(pack_id)
+        for key, value in unit.items():
+            if value is None or not str(value).strip():
+                continue
+            if key not in (*UNIT_FIELDS, "since"):
+                raise ValueError(f"no filter {key!r}")
+            if key != "since" and key not in self._columns("session"):
+                return []  # a journal from before these fields: nothing to match
+            where.append({"serial": "lower(trim(s.serial)) = lower(trim(?))",
+                          "since": "substr(s.started, 1, 10) >= ?"}.get(
+                key, f"instr(lower(s.{key}), lower(trim(?))) > 0"))
+            params.append(str(value))
         clause = f"WHERE {' AND '.join(where)}" if where else ""
         return self._sessions(clause, tuple(params))
 
     def _sessions(self, clause: str, params: tuple[Any, ...]) -> list[SessionInfo]:
+        have = self._columns("session")
+        unit = ", ".join(f"s.{k}" if k in have else "NULL" for k in (*UNIT_FIELDS, "origin"))
         rows = self._read(
             "SELECT s.id, s.pack_id, s.pack_version, s.content_hash, s.mode, s.who, s.started, "
             "s.updated, s.status, s.outcome, s.cause, s.learned, "
             "(SELECT count(*) FROM event e WHERE e.session_id = s.id), "
-            "(SELECT kind FROM event e WHERE e.session_id = s.id ORDER BY seq DESC LIMIT 1) "
-            f"FROM session s {clause} ORDER BY s.started DESC, s.rowid DESC", params)
+            "(SELECT kind FROM event e WHERE e.session_id = s.id ORDER BY seq DESC LIMIT 1), "
+            f"{unit} FROM session s {clause} ORDER BY s.started DESC, s.rowid DESC", params)
         return [SessionInfo(*r) for r in rows]
+
+    def _columns(self, table: str) -> frozenset[str]:
+        """The columns of ``table`` (a journal of an older schema, read only, has fewer)."""
+        cache = self.__dict__.setdefault("_column_cache", {})
+        if table not in cache:
+            cache[table] = frozenset(r[1] for r in self._read(f"PRAGMA table_info({table})"))
+        return cache[table]
 
     def integrity(self) -> list[str]:
         """What ``PRAGMA integrity_check`` finds (``["ok"]`` for a sound journal; up to 5 lines).
@@ -747,6 +810,22 @@ def _suspect_rows() -> str:
 
 
 _SUSPECT = _suspect_rows()
+
+
+def _fill_unit_fields(conn: sqlite3.Connection) -> None:
+    """Fill a migrated journal's unit fields from the identity events already recorded."""
+    rows = conn.execute("SELECT session_id, data FROM event WHERE kind = 'identity' "
+                        "ORDER BY session_id, seq").fetchall()
+    for sid, text in rows:
+        try:
+            data = json.loads(text)
+        except (TypeError, ValueError):
+            continue  # a damaged row is named when it is read, not here
+        unit = {k: str(data[k]).strip() for k in UNIT_FIELDS
+                if isinstance(data, dict) and str(data.get(k) or "").strip()}
+        if unit:
+            conn.execute(f"UPDATE session SET {', '.join(f'{k} = ?' for k in unit)} "
+                         "WHERE id = ?", (*unit.values(), sid))
 
 
 def _end_fields(data: Mapping[str, Any]) -> tuple[str | None, str | None]:

@@ -107,6 +107,9 @@ def _schema_problems(doc: Document, is_manifest: bool, ctx: _Ctx) -> set[Path]:
         if err.validator == "additionalProperties" and isinstance(err.instance, dict):
             extra = [k for k in err.instance if k not in err.schema.get("properties", {})]
             at = path + (extra[0],) if extra else path
+        if path[:1] == ("repairs",) and path[-1:] == ("parts",) and isinstance(err.instance, str):
+            ctx.error(_parts_text_message(doc, path, err.instance), doc.where(path), "parts-text")
+            continue
         ctx.error(_schema_message(err, path), doc.where(at), "schema")
     if not is_manifest:
         for key in ("pack", "builds_on", "version"):
@@ -132,6 +135,20 @@ def _schema_message(err: Any, path: Path) -> str:
         return (f"{where}: a step is {{check, answer}}, {{check, skip}}, {{repair, cured}} "
                 "or {repair, skip}")
     return f"{where}: {err.message}"
+
+
+def _parts_text_message(doc: Document, path: Path, text: str) -> str:
+    """The fix for ``parts`` written as one text (``parts: "fuse, relay"``): a list."""
+    import re
+
+    entry = doc.data.get("repairs")[path[1]] if len(path) == 3 else None
+    name = f"repair {entry['id']!r}" if isinstance(entry, dict) and isinstance(
+        entry.get("id"), str) else _describe_path(path[:2])
+    items = [f"`- {_clip(x.strip())}`" for x in re.split(r"[,;]", text)[:3] if x.strip()]
+    shown = " and ".join(items) or "`- <part>`"
+    return (f"{name}: `parts` is one text ({text!r}), not a list of parts; write it as a YAML "
+            f"list, one whole part per item: `parts:` with {shown} below it, each on a line of "
+            "its own (a condition goes in parentheses after its part)")
 
 
 def _describe_path(path: Path) -> str:
@@ -691,6 +708,7 @@ def _repair(it: _Item, ctx: _Ctx) -> Repair:
         ctx.ref(confirm, ("checks",), it.at("confirm"), f"repair {it.id!r} confirm")
     for j, c in enumerate(_list(d.get("observes"))):
         ctx.ref(c, ("checks",), it.at("observes", j), f"repair {it.id!r} observes")
+    _parts_checks(it, ctx)
     return Repair(
         id=it.id, title=str(d.get("title", it.id)), minutes=_num(d.get("minutes"), 1.0),
         fixes=_list(d.get("fixes")), parts=tuple(str(p) for p in _list(d.get("parts"))),
@@ -702,6 +720,122 @@ def _repair(it: _Item, ctx: _Ctx) -> Repair:
         hazards=_hazard_refs(it, ctx), hazards_declared="hazards" in d,
         hazards_note=str(d.get("hazards_note", "") or ""),
     )
+
+
+# ---------------------------------------------------------------------------------------------
+# parts: one whole part per item
+
+#: Words that start the tail of a phrase, never the name of a part: an item of ``parts``
+#: that starts with one is what is left of a name that YAML split at its comma
+#: (``[friction disc, if the faces are pitted]``).
+_TAIL_WORDS = frozenset((
+    "if", "or", "and", "where", "when", "whenever", "with", "without", "its", "their", "rated",
+    "as", "for", "unless", "including", "except", "otherwise", "else", "then", "which", "that",
+    "whose", "of", "to", "in", "at", "by", "from", "but", "plus", "per", "such", "than", "e.g.",
+    "i.e.", "etc", "etc.",
+))
+#: Words that join a phrase: in a bracketed list of several items, an item holding one may be
+#: half of a name that held a comma (``[varistor, diode with Zener or RC part as ...]``).
+_JOINING_WORDS = frozenset(("if", "or", "and", "where", "when", "with", "its", "rated", "as",
+                            "for", "unless", "including"))
+#: Words that qualify a part without naming one (``optional``, ``same size``).
+_QUALIFIER_WORDS = frozenset((
+    "optional", "optionally", "spare", "spares", "new", "required", "needed", "necessary",
+    "applicable", "fitted", "damaged", "worn", "possible", "available", "similar", "equivalent",
+    "matching", "same", "type", "size", "rating", "suit", "approved", "original", "specified",
+    "the", "a", "an", "any", "one", "each", "both", "all", "also", "only", "so", "on", "x",
+    "pcs", "pc", "off", "qty",
+))
+
+
+def _parts_checks(it: _Item, ctx: _Ctx) -> None:
+    """An error at each item of a repair's ``parts`` that is not one whole part.
+
+    An item that starts with a connecting word (``if the faces are pitted``) or
+    is only a qualifier (``optional``) is the tail of a name split at its comma;
+    in a bracketed list of several items, an item that holds such a word may be
+    half of one, because the brackets split at every comma. Block lists of whole
+    items are the rule (DEVELOPERS.md, "repairs").
+    """
+    parts = it.data.get("parts")
+    if not isinstance(parts, list):
+        return  # a text instead of a list is the schema's finding (`parts-text`)
+    flow = _flow_list(it, len(parts))
+    flawed = False
+    for j, part in enumerate(parts):
+        why = _part_flaw(part) if isinstance(part, str) else ""
+        if not why:
+            continue
+        flawed = True
+        before = parts[j - 1] if j and isinstance(parts[j - 1], str) else ""
+        whole = "`- " + _clip(f"{before or '<the part>'} ({part.strip(' ()')})", 90) + "`"
+        if flow:
+            split = f"the brackets split `{_clip(before)}, {_clip(part)}` at its comma. " \
+                if before else ""
+            fix = (f"{split}Write one whole part per item, a condition in parentheses: {whole} "
+                   "in a block list (one `- item` per line), or quote the whole name")
+        else:
+            fix = f"put it with the part it belongs to, in parentheses: {whole}"
+        ctx.error(f"repair {it.id!r}: parts item {part!r} is not a part ({why}); {fix}",
+                  it.at("parts", j), "parts-split")
+    if flawed or not flow or len(parts) < 2:
+        return
+    for j, part in enumerate(parts):
+        word = _joining_word(part) if isinstance(part, str) else ""
+        if word:
+            ctx.error(f"repair {it.id!r}: parts written in brackets split at every comma, and "
+                      f"item {part!r} reads as part of a longer name (it holds {word!r}). "
+                      "Write `parts` as a block list, one whole part per line "
+                      f"(`- {_clip(part)}`), a condition or alternative in parentheses",
+                      it.at("parts", j), "parts-split")
+            return
+
+
+def _clip(text: str, limit: int = 60) -> str:
+    return text if len(text) <= limit else f"{text[:limit - 3]}..."
+
+
+def _flow_list(it: _Item, n: int) -> bool:
+    """True when the ``n`` items of ``parts`` were written in brackets (``[a, b]``).
+
+    Told from the positions the loader keeps: the first item on the line of the
+    key, or two items on one line, is a flow list; a block list has each item on
+    a line of its own below the key.
+    """
+    key = it.at("parts")
+    lines = [it.at("parts", j).line for j in range(n)]
+    if not n or key.line is None or None in lines:
+        return False
+    return lines[0] == key.line or len(set(lines)) < n
+
+
+def _part_flaw(part: str) -> str:
+    """Why ``part`` is not one whole part ("" when it is).
+
+    >>> _part_flaw("if the faces are pitted")
+    "it starts with 'if', as the tail of a phrase does"
+    >>> _part_flaw("friction disc (if the faces are pitted)")
+    ''
+    """
+    import re
+
+    text = part.strip()
+    if not text:
+        return "it is empty"
+    first = text.split()[0].rstrip(",;:")
+    if first in _TAIL_WORDS:
+        return f"it starts with {first!r}, as the tail of a phrase does"
+    words = [w.lower() for w in re.findall(r"[^\W\d_][\w'.-]*", text)]
+    if (text.startswith("(") and text.endswith(")")) or (words and all(
+            w.rstrip(".") in _QUALIFIER_WORDS or w in _TAIL_WORDS for w in words)):
+        return "it is only a qualifier"
+    return ""
+
+
+def _joining_word(part: str) -> str:
+    """The first word of ``part`` that joins a phrase (see ``_JOINING_WORDS``), or ""."""
+    words = (w.strip(",;:()") for w in part.lower().split())
+    return next((w for w in words if w in _JOINING_WORDS), "")
 
 
 def _case(it: _Item, ctx: _Ctx, checks: Mapping[str, Check],
@@ -855,6 +989,27 @@ def _same_quantity(checks: Mapping[str, Check], ctx: _Ctx) -> None:
                  f"{m.evaluator!r}{where}: one reading would count twice; let one `replaces` "
                  "the other, or give the other's causes with `extend_checks`",
                  chk.source, "same-quantity")
+
+
+def _same_caller(ctx: _Ctx) -> None:
+    """Warn when two complaints of the composed pack give a caller the same line to pick.
+
+    Wordings are compared without case, spacing or trailing punctuation: in
+    phone mode the menu would show the same line twice.
+    """
+    seen: dict[str, _Item] = {}
+    for comp in ctx.items["complaints"].values():
+        wording = comp.data.get("caller")
+        key = " ".join(wording.casefold().split()).rstrip(" .,;:!?…") \
+            if isinstance(wording, str) else ""
+        if not key:
+            continue
+        first = seen.setdefault(key, comp)
+        if first is not comp:
+            ctx.warn(f"complaints {first.id!r} and {comp.id!r} have the same caller wording "
+                     f"{wording!r} (the first at {first.at('caller')}): in phone mode the menu "
+                     "shows the same line twice; reword one so that a caller can tell them "
+                     "apart", comp.at("caller"), "same-caller")
 
 
 def _exclusive(a: Check, b: Check) -> bool:
@@ -1113,6 +1268,7 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
     if moved:
         checks, repairs = _redirect(checks, repairs, moved)
     _same_quantity(checks, ctx)
+    _same_caller(ctx)
     # Cases of the base packs run too: a device pack must not break what its base knew.
     cases = {i: _case(x, ctx, checks, moved) for i, x in it["tests"].items()}
 

@@ -30,7 +30,6 @@ import json
 import os
 import re
 import stat
-import sys
 import time
 from collections.abc import Iterator
 from dataclasses import dataclass, field
@@ -128,18 +127,17 @@ def manifest_id_line(text: str) -> str | None:
 def cache_dir(env: dict[str, str] | None = None) -> Path | None:
     """The user's cache folder for diagnose, or None when there is no home to put it in.
 
+    The folder is :func:`diagnose.paths.cache_dir` (platformdirs):
+    ``$XDG_CACHE_HOME/diagnose`` or ``~/.cache/diagnose`` on Linux.
+
     References:
         XDG Base Directory Specification 0.8, ``$XDG_CACHE_HOME`` (default
         ``~/.cache``; a relative value is ignored).
     """
-    env = dict(os.environ) if env is None else env
-    xdg = env.get("XDG_CACHE_HOME", "")
-    if xdg and os.path.isabs(xdg):
-        return Path(xdg) / "diagnose"
-    if sys.platform == "win32" and env.get("LOCALAPPDATA"):
-        return Path(env["LOCALAPPDATA"]) / "diagnose" / "cache"
+    from diagnose.paths import cache_dir as user_cache
+
     try:
-        return Path.home() / ".cache" / "diagnose"
+        return user_cache(env)
     except (RuntimeError, KeyError, OSError):
         return None
 

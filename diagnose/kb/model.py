@@ -240,6 +240,7 @@ class Step:
     cured: bool | None = None
     skip: bool = False
     source: Source | None = None
+    parts: tuple[Any, ...] = ()  # of a repair: the parts fitted (names or {part, qty, number})
 
 
 @dataclass(frozen=True)

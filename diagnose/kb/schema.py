@@ -166,7 +166,9 @@ REPAIR = {
         "id": ID,
         "title": TEXT,
         "minutes": MINUTES,
-        "parts": {"type": "array", "items": TEXT},
+        "parts": {"type": "array", "items": TEXT,
+                  "description": "a YAML block list, one whole part per item, a condition in "
+                                 "parentheses: `- friction disc (if the faces are pitted)`"},
         "fixes": {**IDS, "minItems": 1},
         "success": {**PROB, "description": "P(cured | a cause it fixes is present)"},
         "cautions": IDS,

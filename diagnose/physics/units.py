@@ -466,3 +466,98 @@ def above(value: float, limit: float) -> bool:
 def below(value: float, limit: float) -> bool:
     """``value < limit`` by more than conversion rounding."""
     return above(limit, value)
+
+
+# --- the technician's preferred unit -------------------------------------------------------------
+
+#: The unit systems a technician may prefer (the settings file's ``units``).
+PREFERENCES = ("metric", "inch")
+#: The unit a bare length is taken in under each preference (None: the pack's own unit).
+_BARE_UNIT = {"metric": None, "inch": "in"}
+#: The largest pack unit of length that the preference applies to: feeler gauges, dial
+#: indicators and calipers (mm, µm); a length in metres (a cable run) stays as it is.
+_SMALL_LENGTH_MM = 25.4
+_SEPARATORS = re.compile(r"([\s,;]+)")
+
+
+def preferred_reading(text: Any, pack_unit: str, units: str) -> Any:
+    """``text`` with the preferred unit written on each bare number, for a reading in ``pack_unit``.
+
+    With ``units == "inch"`` and ``pack_unit`` a small metric length (mm, µm;
+    the air gap, a runout, a wear), each number typed without a unit gets
+    ``in``: the technician measured in inches. A number with its unit
+    ("0.46 mm"), numbers followed by a unit standing alone ("0.46 0.48 mm",
+    which the session reads as all in mm), an open reading ("OL") and words
+    ("unsure", an outcome) stay as typed. ``text`` may be one reading, several
+    separated by spaces, commas or semicolons, a number, or a list of them.
+    Anything else, and every reading under the metric preference, is given
+    back unchanged.
+
+    >>> preferred_reading("0.018 0.019 0.017", "mm", "inch")
+    '0.018 in 0.019 in 0.017 in'
+    >>> preferred_reading("0.46 mm", "mm", "inch"), preferred_reading("0.018", "mm", "metric")
+    ('0.46 mm', '0.018')
+    >>> preferred_reading([0.018, "0.019"], "mm", "inch"), preferred_reading("24", "V", "inch")
+    (['0.018 in', '0.019 in'], '24')
+    """
+    unit = bare_unit(pack_unit, units)
+    if unit == pack_unit or isinstance(text, bool):
+        return text
+    if isinstance(text, (int, float)):
+        return _with_unit(text, unit)
+    if isinstance(text, (list, tuple)):
+        marked = _bare_numbers(list(text))
+        return type(text)(_with_unit(x, unit) if i in marked else x for i, x in enumerate(text))
+    if not isinstance(text, str) or len(text) > 20 * MAX_TEXT:
+        return text  # not a reading, or too long: the session says why
+    pieces = _SEPARATORS.split(text)  # readings at even places, separators between
+    marked = {2 * i for i in _bare_numbers(pieces[::2])}
+    return "".join(_with_unit(p, unit) if i in marked else p for i, p in enumerate(pieces))
+
+
+def bare_unit(pack_unit: str, units: str) -> str:
+    """The unit a bare number is taken in, for a reading in ``pack_unit`` under ``units``.
+
+    >>> bare_unit("mm", "inch"), bare_unit("mm", "metric"), bare_unit("ohm", "inch")
+    ('in', 'mm', 'ohm')
+    """
+    preferred = _BARE_UNIT.get(units)
+    return preferred if preferred is not None and _small_length(pack_unit) else pack_unit
+
+
+def _small_length(pack_unit: str) -> bool:
+    """Whether ``pack_unit`` is a metric length of at most an inch (mm, µm, cm)."""
+    if not isinstance(pack_unit, str) or not fits(pack_unit, "mm"):
+        return False
+    metric = str(_units(pack_unit)).endswith("meter")  # not in, thou: those are inches already
+    return metric and convert(1.0, pack_unit, "mm") <= _SMALL_LENGTH_MM * (1 + ROUNDING)
+
+
+def _bare_numbers(items: list[Any]) -> set[int]:
+    """Positions of the numbers typed without a unit that no later unit standing alone claims.
+
+    A unit standing alone applies to the bare numbers since the previous one
+    (as :func:`diagnose.physics.inputs.split_readings` reads them).
+    """
+    pending: list[int] = []
+    for i, item in enumerate(items):
+        if isinstance(item, str) and is_unit(item):
+            pending = []
+        elif _is_bare_number(item):
+            pending.append(i)
+    return set(pending)
+
+
+def _is_bare_number(item: Any) -> bool:
+    if isinstance(item, bool):
+        return False
+    if isinstance(item, (int, float)):
+        return math.isfinite(item)
+    if not isinstance(item, str) or not item or len(item) > MAX_TEXT:
+        return False
+    match = _NUMBER.match(item)
+    return match is not None and not match.group(2)
+
+
+def _with_unit(value: Any, unit: str) -> str:
+    return f"{str(value).strip()} {unit}"

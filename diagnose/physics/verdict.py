@@ -35,17 +35,64 @@ def unit_text(text: str) -> str:
             .replace("degC", "°C").replace("degF", "°F"))
 
 
-def quantity_text(value: float, unit: str = "") -> str:
+def quantity_text(value: float, unit: str = "", units: str = "metric") -> str:
     """A number and its unit for a sentence: ``quantity_text(31.06, "ohm") == "31.06 ohm"``.
 
-    >>> quantity_text(0.5, "mm**2"), quantity_text(12, "%")
-    ('0.5 mm²', '12%')
+    ``units`` is the technician's preference (``"metric"`` or ``"inch"``); under
+    ``"inch"`` a small length is shown in inches with millimetres beside it
+    (:func:`preferred_figure`). Metric text is the same as without it.
+
+    >>> quantity_text(0.5, "mm**2"), quantity_text(12, "%"), quantity_text(0.4572, "mm", "inch")
+    ('0.5 mm²', '12%', '0.018 in (0.46 mm)')
     """
+    beside = ""
+    if units != "metric":
+        value, unit, beside = preferred_figure(value, unit, units)
     number = format_number(value)
     if not unit:
         return number
     shown = unit_text(unit)
-    return f"{number}{shown}" if shown in ("%", "°") else f"{number} {shown}"
+    text = f"{number}{shown}" if shown in ("%", "°") else f"{number} {shown}"
+    return f"{text} ({beside})" if beside else text
+
+
+#: The largest unit of length, in mm, whose figures are shown in inches under the inch
+#: preference: mm, µm, in, thou (gaps, runouts, wear); a cable run in metres stays in metres.
+SMALL_LENGTH_MM = 25.4
+
+
+def preferred_figure(value: float, unit: str, units: str = "metric") -> tuple[float, str, str]:
+    """``(value, unit, beside)``: a figure in the preferred unit, and its metric text beside it.
+
+    Under ``"inch"`` a length in a unit of at most an inch (mm, µm, in, thou)
+    is given in inches, with the millimetres beside it ("0.46 mm": to a hundredth
+    of a millimetre, two significant digits below 0.1 mm); everything else,
+    and everything under ``"metric"``, comes back as it was with ``beside`` "".
+
+    References:
+        NIST SP 811 (2008), appendix B: 1 in = 25.4 mm exactly.
+
+    >>> preferred_figure(0.4572, "mm", "inch")
+    (0.018, 'in', '0.46 mm')
+    >>> preferred_figure(0.4572, "mm"), preferred_figure(24.0, "V", "inch")
+    ((0.4572, 'mm', ''), (24.0, 'V', ''))
+    """
+    if units != "inch" or not unit or not math.isfinite(value):
+        return value, unit, ""
+    from diagnose.physics import units as u
+
+    if not u.fits(unit, "mm") or u.above(u.convert(1.0, unit, "mm"), SMALL_LENGTH_MM):
+        return value, unit, ""
+    mm = u.convert(value, unit, "mm")
+    inches = float(f"{u.convert(mm, 'mm', 'in'):.6g}") + 0.0
+    return inches, "in", f"{_mm_text(mm)} mm"
+
+
+def _mm_text(mm: float) -> str:
+    """Millimetres beside an inch figure: 0.46, 12.7, 0.051."""
+    if abs(mm) >= 0.1:
+        return f"{mm:.2f}".rstrip("0").rstrip(".")
+    return format_number(float(f"{mm:.2g}"))
 
 
 def make_figures(rows: Iterable[tuple[str, str, float | None, str]]) -> dict[str, Figure]:
@@ -74,9 +121,9 @@ class Figure:
     def to_dict(self) -> dict[str, Any]:
         return {"label": self.label, "value": self.value, "unit": self.unit}
 
-    def text(self) -> str:
-        """The value and unit as a person reads them: "31.06 ohm"."""
-        return quantity_text(self.value, self.unit)
+    def text(self, units: str = "metric") -> str:
+        """The value and unit as a person reads them: "31.06 ohm" (``units``: the preference)."""
+        return quantity_text(self.value, self.unit, units)
 
 
 @dataclass(frozen=True)

@@ -10,6 +10,7 @@ P(cure), minutes) and why each cannot be proposed now; a
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -18,6 +19,7 @@ import numpy as np
 from diagnose.kb.model import Model
 from diagnose.reasoning.eligibility import CHECK_STATUS, REPAIR_STATUS
 from diagnose.reasoning.posterior import RankEntry
+from diagnose.reasoning.ties import by_preference
 
 __all__ = ["Action", "CheckScore", "ChecksTable", "Plan", "RepairScore"]
 
@@ -130,7 +132,10 @@ class Plan:
 
     The scores are kept as arrays (check and repair order of the model's
     tables); :meth:`checks` and :meth:`repairs` turn them into ranked rows.
-    ``check_eco`` is NaN for a check that cannot be proposed now.
+    ``check_eco`` is NaN for a check that cannot be proposed now, and, until
+    :meth:`ecos` is called, for a check the decision rule could not choose
+    (less information than ``Settings.min_bits``): the planner computes those
+    only when asked (``fill_eco`` fills them in, in place).
     """
 
     action: Action
@@ -152,11 +157,25 @@ class Plan:
     repair_needs: dict[int, tuple[str, ...]]
     repair_blocked: dict[int, str]
     supported: bool = True  # some answer points at a known cause
+    fill_eco: Callable[[], None] | None = field(default=None, repr=False)
+
+    def ecos(self) -> np.ndarray:
+        """The ECO of every check that can be proposed now (NaN for the others)."""
+        if self.fill_eco is not None:
+            self.fill_eco()
+        return self.check_eco
 
     def checks(self, limit: int | None = None) -> tuple[CheckScore, ...]:
-        """Checks, those that can be proposed first, by ECO (least first)."""
-        eco = np.where(np.isnan(self.check_eco), np.inf, self.check_eco)
-        order = np.lexsort((eco, self.check_code != 0))[:limit]
+        """Checks, those that can be proposed first, by ECO (least first).
+
+        Ties go by the rule of :mod:`diagnose.reasoning.ties` (more bits, fewer
+        minutes, id); the others follow in the model's order.
+        """
+        eco = self.ecos()
+        live = self.check_code == 0
+        order = by_preference(np.flatnonzero(live), eco, self.check_bits, self.check_minutes,
+                              self.check_ids) + [int(i) for i in np.flatnonzero(~live)]
+        order = order[:limit]
         out = []
         for i in order:
             code = int(self.check_code[i])

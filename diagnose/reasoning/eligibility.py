@@ -24,7 +24,7 @@ A check's minutes include the setup its state needs
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -36,8 +36,9 @@ from diagnose.reasoning.safety import caller_safe, missing_state, state_steps
 from diagnose.reasoning.tables import Tables
 from diagnose.reasoning.unitstate import setup_minutes, unit_state
 
-__all__ = ["CHECK_STATUS", "EPS", "REPAIR_STATUS", "Standing", "check_standing", "check_status",
-           "missing_prerequisites", "repair_standing"]
+__all__ = ["CHECK_STATUS", "EPS", "REPAIR_STATUS", "Standing", "check_base", "check_standing",
+           "check_status", "mark_answered", "mark_repairs", "missing_prerequisites",
+           "repair_base", "repair_standing", "standing_key"]
 
 EPS = 1e-12  # a probability at or below this counts as "no longer possible"
 
@@ -136,6 +137,15 @@ class Standing:
 
 def check_standing(model: Model, evidence: Evidence, tables: Tables) -> Standing:
     """Why each check cannot be proposed (codes of ``CHECK_STATUS``), minutes with setup."""
+    st = check_base(model, evidence, tables)
+    return replace(st, code=mark_answered(st.code, evidence, tables))
+
+
+def check_base(model: Model, evidence: Evidence, tables: Tables) -> Standing:
+    """:func:`check_standing` before the answers are marked (done, unsure, skipped).
+
+    It depends on the evidence only through :func:`standing_key`.
+    """
     st = Standing(tables.check_ids, model.checks, tables.check_minutes.copy(),
                    np.zeros(len(tables.check_ids), dtype=np.int8), 8)
     code, cmin = st.code, st.minutes
@@ -154,35 +164,75 @@ def check_standing(model: Model, evidence: Evidence, tables: Tables) -> Standing
             cmin[i] += extra
     _withhold(model, evidence, tables.checks_withheld, st)
     _by_phone(model, evidence, st, tables.check_phone, tables.checks_hazardous, (4, 10))
+    return st
+
+
+def mark_answered(code: np.ndarray, evidence: Evidence, tables: Tables) -> np.ndarray:
+    """A copy of the check codes with those answered, unsure or skipped marked so."""
+    code = code.copy()
     pos = tables.check_pos
     for ids, c in ((evidence.skipped, 3), (evidence.unsure, 2), (evidence.findings, 1)):
         for cid in ids:
             if cid in pos:
                 code[pos[cid]] = c
-    return st
+    return code
+
+
+def standing_key(model: Model, evidence: Evidence, prerequisites: frozenset[str],
+                 state: Mapping[str, str] | None = None) -> tuple:
+    """What :func:`check_base` and :func:`repair_base` depend on in ``evidence``.
+
+    The mode, the nameplate, the state of the unit (``state``, when known
+    already), and which of ``prerequisites`` (every check some item
+    ``needs``) are done or skipped.
+    """
+    state = unit_state(model, evidence) if state is None else state
+    done = frozenset(c for c in prerequisites if c in evidence.findings or c in evidence.unsure)
+    return (evidence.mode, tuple(sorted(evidence.nameplate.items())), tuple(state.items()),
+            done, prerequisites & evidence.skipped)
 
 
 def repair_standing(model: Model, evidence: Evidence, tables: Tables, p: np.ndarray,
                      ) -> tuple[Standing, np.ndarray]:
     """The repairs (codes of ``REPAIR_STATUS``, minutes with prerequisites) and P(fix)."""
+    st = repair_base(model, evidence, tables)
+    p_fix = np.bincount(tables.fix_repair, weights=p[tables.fix_hyp],
+                        minlength=len(tables.repair_ids))
+    return replace(st, code=mark_repairs(st.code, evidence, tables, p_fix)), p_fix
+
+
+def repair_base(model: Model, evidence: Evidence, tables: Tables) -> Standing:
+    """:func:`repair_standing` before what the posterior and the repairs done decide.
+
+    It depends on the evidence only through :func:`standing_key`.
+    """
     R = len(tables.repair_ids)
     st = Standing(tables.repair_ids, model.repairs, tables.minutes.copy(),
                    np.zeros(R, dtype=np.int8), 3)
     rcode = st.code
     _prerequisites(model, evidence, tables.repairs_needing, tables.repair_needs, st)
     _withhold(model, evidence, tables.repairs_withheld, st)
-    p_fix = np.bincount(tables.fix_repair, weights=p[tables.fix_hyp], minlength=R)
-    rcode[(p_fix <= EPS) & (rcode == 0)] = 4
     for i in tables.repairs_only_if:
         if not only_if_matches(model, evidence, model.repairs[tables.repair_ids[i]]):
             rcode[i] = 6
     _by_phone(model, evidence, st, tables.repair_phone, tables.repairs_hazardous, (2, 7))
+    return st
+
+
+def mark_repairs(code: np.ndarray, evidence: Evidence, tables: Tables, p_fix: np.ndarray,
+                 ) -> np.ndarray:
+    """A copy of the repair codes with those that fix nothing still possible, skipped or done.
+
+    "Fixes nothing still possible" goes only to a repair nothing else holds back.
+    """
+    code = code.copy()
+    code[(p_fix <= EPS) & (code == 0)] = 4
     for rid in evidence.repairs_skipped:
         if rid in tables.repair_index:
-            rcode[tables.repair_index[rid]] = 5
+            code[tables.repair_index[rid]] = 5
     for rid in evidence.repairs_done:
-        rcode[tables.repair_index[rid]] = 1
-    return st, p_fix
+        code[tables.repair_index[rid]] = 1
+    return code
 
 
 def _by_phone(model: Model, evidence: Evidence, st: Standing, by_phone: np.ndarray,

@@ -45,6 +45,12 @@ class Evidence:
             for "state" the id is ``"var=value"`` (the technician says so).
         acks: (caution, item, step) for each acknowledgement, ``step`` being
             the number of steps done when it was given (None in older journals).
+        assumed: nameplate values taken from the pack's defaults, not read off
+            the unit (a verdict that uses one says so).
+        history: cause -> factor: a cause found on this very unit in a recent
+            session (a recurrence); its prior odds are multiplied by the factor.
+        pending_repair: a repair begun and not yet done or set aside (a session
+            left during it takes it up again on resume).
     """
 
     complaints: tuple[str, ...] = ()
@@ -62,6 +68,9 @@ class Evidence:
     end: Mapping[str, object] | None = None
     steps: tuple[tuple[str, str], ...] = ()
     acks: tuple[tuple[str, str | None, int | None], ...] = ()
+    assumed: frozenset[str] = frozenset()
+    history: Mapping[str, float] = field(default_factory=dict)
+    pending_repair: str | None = None
 
     # --- questions --------------------------------------------------------------------
     @property
@@ -105,7 +114,9 @@ class Evidence:
     def with_repair(self, repair: str, cured: bool) -> Evidence:
         return replace(self, repairs=self.repairs + ((repair, bool(cured)),),
                        repairs_skipped=self.repairs_skipped - {repair},
-                       steps=self.steps + (("repair", repair),))
+                       steps=self.steps + (("repair", repair),),
+                       pending_repair=None if self.pending_repair == repair
+                       else self.pending_repair)
 
     def with_state(self, var: str, value: str) -> Evidence:
         """The technician says the unit is now ``var = value`` (power restored, brake refitted)."""
@@ -113,7 +124,9 @@ class Evidence:
 
     def with_skipped_repair(self, repair: str) -> Evidence:
         """``repair`` cannot be done now: not proposed again."""
-        return replace(self, repairs_skipped=self.repairs_skipped | {repair})
+        return replace(self, repairs_skipped=self.repairs_skipped | {repair},
+                       pending_repair=None if self.pending_repair == repair
+                       else self.pending_repair)
 
     def with_acknowledgement(self, caution: str, item: str | None = None,
                              step: int | None = None) -> Evidence:
@@ -125,8 +138,17 @@ class Evidence:
         return replace(self, acknowledged=self.acknowledged | {caution}, acknowledged_for=pairs,
                        acks=self.acks + ((caution, item, step),))
 
-    def with_nameplate(self, param: str, value: str) -> Evidence:
-        return replace(self, nameplate={**self.nameplate, param: value})
+    def with_nameplate(self, param: str, value: str, assumed: bool = False) -> Evidence:
+        """``param`` is ``value``; ``assumed``: taken from a default, not read off the unit."""
+        marked = self.assumed | {param} if assumed else self.assumed - {param}
+        return replace(self, nameplate={**self.nameplate, param: value}, assumed=marked)
+
+    def with_history(self, cause: str, factor: float) -> Evidence:
+        """``cause`` was found on this unit recently: its prior odds × ``factor`` (1: none)."""
+        history = {k: v for k, v in self.history.items() if k != cause}
+        if factor != 1.0:
+            history[cause] = float(factor)
+        return replace(self, history=history)
 
     def with_mode(self, mode: str) -> Evidence:
         return replace(self, mode=mode)

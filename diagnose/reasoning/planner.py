@@ -1,16 +1,26 @@
 """The next action: the check or repair that lowers the expected minutes to a cure.
 
 :func:`plan` weighs every check and repair for the evidence so far and
-chooses one; it is built from four rooms:
+chooses one; it is built from these rooms:
 
 * :mod:`diagnose.reasoning.eligibility`: which checks and repairs can be
   proposed now (answers, states and setup, hazards withheld, prerequisites,
   phone mode), with their minutes including what must come first;
 * :mod:`diagnose.reasoning.repair_cost`: the expected cost of repair (ECR)
   of the repairs in p/c order;
-* :mod:`diagnose.reasoning.lookahead`: the expected information and the
-  expected cost of observation (ECO) of every check, one step ahead;
-* :mod:`diagnose.reasoning.policy`: the decision rule (:class:`Settings`).
+* :mod:`diagnose.reasoning.lookahead`: the expected information of every
+  check and the expected cost of observation (ECO) of those that can be
+  chosen, one step ahead (:mod:`~diagnose.reasoning.lookahead_dense` for a
+  small model);
+* :mod:`diagnose.reasoning.policy`: the decision rule (:class:`Settings`),
+  with ties between checks broken by :mod:`diagnose.reasoning.ties`.
+
+What does not change during a session is kept per model in
+:mod:`diagnose.reasoning.plancache`. ``plan(..., reference=True)`` weighs
+with the planner's first, straightforward version instead
+(:mod:`diagnose.reasoning.lookahead_reference`, nothing memoised, every ECO at
+once): the same choices and, to 1e-9 relative, the same costs, slower; the
+tests and the benchmark compare the two.
 
 The values it returns (:class:`Action`, :class:`Plan`, :class:`ChecksTable`)
 live in :mod:`diagnose.reasoning.actions`; they are re-exported here with
@@ -28,7 +38,7 @@ from dataclasses import replace
 import numpy as np
 
 from diagnose.errors import InputError
-from diagnose.kb.model import Model
+from diagnose.kb.model import UNKNOWN_CAUSE, Model
 from diagnose.reasoning.actions import Action, CheckScore, ChecksTable, Plan, RepairScore
 from diagnose.reasoning.eligibility import (
     check_standing,
@@ -37,11 +47,13 @@ from diagnose.reasoning.eligibility import (
     repair_standing,
 )
 from diagnose.reasoning.evidence import MODES, Evidence
-from diagnose.reasoning.lookahead import lookahead
+from diagnose.reasoning.lookahead import Lookahead, lookahead
+from diagnose.reasoning.lookahead_reference import lookahead_reference
 from diagnose.reasoning.nameplate import nameplate_value, only_if_matches
 from diagnose.reasoning.openworld import SUPPORT_MARGIN, any_support
+from diagnose.reasoning.plancache import plan_cache
 from diagnose.reasoning.policy import DEFAULT, Settings, decide
-from diagnose.reasoning.posterior import Posterior, posterior
+from diagnose.reasoning.posterior import Posterior, RankEntry, posterior
 from diagnose.reasoning.repair_cost import (
     assign_repairs,
     expected_cost_of_repair,
@@ -52,15 +64,20 @@ from diagnose.reasoning.tables import Tables, tables_for
 
 __all__ = ["DEFAULT", "Action", "CheckScore", "ChecksTable", "Plan", "RepairScore", "Settings",
            "assign_repairs", "check_status", "checks_table", "expected_cost_of_repair",
-           "lookahead", "missing_prerequisites", "nameplate_value", "next_action",
-           "only_if_matches", "plan", "repair_order", "sequence_cost"]
+           "lookahead", "lookahead_reference", "missing_prerequisites", "nameplate_value",
+           "next_action", "only_if_matches", "plan", "repair_order", "sequence_cost"]
 
 
 def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
-         settings: Settings = DEFAULT, post: Posterior | None = None) -> Plan:
+         settings: Settings = DEFAULT, post: Posterior | None = None,
+         reference: bool = False) -> Plan:
     """Weigh every check and repair, and choose the next action.
 
-    The rule that chooses is :func:`diagnose.reasoning.policy.decide`.
+    The rule that chooses is :func:`diagnose.reasoning.policy.decide`. With
+    ``reference`` the planner's first, straightforward version weighs them
+    (:func:`~diagnose.reasoning.lookahead_reference.lookahead_reference`, no
+    memos, the ECO of every candidate at once); it gives the same choices and
+    costs (to rounding) and is kept for the tests and the benchmark.
 
     Raises:
         InputError: an unknown mode, ids unknown to the model, a bad ``max_faults``.
@@ -73,7 +90,73 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
     if evidence.mode not in MODES:
         raise InputError("mode", f"expected site or phone, got {evidence.mode!r}")
     tables = tables_for(model, max_faults)
-    post = post if post is not None else posterior(model, evidence, max_faults=max_faults)
+    if post is None:
+        post = posterior(model, evidence, max_faults=max_faults) if reference \
+            else plan_cache(tables).posterior(model, evidence)
+    weigh = _weigh_reference if reference else _weigh
+    result = weigh(model, evidence, tables, post, settings)
+    return replace(result, action=decide(model, evidence, post, settings, result))
+
+
+def _weigh(model: Model, evidence: Evidence, tables: Tables, post: Posterior,
+           settings: Settings) -> Plan:
+    """The scores of a plan, fast: memos per model, the ECO only of checks that can be chosen.
+
+    A check can be chosen when it is available and informative (expected
+    information at least ``settings.min_bits``); the ECO of the other
+    available checks is computed when the plan's :meth:`~Plan.ecos` is asked.
+    """
+    p = post.p
+    cache = plan_cache(tables)
+    st = cache.standings(model, evidence, p)
+    checks, repairs, p_fix, assign = st.checks, st.repairs, st.p_fix, st.assign
+    code, cmin, rmin = st.check_code, checks.minutes, repairs.minutes
+    cand = np.flatnonzero(code == 0)
+    supported = cache.any_support(model, evidence, post.excluded)
+    escalation = settings.escalation_minutes
+    la = Lookahead(tables, p, cand, assign, rmin, escalation=escalation,
+                   neutral=None if supported else cache.neutral(model, post.excluded))
+    bits = np.zeros(len(code))
+    eco = np.full(len(code), np.nan)
+    bits[cand] = la.bits
+    chosen = la.bits >= settings.min_bits
+    now, later = cand[chosen], cand[~chosen]
+    eco[now] = la.eco(now, cmin[now])
+
+    def fill() -> None:
+        if len(later) and np.isnan(eco[later[0]]):
+            eco[later] = la.eco(later, cmin[later])
+
+    return Plan(Action("done"), top_entry(post), la.ecr_now, model, tables.check_ids,
+                cmin, bits, eco, code, checks.needs, checks.blocked, tables.repair_ids, rmin,
+                p_fix, tables.success * p_fix, st.repair_code, repairs.needs, repairs.blocked,
+                supported, fill_eco=fill)
+
+
+def top_entry(post: Posterior) -> RankEntry:
+    """The top of the posterior's ranking, ``post.ranking(limit=1).top``, without the ranking.
+
+    When the top value is shared (an exact tie), the ranking itself decides.
+    """
+    t = post.tables
+    # one fault: hypothesis i is cause i, and "unknown" comes last, as in the ranking
+    values = post.p.copy() if t.max_faults == 1 else \
+        np.concatenate([post.causes(), [post.unknown]])
+    if post.excluded:
+        gone = [t.cause_index[c] for c in post.excluded if c in t.cause_index]
+        values[gone] = -np.inf
+    i = int(np.argmax(values))
+    if np.count_nonzero(values == values[i]) > 1:
+        return post.ranking(limit=1).top
+    model = t.model
+    cid = t.causes[i] if i < t.n_causes else UNKNOWN_CAUSE
+    title = model.causes[cid].title if cid in model.causes else "None of the known causes"
+    return RankEntry(cid, title, float(values[i]))
+
+
+def _weigh_reference(model: Model, evidence: Evidence, tables: Tables, post: Posterior,
+                     settings: Settings) -> Plan:
+    """The scores of a plan, the reference way: every candidate's ECO, nothing memoised."""
     p = post.p
     checks = check_standing(model, evidence, tables)
     repairs, p_fix = repair_standing(model, evidence, tables, p)
@@ -83,8 +166,9 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
     assign = assign_repairs(tables, repairs.code == 0, rmin)
     supported = any_support(model, evidence, post.excluded)
     detail: list[np.ndarray] = []
-    bits_c, eco_c, ecr_now = lookahead(tables, p, cand, cmin[cand], assign, rmin,
-                                       escalation=settings.escalation_minutes, detail=detail)
+    bits_c, eco_c, ecr_now = lookahead_reference(tables, p, cand, cmin[cand], assign, rmin,
+                                                 escalation=settings.escalation_minutes,
+                                                 detail=detail)
     if not supported and len(cand):
         # no answer points at a known cause yet, so no repair may follow a normal answer:
         # after an outcome that supports no cause the cost is an escalation
@@ -95,12 +179,10 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
     bits = np.zeros(len(code))
     eco = np.full(len(code), np.nan)
     bits[cand], eco[cand] = bits_c, eco_c
-    result = Plan(Action("done"), post.ranking(limit=1).top, ecr_now, model, tables.check_ids,
-                  cmin, bits, eco, code, checks.needs, checks.blocked, tables.repair_ids, rmin,
-                  p_fix, tables.success * p_fix, repairs.code, repairs.needs, repairs.blocked,
-                  supported)
-    action = decide(model, evidence, post, settings, result)
-    return replace(result, action=action)
+    return Plan(Action("done"), post.ranking(limit=1).top, ecr_now, model, tables.check_ids,
+                cmin, bits, eco, code, checks.needs, checks.blocked, tables.repair_ids, rmin,
+                p_fix, tables.success * p_fix, repairs.code, repairs.needs, repairs.blocked,
+                supported)
 
 
 def _neutral_outcomes(model: Model, tables: Tables, cand: np.ndarray, width: int,
@@ -117,13 +199,14 @@ def _neutral_outcomes(model: Model, tables: Tables, cand: np.ndarray, width: int
 
 
 def next_action(model: Model, evidence: Evidence, *, max_faults: int = 1,
-                settings: Settings = DEFAULT) -> Action:
+                settings: Settings = DEFAULT, reference: bool = False) -> Action:
     """The proposed next action (see :func:`plan`)."""
-    return plan(model, evidence, max_faults=max_faults, settings=settings).action
+    return plan(model, evidence, max_faults=max_faults, settings=settings,
+                reference=reference).action
 
 
 def checks_table(model: Model, evidence: Evidence, *, max_faults: int = 1,
-                 settings: Settings = DEFAULT) -> ChecksTable:
+                 settings: Settings = DEFAULT, reference: bool = False) -> ChecksTable:
     """Every check with minutes, expected information, ECO and why it is not offered."""
-    pl = plan(model, evidence, max_faults=max_faults, settings=settings)
+    pl = plan(model, evidence, max_faults=max_faults, settings=settings, reference=reference)
     return ChecksTable(pl.checks(), pl.ecr, evidence.mode)

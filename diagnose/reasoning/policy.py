@@ -26,6 +26,12 @@ knobs are :class:`Settings` (tuned with ``diagnose simulate``):
    likely than every known cause together); on site repair the most likely
    cause, or escalate when "unknown" leads or no repair is left.
 
+"The least ECO" and "beats" compare expected costs with a tolerance: costs
+within a relative 1e-9 of each other are equal, and a tie between checks goes
+to the one with more expected information, then fewer minutes, then the id
+first in alphabetical order (:mod:`diagnose.reasoning.ties`), so that the
+choice never rests on the rounding of the arithmetic.
+
 A check or repair whose prerequisites are not done is proposed as its first
 missing prerequisite. By phone the end is a site visit with the parts to
 bring; the reasons then say what a question to the caller is for (the likely
@@ -48,6 +54,8 @@ from diagnose.kb.model import UNKNOWN_CAUSE, Model
 from diagnose.reasoning.actions import Action, Plan
 from diagnose.reasoning.evidence import Evidence
 from diagnose.reasoning.posterior import Posterior
+from diagnose.reasoning.ties import best_check, cheaper
+from diagnose.text import percent
 
 __all__ = ["DEFAULT", "Settings", "decide"]
 
@@ -88,26 +96,26 @@ def decide(model: Model, evidence: Evidence, post: Posterior, settings: Settings
         return _unsupported(model, evidence, post, settings, pl, phone)
     top = pl.top
     known = top.cause != UNKNOWN_CAUSE
-    live = pl.repair_code == 0
-    ratio = np.where(live, pl.p_cure / pl.repair_minutes, -np.inf)
-    for_top = live & np.array([known and top.cause in model.repairs[r].fixes
-                               for r in pl.repair_ids], dtype=bool)
+    repairs = _TopRepairs(model, pl, top.cause if known else None)
     if known and top.p >= thr:
+        live, for_top, ratio = repairs()
         if for_top.any():
             best = int(np.argmax(np.where(for_top, ratio, -np.inf)))
-            why = (f"{top.cause} is likely enough ({top.p:.2f}) for the caller to try this now"
-                   if phone else f"{top.cause} is likely enough to act ({top.p:.2f})")
+            named = f"{_title(model, top.cause)} ({percent(top.p)})"
+            why = (f"{named} is likely enough for the caller to try this now"
+                   if phone else f"{named} is likely enough to act")
             return _repair_action(pl, best, why)
         if phone:
-            return _visit(model, evidence, post, f"{top.cause} is likely ({top.p:.2f}); "
-                          "it is repaired on site")
+            return _visit(model, evidence, post, f"{_title(model, top.cause)} is likely "
+                          f"({percent(top.p)}); it is repaired on site")
     informative = (pl.check_code == 0) & (pl.check_bits >= settings.min_bits)
     if informative.any():
-        best_c = int(np.argmin(np.where(informative, pl.check_eco, np.inf)))
-        if pl.check_eco[best_c] < pl.ecr:
+        best_c = _best(pl, informative)
+        if cheaper(pl.check_eco[best_c], pl.ecr):
             return _check_action(pl, best_c, _phone_question(model, post, pl.check_ids[best_c])
                                  if phone else "observing first saves minutes")
-        if known and top.p >= settings.act_floor and for_top.any():
+        if known and top.p >= settings.act_floor and repairs()[1].any():
+            live, for_top, ratio = repairs()
             best = int(np.argmax(np.where(for_top, ratio, -np.inf)))
             # below the threshold, repair only when being wrong costs less than a look
             regret = (1.0 - top.p) * float(pl.repair_minutes[best])
@@ -117,6 +125,7 @@ def decide(model: Model, evidence: Evidence, post: Posterior, settings: Settings
                                       "repairing now is cheaper")
         return _check_action(pl, best_c, _phone_question(model, post, pl.check_ids[best_c])
                              if phone else "not yet sure enough to repair")
+    live, for_top, ratio = repairs()
     if phone:  # nothing more to learn by phone: the site checks are still to come
         if known and top.p >= settings.act_floor and for_top.any():
             best = int(np.argmax(np.where(for_top, ratio, -np.inf)))
@@ -134,6 +143,25 @@ def decide(model: Model, evidence: Evidence, post: Posterior, settings: Settings
     return _escalate(post, "no repair left worth its minutes")
 
 
+class _TopRepairs:
+    """The repairs that can be proposed now, those among them that fix ``cause`` (None: no
+    known cause on top), and every repair's p/c (−inf for the others); computed when asked."""
+
+    def __init__(self, model: Model, pl: Plan, cause: str | None) -> None:
+        self._model, self._pl, self._cause = model, pl, cause
+        self._value: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+
+    def __call__(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        if self._value is None:
+            pl, cause, repairs = self._pl, self._cause, self._model.repairs
+            live = pl.repair_code == 0
+            ratio = np.where(live, pl.p_cure / pl.repair_minutes, -np.inf)
+            for_top = live & np.array([cause is not None and cause in repairs[r].fixes
+                                       for r in pl.repair_ids], dtype=bool)
+            self._value = (live, for_top, ratio)
+        return self._value
+
+
 def _unsupported(model: Model, evidence: Evidence, post: Posterior, settings: Settings,
                  pl: Plan, phone: bool) -> Action:
     """No answer points at a known cause yet: no repair; observe while worth it, then escalate.
@@ -143,11 +171,12 @@ def _unsupported(model: Model, evidence: Evidence, post: Posterior, settings: Se
     """
     informative = (pl.check_code == 0) & (pl.check_bits >= settings.min_bits)
     if phone and informative.any():  # a question costs the caller little; the visit is next
-        best_c = int(np.argmin(np.where(informative, pl.check_eco, np.inf)))
+        best_c = _best(pl, informative)
         return _check_action(pl, best_c, _phone_question(model, post, pl.check_ids[best_c]))
-    worth = informative & (pl.check_eco < settings.escalation_minutes)
+    worth = informative.copy()
+    worth[informative] = cheaper(pl.check_eco[informative], settings.escalation_minutes)
     if worth.any():
-        best_c = int(np.argmin(np.where(worth, pl.check_eco, np.inf)))
+        best_c = _best(pl, worth)
         return _check_action(pl, best_c, "no answer points at a cause yet, so look first")
     if phone:  # the site checks are still to come: a technician, unless nothing known fits
         if post.unknown >= 0.5:
@@ -156,6 +185,12 @@ def _unsupported(model: Model, evidence: Evidence, post: Posterior, settings: Se
                       "checks will tell")
     return _escalate(post, "every answer reads normal and no check left is worth its "
                            "minutes: none of the known causes is shown")
+
+
+def _best(pl: Plan, among: np.ndarray) -> int:
+    """The check of ``among`` (a mask) with the least ECO; ties go by the rule of ``ties``."""
+    return best_check(np.flatnonzero(among), pl.check_eco, pl.check_bits, pl.check_minutes,
+                      pl.check_ids)
 
 
 #: Reasons in phone mode: no work on site is proposed, so none is spoken of.
@@ -175,13 +210,20 @@ def _phone_question(model: Model, post: Posterior, check_id: str) -> str:
     >>> e = Evidence(complaints=("will_not_release",), mode="phone")
     >>> _phone_question(m, posterior(m, e), "listen_click")  # doctest: +NORMALIZE_WHITESPACE
     'to find out by phone whether a site visit is needed and which parts it brings (it tells
-    more about lining_worn and fuse_blown)'
+    more about: Lining worn; Fuse blown)'
 
     """
     effects = model.checks[check_id].effects
     about = [e.cause for e in post.ranking().entries if e.cause in effects][:2]
-    named = f" (it tells more about {' and '.join(about)})" if about else ""
+    named = f" (it tells more about: {'; '.join(_title(model, c) for c in about)})" \
+        if about else ""
     return f"to find out by phone whether a site visit is needed and which parts it brings{named}"
+
+
+def _title(model: Model, cause: str) -> str:
+    """A cause as people read it: its title (the id when the pack has none)."""
+    found = model.causes.get(cause)
+    return found.title if found is not None and found.title else cause
 
 
 def _check_action(pl: Plan, i: int, reason: str) -> Action:
@@ -191,8 +233,9 @@ def _check_action(pl: Plan, i: int, reason: str) -> Action:
     minutes, bits, eco = float(pl.check_minutes[i]), float(pl.check_bits[i]), float(pl.check_eco[i])
     if needs:
         first = model.checks[needs[0]]
-        return Action("check", first.id, first.title, f"needed before {cid}", first.minutes,
-                      bits=bits, target=cid, eco=eco, ecr=pl.ecr)
+        return Action("check", first.id, first.title,
+                      f"needed before: {model.checks[cid].title}", first.minutes, bits=bits,
+                      target=cid, eco=eco, ecr=pl.ecr)
     return Action("check", cid, model.checks[cid].title, reason, minutes, bits=bits, eco=eco,
                   ecr=pl.ecr)
 
@@ -206,8 +249,9 @@ def _repair_action(pl: Plan, i: int, reason: str) -> Action:
     minutes, p_fix = float(pl.repair_minutes[i]), float(pl.p_fix[i])
     if needs:
         first = model.checks[needs[0]]
-        return Action("check", first.id, first.title, f"needed before {rid}", first.minutes,
-                      p=p_fix, target=rid, causes=causes, parts=tuple(r.parts), ecr=pl.ecr)
+        return Action("check", first.id, first.title, f"needed before: {r.title}",
+                      first.minutes, p=p_fix, target=rid, causes=causes, parts=tuple(r.parts),
+                      ecr=pl.ecr)
     return Action("repair", rid, r.title, reason, minutes, p=p_fix, causes=causes,
                   parts=tuple(r.parts), ecr=pl.ecr)
 

@@ -29,7 +29,7 @@ References:
 from __future__ import annotations
 
 import math
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, replace
 from typing import Any
 
@@ -47,7 +47,7 @@ from diagnose.reasoning.tables import Tables, tables_for
 class Item:
     """One piece of evidence and its likelihood under every hypothesis."""
 
-    kind: str  # "complaint" | "finding" | "repair"
+    kind: str  # "complaint" | "finding" | "repair" | "history"
     id: str  # complaint, check or repair id
     value: str  # outcome (or "a:0.6, b:0.4"), "reported", "cured" / "not cured"
     likelihood: np.ndarray  # (H,)
@@ -56,6 +56,8 @@ class Item:
     def label(self) -> str:
         if self.kind == "complaint":
             return f"complaint {self.id}"
+        if self.kind == "history":
+            return f"found on this unit before: {self.id} ({self.value})"
         return f"{self.id} = {self.value}"
 
 
@@ -88,6 +90,20 @@ def evidence_items(tables: Tables, evidence: Evidence) -> Iterator[Item]:
         vec = np.zeros(tables.n_hyp) if cured else np.ones(tables.n_hyp)
         vec[tables.repair_hypotheses(rid)] = s if cured else 1.0 - s
         yield Item("repair", rid, "cured" if cured else "not cured", vec)
+    for cause, factor in evidence.history.items():
+        yield Item("history", cause, f"×{factor:g}", history_vector(tables, cause, factor))
+
+
+def history_vector(tables: Tables, cause: str, factor: float) -> np.ndarray:
+    """The weight of a cause found on this unit before: ``factor`` on the hypotheses with it.
+
+    A recurrence multiplies the prior odds of the cause by ``factor`` (see
+    :mod:`diagnose.reasoning.evidence`, ``history``); the hypotheses without it
+    keep their weight.
+    """
+    vec = np.ones(tables.n_hyp)
+    vec[tables.hypotheses_with((cause,))] = float(factor)
+    return vec
 
 
 def log_posterior(tables: Tables, evidence: Evidence) -> np.ndarray:
@@ -113,6 +129,8 @@ def log_posterior(tables: Tables, evidence: Evidence) -> np.ndarray:
         if vec is None:
             return _log_posterior(tables, evidence)
         out += vec
+    for cause, factor in evidence.history.items():
+        out += np.log(history_vector(tables, cause, factor))
     return out
 
 
@@ -126,7 +144,7 @@ def _log_posterior(tables: Tables, evidence: Evidence) -> np.ndarray:
                 tables.remember(item.kind, item.id, "reported", logs)
             elif item.kind == "repair":
                 tables.remember(item.kind, item.id, item.value == "cured", logs)
-            elif len(evidence.findings[item.id]) == 1:
+            elif item.kind == "finding" and len(evidence.findings[item.id]) == 1:
                 tables.remember(item.kind, item.id, item.value, logs)
             out += logs
     return out
@@ -221,6 +239,24 @@ def posterior(model: Model, evidence: Evidence, *, max_faults: int = 1,
     """
     tables = tables_for(model, max_faults)
     excluded = excluded_causes(model, evidence)
+    return settle(tables, evidence, excluded,
+                  hidden=lambda: unobservable_causes(model, evidence) if open_world
+                  else frozenset(),
+                  capped=tables.hypotheses_within,
+                  baseline=lambda: complaints_only(tables, evidence.complaints, excluded))
+
+
+def settle(tables: Tables, evidence: Evidence, excluded: frozenset[str], *,
+           hidden: Callable[[], frozenset[str]], capped: Callable[[frozenset[str]], np.ndarray],
+           baseline: Callable[[], np.ndarray]) -> Posterior:
+    """Bayes' rule in log space, the nameplate's ``excluded`` causes, then the open-world rule.
+
+    The steps of :func:`posterior`, with what they need asked for only when it
+    is needed: ``hidden()`` (the causes no answer can show any more),
+    ``capped(causes)`` (the hypotheses within them) and ``baseline()`` (the
+    posterior of the complaints alone); the planner's cache answers these from
+    memos (``diagnose.reasoning.plancache``), :func:`posterior` works them out.
+    """
     logw = log_posterior(tables, evidence)
     if excluded:
         logw = logw + tables.exclusion(excluded)
@@ -228,18 +264,24 @@ def posterior(model: Model, evidence: Evidence, *, max_faults: int = 1,
     if bad:
         p[tables.unknown] = 1.0
         return Posterior(tables, p, bad, excluded)
-    hidden = unobservable_causes(model, evidence) - excluded if open_world else frozenset()
-    if hidden:
-        capped = tables.hypotheses_within(hidden)
-        if len(capped):
-            base = tables.log_prior.copy()
-            for k in evidence.complaints:
-                base += np.log(tables.complaint(k))
-            if excluded:
-                base += tables.exclusion(excluded)
-            baseline, _ = normalise(base)
-            p = cap_unobservable(p, baseline, capped, tables.unknown)
+    unseen = hidden() - excluded
+    if unseen:
+        within = capped(unseen)
+        if len(within):
+            p = cap_unobservable(p, baseline(), within, tables.unknown)
     return Posterior(tables, p, bad, excluded)
+
+
+def complaints_only(tables: Tables, complaints: tuple[str, ...], excluded: frozenset[str],
+                    ) -> np.ndarray:
+    """P(h | the complaints alone), with the nameplate's exclusions (the open-world cap)."""
+    base = tables.log_prior.copy()
+    for k in complaints:
+        base += np.log(tables.complaint(k))
+    if excluded:
+        base += tables.exclusion(excluded)
+    out, _ = normalise(base)
+    return out
 
 
 @dataclass(frozen=True)

@@ -37,13 +37,14 @@ References:
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, NamedTuple
 
 import numpy as np
 
 from diagnose.reasoning.tables import Tables
 
-__all__ = ["assign_repairs", "expected_cost_of_repair", "repair_order", "sequence_cost"]
+__all__ = ["PcOrder", "assign_repairs", "expected_cost_of_repair", "pc_order", "repair_order",
+           "sequence_cost"]
 
 
 def repair_order(p: np.ndarray, c: np.ndarray) -> np.ndarray:
@@ -96,3 +97,59 @@ def assign_repairs(tables: Tables, usable: np.ndarray, costs: np.ndarray) -> np.
     out[fh_s[first]] = fr[order][first]
     return out
 
+
+
+class PcOrder(NamedTuple):
+    """The repairs in the p/c order now (Kadane and Simon, 1977), with its prefix sums.
+
+    Per repair: ``mass`` (P of the hypotheses it serves), ``prob`` (P it
+    cures), ``c`` (minutes, 1 where none are given) and ``rank`` (its place
+    in the order, −1 when it cures nothing). Along the order: ``rhos`` (p/c),
+    ``p_before`` (Σ p before a place), ``c_from`` (Σ c from a place on) and
+    ``g_cum`` (Σ p · c of the repairs after, up to a place). The look-ahead
+    merges the repairs an outcome moves into this order
+    (:mod:`diagnose.reasoning.lookahead`).
+    """
+
+    mass: np.ndarray
+    prob: np.ndarray
+    c: np.ndarray
+    rank: np.ndarray
+    rhos: np.ndarray
+    p_before: np.ndarray
+    c_from: np.ndarray
+    g_cum: np.ndarray
+
+    def ecr(self, escalation: float) -> float:
+        """ECR of the order: the repairs worth trying (p/c at least 1/E), then an escalation.
+
+        The sum of Heckerman, Breese and Rommelse (1995, eq. 2) from the prefix sums:
+        Σ_{i<n} c_i − Σ_{j<i<n} p_j c_i + E · (1 − Σ_{i<n} p_i), ``n`` the repairs worth trying.
+        """
+        p_before, c_from, g_cum = self.p_before, self.c_from, self.g_cum
+        n0 = int(np.searchsorted(-self.rhos, -1.0 / escalation, side="right"))
+        return float((c_from[0] - c_from[n0]) - (g_cum[n0] - p_before[n0] * c_from[n0])
+                     + escalation * (1.0 - p_before[n0]))
+
+
+def pc_order(tables: Tables, p: np.ndarray, assign: np.ndarray, repair_cost: np.ndarray,
+             ) -> PcOrder:
+    """The p/c order of the repairs for posterior ``p`` (see :class:`PcOrder`).
+
+    ``assign`` maps each hypothesis to the repair that serves it (see
+    :func:`assign_repairs`); ``repair_cost`` is the minutes of each repair.
+    """
+    R = len(tables.repair_ids)
+    c = np.where(repair_cost > 0, repair_cost, 1.0)
+    served = assign >= 0
+    mass = np.bincount(assign[served], weights=p[served], minlength=R)
+    prob = tables.success * mass
+    order = repair_order(prob, c)
+    ps, cs = prob[order], c[order]
+    rhos = ps / cs
+    p_before = np.concatenate([[0.0], np.cumsum(ps)])
+    c_from = np.concatenate([np.cumsum(cs[::-1])[::-1], [0.0]])
+    g_cum = np.concatenate([[0.0], np.cumsum(ps * c_from[1:])])
+    rank = np.full(R, -1, dtype=np.int64)
+    rank[order] = np.arange(len(order))
+    return PcOrder(mass, prob, c, rank, rhos, p_before, c_from, g_cum)

@@ -27,6 +27,9 @@ without unknown runs, and with a higher rate the known runs keep their draws.
 Policies:
 
 * ``planner``: :func:`diagnose.reasoning.planner.next_action` at every step;
+* ``reference``: the same with the planner's reference version
+  (``next_action(..., reference=True)``); it must give exactly the planner's
+  runs, only slower (the benchmark compares both). Not run unless asked for;
 * ``chart``: what a printed chart can do at best: the complaint's checks in
   one fixed order, ranked by the prior mass of the causes each check can
   reveal per minute (a static p/c order); at the first abnormal finding (an
@@ -66,6 +69,7 @@ References:
 
 from __future__ import annotations
 
+import bisect
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -76,6 +80,7 @@ from diagnose.errors import InputError
 from diagnose.kb.model import UNKNOWN_CAUSE, Model
 from diagnose.reasoning.evidence import Evidence
 from diagnose.reasoning.nameplate import excluded_causes
+from diagnose.reasoning.plancache import plan_cache
 from diagnose.reasoning.planner import (
     DEFAULT,
     Settings,
@@ -83,10 +88,12 @@ from diagnose.reasoning.planner import (
     next_action,
     only_if_matches,
 )
-from diagnose.reasoning.posterior import posterior
+from diagnose.reasoning.tables import tables_for
 from diagnose.reasoning.unitstate import setup_minutes, unit_state
 
-POLICIES = ("planner", "chart", "listing", "random")
+POLICIES = ("planner", "chart", "listing", "random")  # run when none are named
+ALL_POLICIES = (*POLICIES, "reference")
+PLANNERS = ("planner", "reference")
 _UNKNOWN_STREAM = 7  # the unknown runs come from np.random.default_rng([seed, 7])
 
 
@@ -172,6 +179,7 @@ class RunResult:
     escalated: bool = False  # the policy escalated or asked for a visit (not ran out, not cured)
     repairs: int = 0  # repairs tried
     unknown_top_before_repair: bool = False  # "unknown" led at the first repair or at the end
+    steps: tuple[str, ...] = ()  # the checks and repairs done, in order ("*id": seen in passing)
 
 
 @dataclass(frozen=True)
@@ -252,7 +260,8 @@ class _Run:
     """One simulated service call: answers checks and repairs from the draws."""
 
     def __init__(self, model: Model, draws: Draws, i: int, noise: float,
-                 check_pos: dict[str, int], repair_pos: dict[str, int]) -> None:
+                 check_pos: dict[str, int], repair_pos: dict[str, int], *,
+                 cum: dict[tuple[str, str | None], list[float]] | None = None) -> None:
         self.model, self.draws, self.i, self.noise = model, draws, i, noise
         self.cause = draws.causes[i]
         self.unknown = draws.is_unknown(i)
@@ -265,6 +274,8 @@ class _Run:
         self.repairs = 0
         self.first: tuple[bool, bool, bool] | None = None  # cured, top1, hit
         self.unknown_top = False  # "unknown" led the ranking when the first repair was chosen
+        self.steps: list[str] = []
+        self._cum = {} if cum is None else cum  # shared by the runs of a policy
 
     def answer(self, cid: str, free: bool = False) -> str:
         """Answer ``cid`` from the draws; it costs its minutes and any setup of the unit's state.
@@ -272,19 +283,24 @@ class _Run:
         ``free``: observed in plain sight during a repair (no minutes).
         """
         chk = self.model.checks[cid]
-        if not free:
+        if not free and chk.requires:
             self.minutes += setup_minutes(self.model, unit_state(self.model, self.evidence),
                                           chk.requires)
         u = self.draws.answer[self.i, self.check_pos[cid]]
-        row = chk.normal if self.unknown else chk.effects.get(self.cause, chk.normal)
-        probs = np.array([row.get(o, 0.0) for o in chk.outcomes], dtype=float)
-        cum = np.cumsum(probs / probs.sum())
-        k = min(int(np.searchsorted(cum, u[0], side="right")), len(chk.outcomes) - 1)
+        listed = not self.unknown and self.cause in chk.effects
+        key = (cid, self.cause if listed else None)
+        cum = self._cum.get(key)
+        if cum is None:  # the answer's distribution: its row, cumulated (the same for every run)
+            row = chk.effects[self.cause] if listed else chk.normal
+            probs = np.array([row.get(o, 0.0) for o in chk.outcomes], dtype=float)
+            cum = self._cum[key] = np.cumsum(probs / probs.sum()).tolist()
+        k = min(bisect.bisect_right(cum, float(u[0])), len(chk.outcomes) - 1)
         if len(chk.outcomes) > 1 and u[1] < self.noise:
             others = [j for j in range(len(chk.outcomes)) if j != k]
             k = others[int(u[2] * len(others))]
         outcome = chk.outcomes[k]
         self.evidence = self.evidence.with_outcome(cid, outcome)
+        self.steps.append(f"*{cid}" if free else cid)
         if not free:
             self.checks += 1
             self.minutes += chk.minutes
@@ -295,7 +311,7 @@ class _Run:
         hit = not self.unknown and self.cause in r.fixes
         cured = bool(hit and self.draws.cure[self.i, self.repair_pos[rid]] < r.success)
         if self.first is None:
-            top = posterior(self.model, self.evidence, max_faults=max_faults).top()[0]
+            top = _top(self.model, self.evidence, max_faults)
             self.first = (cured, top == self.cause, hit)
             self.unknown_top = top == UNKNOWN_CAUSE
         observed = [c for c in r.observes if c in self.model.checks
@@ -304,6 +320,7 @@ class _Run:
         for cid in observed:  # in plain sight while the brake is apart
             self.answer(cid, free=True)
         self.evidence = self.evidence.with_repair(rid, cured)
+        self.steps.append(rid)
         self.minutes += r.minutes
         self.cured = cured
         self.repairs += 1
@@ -318,17 +335,19 @@ class _Run:
         minutes = self.minutes + (0.0 if self.cured else escalation)
         unknown_top = self.unknown_top
         if self.first is None:  # no repair: the ranking at the end of the run
-            top = posterior(self.model, self.evidence, max_faults=max_faults).top()[0]
+            top = _top(self.model, self.evidence, max_faults)
             unknown_top = top == UNKNOWN_CAUSE
         return RunResult(self.cause, self.draws.complaints[self.i], self.checks, minutes,
                          self.cured, self.first is not None, *first, unknown=self.unknown,
                          escalated=self.escalated, repairs=self.repairs,
-                         unknown_top_before_repair=unknown_top)
+                         unknown_top_before_repair=unknown_top, steps=tuple(self.steps))
 
 
-def _planner(run: _Run, settings: Settings, max_faults: int, limit: int) -> None:
+def _planner(run: _Run, settings: Settings, max_faults: int, limit: int,
+             reference: bool = False) -> None:
     for _ in range(limit):
-        action = next_action(run.model, run.evidence, max_faults=max_faults, settings=settings)
+        action = next_action(run.model, run.evidence, max_faults=max_faults, settings=settings,
+                             reference=reference)
         if action.kind == "check" and action.id:
             run.answer(action.id)
         elif action.kind == "repair" and action.id:
@@ -337,6 +356,11 @@ def _planner(run: _Run, settings: Settings, max_faults: int, limit: int) -> None
         else:
             run.escalated = action.kind in ("escalate", "visit")
             return
+
+
+def _top(model: Model, evidence: Evidence, max_faults: int) -> str:
+    """The top of the posterior ranking (the planner's memoised posterior: the same values)."""
+    return plan_cache(tables_for(model, max_faults)).posterior(model, evidence).top()[0]
 
 
 def chart_order(model: Model, complaint: str, *, listing: bool = False) -> tuple[str, ...]:
@@ -424,43 +448,58 @@ def simulate(model: Model, *, runs: int, seed: int, noise: float = 0.0,
 
     ``unknown_rate`` is the share of calls whose true cause is outside the
     pack (see the module docstring); 0 gives exactly the figures of a run
-    without unknown causes.
+    without unknown causes. ``policies`` may name any of ``ALL_POLICIES``.
 
     Raises:
         InputError: unknown policy, ``noise`` or ``unknown_rate`` outside [0, 1), runs < 1.
     """
-    bad = [p for p in policies if p not in POLICIES]
+    bad = [p for p in policies if p not in ALL_POLICIES]
     if bad:
-        raise InputError("policy", f"unknown policy {bad[0]!r}; known: {', '.join(POLICIES)}")
+        raise InputError("policy", f"unknown policy {bad[0]!r}; known: {', '.join(ALL_POLICIES)}")
     if not 0.0 <= noise < 1.0:
         raise InputError("noise", f"expected a probability below 1, got {noise}")
     draws = draw_cases(model, runs, seed, unknown_rate=unknown_rate)
+    reports = {}
+    for policy in policies:
+        results = run_policy(model, draws, policy, noise=noise, settings=settings,
+                             max_faults=max_faults)
+        reports[policy] = policy_report(policy, results, unknown_rate)
+    bound, bits = entropy_bound(model)
+    return SimulationReport(model.id, runs, seed, noise, bound, bits, reports, unknown_rate)
+
+
+def run_policy(model: Model, draws: Draws, policy: str, *, noise: float = 0.0,
+               settings: Settings = DEFAULT, max_faults: int = 1) -> list[RunResult]:
+    """Every run of ``draws`` under ``policy`` (one of ``ALL_POLICIES``), in order.
+
+    Raises:
+        InputError: unknown policy.
+    """
+    if policy not in ALL_POLICIES:
+        raise InputError("policy", f"unknown policy {policy!r}; known: {', '.join(ALL_POLICIES)}")
     check_pos = {c: i for i, c in enumerate(model.checks)}
     repair_pos = {r: i for i, r in enumerate(model.repairs)}
     limit = len(model.checks) + len(model.repairs) + 5
     charts: dict[str, tuple[str, ...]] = {}
-    listings: dict[str, tuple[str, ...]] = {}
-    reports: dict[str, PolicyReport] = {}
-    for policy in policies:
-        results = []
-        for i in range(runs):
-            run = _Run(model, draws, i, noise, check_pos, repair_pos)
-            k = draws.complaints[i]
-            if policy == "planner":
-                _planner(run, settings, max_faults, limit)
-            elif policy == "chart":
-                _chart(run, charts.setdefault(k, chart_order(model, k)))
-            elif policy == "listing":
-                _chart(run, listings.setdefault(k, chart_order(model, k, listing=True)))
-            else:
-                base = charts.setdefault(k, chart_order(model, k))
-                shuffle = np.argsort(draws.order[i, [check_pos[c] for c in base]])
-                _chart(run, tuple(base[j] for j in shuffle))
-            results.append(run.result(settings.escalation_minutes,
-                                      max_faults if policy == "planner" else 1))
-        reports[policy] = policy_report(policy, results, unknown_rate)
-    bound, bits = entropy_bound(model)
-    return SimulationReport(model.id, runs, seed, noise, bound, bits, reports, unknown_rate)
+    cum: dict[tuple[str, str | None], list[float]] = {}
+    results = []
+    for i in range(len(draws.causes)):
+        run = _Run(model, draws, i, noise, check_pos, repair_pos, cum=cum)
+        k = draws.complaints[i]
+        if policy in PLANNERS:
+            _planner(run, settings, max_faults, limit, reference=policy == "reference")
+            results.append(run.result(settings.escalation_minutes, max_faults))
+            continue
+        if k not in charts:
+            charts[k] = chart_order(model, k, listing=policy == "listing")
+        if policy in ("chart", "listing"):
+            _chart(run, charts[k])
+        else:
+            base = charts[k]
+            shuffle = np.argsort(draws.order[i, [check_pos[c] for c in base]])
+            _chart(run, tuple(base[j] for j in shuffle))
+        results.append(run.result(settings.escalation_minutes, 1))
+    return results
 
 
 def policy_report(policy: str, results: list[RunResult],

@@ -3,7 +3,8 @@
 The command line, the shell and the reports do none of these themselves; each
 asks this layer, so that they cannot disagree. What a face was told about
 packs and journal (``--packs``, ``--journal``, ``--no-learned``) is one
-:class:`Where`.
+:class:`Where`; the user's preferences (the settings file, with ``--units``
+over it) are :func:`preferences`.
 
 Which pack a recorded session continues with (:func:`recorded_pack`) is one
 rule for every face (`diagnose resume`, `run --resume`, the shell, `report`):
@@ -25,10 +26,13 @@ from __future__ import annotations
 import os
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from diagnose.errors import DiagnoseError, InputError, JournalError
 from diagnose.events import started
+
+if TYPE_CHECKING:
+    from diagnose.settings import Preferences
 
 
 @dataclass(frozen=True)
@@ -41,8 +45,15 @@ class Where:
 
     @classmethod
     def of(cls, args: Any) -> Where:
-        """From parsed command-line options (``packs``, ``journal``, ``no_learned``)."""
-        return cls(tuple(getattr(args, "packs", None) or ()), getattr(args, "journal", None),
+        """From parsed command-line options (``packs``, ``journal``, ``no_learned``).
+
+        The journal is ``--journal``; without it, and without ``DIAGNOSE_JOURNAL``,
+        the one the settings file names (None: the data folder's; see ``diagnose.paths``).
+
+        Raises:
+            InputError: the settings file is broken (only read when its journal counts).
+        """
+        return cls(tuple(getattr(args, "packs", None) or ()), _journal_of(args),
                    not getattr(args, "no_learned", False))
 
     @property
@@ -54,6 +65,45 @@ class Where:
         from dataclasses import replace
 
         return replace(self, learned=False)
+
+
+def _journal_of(args: Any) -> str | None:
+    """``--journal``, else the settings file's journal unless DIAGNOSE_JOURNAL is set."""
+    from diagnose.paths import ENV_JOURNAL
+
+    given = getattr(args, "journal", None)
+    if given or os.environ.get(ENV_JOURNAL):
+        return given or None
+    from diagnose.settings import load_preferences
+
+    return load_preferences().journal
+
+
+def preferences(args: Any = None) -> Preferences:
+    """The user's preferences (``diagnose.settings.Preferences``): the settings file, with
+    the command line's ``--units`` over its ``units``.
+
+    Raises:
+        InputError: the settings file is broken (one line naming the file and the key).
+    """
+    from dataclasses import replace
+
+    from diagnose.settings import load_preferences
+
+    prefs = load_preferences()
+    units = getattr(args, "units", None)
+    return replace(prefs, units=units) if units else prefs
+
+
+def preferred_answer(check: Any, text: Any, units: str) -> Any:
+    """``text`` as ``session.answer`` should take it: for a measurement of a length, bare
+    numbers in the preferred ``units`` (see ``diagnose.physics.units.preferred_reading``)."""
+    m = getattr(check, "measurement", None)
+    if m is None or units == "metric":
+        return text
+    from diagnose.physics.units import preferred_reading
+
+    return preferred_reading(text, m.unit, units)
 
 
 # --- packs -----------------------------------------------------------------------------------
@@ -283,3 +333,21 @@ def resume(journal: Any, session_id: str, where: Where, pack: str | None = None,
     if choice is None:
         choice = recorded_pack(info, recorded_events(journal, session_id), where, pack)
     return Resumed(resume_session(journal, session_id, choice.model), choice, info)
+
+
+def resume_command(session_id: str, journal: Any) -> str:
+    """The command that resumes ``session_id``, as it must be typed to work anywhere.
+
+    ``--journal`` is named unless the journal is the default one in the data folder.
+
+    >>> resume_command("261205-1", "/tmp/walk/j.sqlite3")
+    'diagnose resume 261205-1 --journal /tmp/walk/j.sqlite3'
+    """
+    import shlex
+
+    from diagnose.paths import journal_path as default_path
+
+    words = ["diagnose", "resume", session_id]
+    if journal and os.path.abspath(str(journal)) != os.path.abspath(str(default_path(env={}))):
+        words += ["--journal", str(journal)]
+    return " ".join(shlex.quote(w) for w in words)

@@ -95,12 +95,15 @@ class Shell:
         resumed: True when the session was replayed from the journal.
         notice_shown: True when the safety notice was shown already (at a terminal
             it is read while the pack loads, see ``startup``).
+        units: the technician's preferred units ("metric" or "inch"): the unit of a
+            bare length reading, and how the figures of a verdict are shown.
     """
 
     def __init__(self, session: Session, console: Any, reader: Any, *,
                  journal_path: str | None = None, resumed: bool = False,
-                 notice_shown: bool = False) -> None:
+                 notice_shown: bool = False, units: str = "metric") -> None:
         self.session = session
+        self.units = units
         self.notice_shown = notice_shown
         self.model: Model = session.model
         self.console = console
@@ -336,7 +339,9 @@ class Shell:
     def ask_parameter(self, pid: str) -> None:
         """One nameplate value, checked as typed.
 
-        Enter keeps the default, `defaults` the defaults of all of them.
+        Enter keeps the default, `defaults` the defaults of all of them; a value
+        kept so is recorded as assumed (not read off the unit), and every verdict
+        that uses it says so.
         """
         p = self.model.parameters[pid]
         hints = []
@@ -364,11 +369,13 @@ class Shell:
             if not text:
                 if p.default is None:
                     raise InputError(pid, "an answer is needed (there is no default)")
-                text = str(p.default)
+                return [(pid, self.session.set_nameplate(pid, str(p.default), assumed=True))]
             return [(pid, self.session.set_nameplate(pid, text))]
 
         for param, value in self.ask(f"{p.prompt}{hint}{default}: ", parse, answers=answers):
-            self.say(f"  {param} = {unit_text(value)}", style="dim")
+            mark = " (assumed: the pack's default)" if param in self.session.evidence.assumed \
+                else ""
+            self.say(f"  {param} = {unit_text(value)}{mark}", style="dim")
 
     def _keep_defaults(self) -> list[tuple[str, str]]:
         """Set every nameplate value still open that has a default; those without are asked."""
@@ -382,7 +389,7 @@ class Shell:
             pid = todo[0]
             kept.add(pid)
             default = str(self.model.parameters[pid].default)
-            done.append((pid, self.session.set_nameplate(pid, default)))
+            done.append((pid, self.session.set_nameplate(pid, default, assumed=True)))
         if not done:
             raise InputError("defaults", "no value still to come has a default")
         return done
@@ -397,7 +404,29 @@ class Shell:
                 fields[key] = text
         if fields:
             self.session.set_identity(**fields)
+            self.show_history(fields)
         self._identity_done = True
+
+    def show_history(self, identity: dict[str, str]) -> None:
+        """The earlier jobs on this unit, and a recent finding raised as a recurrence."""
+        if not self.journal_path:
+            return
+        from diagnose.service.history import RECURRENCE_FACTOR, history, recurrences
+
+        jobs = history(self.journal_path, identity, self.model, self.session)
+        if not jobs:
+            return
+        self.heading("Earlier jobs on this unit")
+        for job in jobs:
+            found = job.finding_title or "no finding recorded"
+            cure = f"; cured by: {job.repair}" if job.repair else ""
+            self.say(f"  {job.started[:10]} ({job.session_id}): {'; '.join(job.complaints)}"
+                     f" -> {found}{cure}")
+        for cause, (days, ids) in recurrences(jobs, self.model).items():
+            self.session.note_history(cause, RECURRENCE_FACTOR, days=days, sessions=ids)
+            self.say(f"  Found on this unit {days} day(s) ago: {self.model.causes[cause].title}. "
+                     f"It starts {RECURRENCE_FACTOR:g} times as likely (undo takes this back).",
+                     style="yellow")
 
     def complaint_choices(self, *, both: bool = False) -> list[Choice]:
         """Complaints not yet reported: (id, title), the caller's wording in phone mode.
@@ -485,6 +514,8 @@ class Shell:
 
             action = Action("done", reason="a repair cured the unit")
             kind, item = "done", ""
+        elif s.evidence.pending_repair:  # left during a repair: take it up again
+            kind, item, action = "repair", s.evidence.pending_repair, None
         else:
             action = s.next_action()
             kind, item = action.kind, action.id or ""
@@ -521,9 +552,18 @@ class Shell:
         instructions = (chk.caller or chk.ask) if phone else chk.ask
         return CheckCard(chk.id, chk.title, chk.minutes, tuple(chk.tools),
                          self.card_cautions(chk.id), why, instructions if shown else None,
-                         outcomes, unit_text(chk.measurement.unit) if chk.measurement else "",
+                         outcomes, self._bare_unit_words(chk),
                          "Ask the caller" if phone else "Check",
                          needs=() if phone else self.session.setup_for(chk.id), many=_many(chk))
+
+    def _bare_unit_words(self, chk: Check) -> str:
+        """The unit a bare number of this check's reading is taken in, for its card ("" none)."""
+        if chk.measurement is None:
+            return ""
+        from diagnose.physics.units import bare_unit
+
+        bare = bare_unit(chk.measurement.unit, self.units)
+        return "inches" if bare == "in" and bare != chk.measurement.unit else unit_text(bare)
 
     def _why_check(self, chk: Check, action: Action | None) -> str:
         phone = self.session.mode == "phone"
@@ -538,7 +578,7 @@ class Shell:
                 return f"it must be done first, before: {name}{more}"
             reason = action.reason
             base = why_text(action.bits, action.minutes, phone=phone)
-            return f"{reason}: {base}" if reason else base
+            return f"{reason}; {base}" if reason else base
         try:
             x = self.session.explain_check(chk.id)
         except DiagnoseError:
@@ -606,11 +646,16 @@ class Shell:
         return True
 
     def check_turn(self, check_id: str, action: Action | None) -> None:
+        from diagnose.service import preferred_answer
+
         s = self.session
         chk = self.model.checks[check_id]
         self._current = ("check", check_id)
         if chk.measurement is not None:
-            msg = f"Reading ({chk.measurement.unit} if no unit is given), unsure or skip: "
+            from diagnose.physics.units import bare_unit
+
+            bare = bare_unit(chk.measurement.unit, self.units)
+            msg = f"Reading ({bare} if no unit is given), unsure or skip: "
         else:
             msg = f"Answer ({'/'.join(chk.outcomes)}, unsure, skip): "
         if not self.present(check_id, lambda shown: self.check_card(chk, action, shown=shown),
@@ -651,7 +696,7 @@ class Shell:
                                  f"such as 3.2 {chk.measurement.unit}, or OL for open), nor a "
                                  "command (help lists them)")
             try:
-                return s.answer(check_id, text)
+                return s.answer(check_id, preferred_answer(chk, text, self.units))
             except InputError as exc:
                 more = ("; type: nameplate PARAM VALUE" if "nameplate value" in exc.message
                         else "")
@@ -674,10 +719,16 @@ class Shell:
             self.say(f"  {chk.id}: unsure (recorded; no evidence either way)", style="dim")
             return
         if finding.verdict is not None:
-            self.console.print(VerdictView(finding.verdict))
+            self.console.print(VerdictView(finding.verdict, self.units))
             if finding.soft:
                 self.say("  near a band edge: counted as "
                          + ", ".join(f"{o} {w:.0%}" for o, w in finding.weights.items()))
+            if finding.assumed:
+                from diagnose.session import assumed_note
+
+                defaults = {k: p.default for k, p in self.model.parameters.items()}
+                self.say(f"  {assumed_note(self.session.evidence, finding.assumed, defaults)}",
+                         style="yellow")
             return
         wording = chk.outcome_titles.get(finding.outcome, "")
         line = Text(f"  {chk.title}: ", style="bold")
@@ -721,6 +772,8 @@ class Shell:
             raise InputError("cured", "answer yes or no, or skip if it cannot be done now "
                              "(or choose another step with do CHECK or repair REPAIR)")
 
+        if s.evidence.pending_repair != repair_id:
+            s.start_repair(repair_id)
         if s.mode == "site":
             self.observe_during(repair_id)
         cured = self.ask(f"{asked} (yes/no, skip): ", parse,
@@ -730,12 +783,23 @@ class Shell:
         if cured is None:
             self.skip_repair(repair_id)
             return
-        s.repair(repair_id, cured)
+        parts = self.ask_parts(rep) if s.mode == "site" else []
+        s.repair(repair_id, cured, parts)
         self._current = None
         if cured:
             self.say(f"  {rep.title}: cured.", style="green")
         else:
             self.say(f"  {rep.title}: not cured; the ranking is updated.", style="yellow")
+
+    def ask_parts(self, rep: Repair) -> list[dict[str, Any]]:
+        """The parts fitted at the repair, for the log (Enter: none)."""
+        from diagnose.service.parts import HINT, parse_parts
+
+        listed = list(rep.parts)
+        for i, part in enumerate(listed, 1):
+            self.say(f"  {i}) {part}", style="dim")
+        return self.ask(f"Parts fitted ({HINT}): ", lambda t: parse_parts(t, listed),
+                        answers=tuple((str(i), p) for i, p in enumerate(listed, 1)))
 
     def observe_during(self, repair_id: str) -> None:
         """The checks in plain sight while the repair has the unit apart: no extra minutes.
@@ -798,13 +862,43 @@ class Shell:
             self.ask("Close the diagnosis with this result? (yes, or a command): ", parse,
                      answers=(("yes", "close the diagnosis"),),
                      empty="type yes to close, or a command (help lists them)")
+        finding = None
         if s.evidence.cured:
             result = "resolved"
+            finding = self.ask_finding()
         else:
             result = {"visit": "visit", "escalate": "escalated"}.get(action.kind, "abandoned")
-        s.end(result, parts=action.parts)
+        s.end(result, parts=action.parts, finding=finding)
         self.say(f"Session {s.session_id} is closed.", style="bold")
         return True
+
+    def ask_finding(self) -> str:
+        """What the technician found: the cause the cure confirms (the leading one by Enter)."""
+        s = self.session
+        cured = [r for r, c in s.evidence.repairs if c]
+        rep = self.model.repairs.get(cured[-1]) if cured else None
+        fixes = [c for c in (rep.fixes if rep else ()) if c in self.model.causes]
+        ranked = [e.cause for e in s.ranking().entries if e.cause in self.model.causes]
+        choices = sorted(fixes, key=ranked.index) if fixes else ranked[:5]
+        top = choices[0] if choices else "unknown"
+        for i, c in enumerate(choices, 1):
+            self.say(f"  {i}) {self.model.causes[c].title}", style="dim")
+
+        def parse(text: str) -> str:
+            low = text.strip().lower()
+            if not low:
+                return top
+            if low.isdigit() and 1 <= int(low) <= len(choices):
+                return choices[int(low) - 1]
+            if low in self.model.causes or low == "unknown":
+                return low
+            raise InputError("finding", f"a number 1 to {len(choices)}, a cause id, or "
+                                        "unknown (none of the known causes)")
+
+        title = self.model.causes[top].title if top in self.model.causes else top
+        return self.ask(f"What did you find? [{title}]: ", parse,
+                        answers=tuple((c, self.model.causes[c].title) for c in choices)
+                        + (("unknown", "none of the known causes"),))
 
     def end_view(self, action: Action) -> EndView:
         s = self.session
@@ -820,10 +914,11 @@ class Shell:
                            (f"{'What' if phone else 'Repair that'} cured it: {rep.title}"
                             if rep else "",), log=self.log_hint())
         if action.kind == "visit":
-            causes = "; ".join(self.model.causes[c].title for c in action.causes
-                               if c in self.model.causes)
+            from diagnose.service.handoff import handoff
+
+            brief = handoff(s, action.parts, action.causes)
             return EndView("visit", "Recommendation: send a technician to the site.",
-                           (f"Most likely: {causes}." if causes else "", _sentence(action.reason)),
+                           (*brief.lines(), _sentence(action.reason)),
                            tuple(action.parts), self.log_hint())
         if action.kind == "escalate":
             head = ("Recommendation: a site visit with an application engineer; none of the "
@@ -858,7 +953,12 @@ class Shell:
         if s.ended:
             return
         if self.journal_path:
-            self.say(f"Saved. Resume with: diagnose resume {s.session_id}", style="bold")
+            from diagnose.service import resume_command
+
+            self.say("Saved. Resume with:", style="bold")
+            # on a line of its own and never folded, so that it can be copied as it is
+            self.console.print(resume_command(s.session_id, self.journal_path), soft_wrap=True,
+                               markup=False, highlight=False, emoji=False)
         else:
             self.say("Left without a journal: nothing was stored.", style="bold")
 
@@ -867,19 +967,23 @@ class Shell:
         return steps_taken(self.session.events)
 
     def toolbar(self) -> str:
-        """pack | mode | session | steps | top cause: the bottom toolbar's text."""
+        """mode | session | steps | the leading cause: the bottom toolbar's text.
+
+        The leading cause by its title, shortened to the room left; the pack is
+        named at the start of the session and by `help`.
+        """
         s = self.session
         cause, share = "-", ""
         try:
             if s.evidence.complaints:
                 top = s.ranking().top
-                cause, share = top.cause, f" {percent(top.p)}"
+                cause, share = top.title or top.cause, f" {percent(top.p)}"
         except Exception:  # noqa: BLE001 - drawn on every key, it must never fail
             cause, share = "-", ""
-        head = f" {self.model.id} | {s.mode} | session {s.session_id} | step {self.steps()} | top: "
+        head = f" {s.mode} | session {s.session_id} | step {self.steps()} | "
         room = _width() - len(head) - len(share) - 1
-        if len(cause) > room:  # shorten the cause's id, keep its probability
-            cause = cause[: max(room - 1, 1)] + "…"
+        if len(cause) > room:  # shorten the cause's title, keep its probability
+            cause = cause[: max(room - 1, 1)].rstrip() + "…"
         return f"{head}{cause}{share} "
 
     # --- what the commands call ------------------------------------------------------------

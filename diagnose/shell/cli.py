@@ -2,9 +2,9 @@
 
 `diagnose start [PACK] [--mode site|phone]` opens the interactive diagnosis
 shell on a new session; bare `diagnose` calls :func:`default`, which opens it
-on the default pack in site mode; `diagnose resume ID` continues an open
-session in it. The shell itself (prompt_toolkit, rich) is imported only when
-it runs, so `diagnose --help` stays fast.
+on the default pack in site mode (or the settings file's mode); `diagnose
+resume ID` continues an open session in it. The shell itself (prompt_toolkit,
+rich) is imported only when it runs, so `diagnose --help` stays fast.
 """
 
 from __future__ import annotations
@@ -26,12 +26,14 @@ def register(sub: Any) -> None:
         "by line from standard input.")
     p.add_argument("pack", nargs="?", metavar="PACK",
                    help="pack id or folder (default: spring-applied-brake)")
-    p.add_argument("--mode", choices=("site", "phone"), default="site",
-                   help="site: a technician at the unit (default); phone: a help-desk agent "
-                   "asking a caller only what is safe without tools, ending with a "
-                   "recommendation (resolved, or a site visit with the parts to bring)")
+    p.add_argument("--mode", choices=("site", "phone"), default=None,
+                   help="site: a technician at the unit (default, or the settings file's "
+                   "mode); phone: a help-desk agent asking a caller only what is safe without "
+                   "tools, ending with a recommendation (resolved, or a site visit with the "
+                   "parts to bring)")
     p.add_argument("--who", metavar="NAME", type=storable,
-                   help="who does the diagnosis, for the repair log")
+                   help="who does the diagnosis, for the repair log (default: the settings "
+                   "file's technician)")
     p.set_defaults(handler=run)
 
     p = sub.add_parser("resume", help="continue an open diagnosis where it stopped",
@@ -46,7 +48,7 @@ def register(sub: Any) -> None:
 
 
 def default(args: argparse.Namespace) -> int:
-    """Bare `diagnose`: the shell on the default pack, in site mode."""
+    """Bare `diagnose`: the shell on the default pack, in site mode (or the settings file's)."""
     return run(args)
 
 

@@ -50,6 +50,12 @@ class Command:
         doc = (self.func.__doc__ or "").strip()
         return " ".join(doc.split("\n\n")[0].split())
 
+    @property
+    def details(self) -> tuple[str, ...]:
+        """The docstring's further paragraphs, each on one line (what `help NAME` adds)."""
+        doc = (self.func.__doc__ or "").strip()
+        return tuple(" ".join(p.split()) for p in doc.split("\n\n")[1:] if p.strip())
+
     def __call__(self, shell: Shell, arg: str) -> Any:
         return self.func(shell, arg)
 
@@ -100,7 +106,7 @@ def help_(shell: Shell, arg: str) -> None:
         cmd = find(topic)
         if cmd is None:
             raise InputError("help", f"no command {topic!r}; commands: {', '.join(COMMANDS)}")
-        shell.console.print(HelpView(((cmd.usage, cmd.help),)))
+        shell.console.print(HelpView(((cmd.usage, cmd.help),), cmd.details))
         return
     rows = tuple((c.usage, c.help) for c in COMMANDS.values())
     shell.console.print(HelpView(rows, (
@@ -123,7 +129,16 @@ def _checks_offered(shell: Shell) -> tuple[Choice, ...]:
 
 @command("why [CHECK]", choices=_checks_offered)
 def why(shell: Shell, arg: str) -> None:
-    """Explain the ranking (which answers moved which cause), or why a check is worth doing."""
+    """Explain the ranking (which answers moved which cause), or why a check is worth doing.
+
+    The figures: a check's expected information is in bits (1 bit settles a
+    question between two equally likely causes; 0.1 bit tells a little), and
+    bits/min is that for each minute of work. ECO is the expected minutes to
+    the cure if this check is done first and the repairs follow in the best
+    order; ECR the expected minutes if you repaired now instead. A check is
+    proposed when its ECO is below the ECR (or while nothing points at a cause
+    yet); the cards say the same in words ("worth checking first").
+    """
     from diagnose.views_reasoning import CheckExplanationView, RankingExplanationView
 
     s = shell.session
@@ -146,7 +161,13 @@ def ranking(shell: Shell, arg: str) -> None:
 
 @command("checks")
 def checks(shell: Shell, arg: str) -> None:
-    """List every check with its score (expected information per minute) and state."""
+    """List every check with its score (expected information per minute) and state.
+
+    Columns: min (its minutes, with what must be done first), bits (what it is
+    expected to tell), bits/min, ECO (expected minutes to the cure if it is done
+    first; the lowest is proposed when it beats repairing now, the ECR in the
+    heading) and why a check is not offered. `help why` says more.
+    """
     from diagnose.views_reasoning import ChecksTableView
 
     shell.console.print(ChecksTableView(shell.session.checks_table()))
@@ -154,7 +175,7 @@ def checks(shell: Shell, arg: str) -> None:
 
 @command("do CHECK", choices=_checks_offered)
 def do(shell: Shell, arg: str) -> None:
-    """Do another check than the one proposed: `do coil_resistance`."""
+    """Do another check than the one proposed: `do air_gap`."""
     arg = _need(arg, "check", "do CHECK")
     s = shell.session
     if not s.evidence.complaints:
@@ -243,7 +264,8 @@ def state(shell: Shell, arg: str) -> None:
 _UNDONE = {"nameplate": "nameplate value", "complaint": "complaint", "answer": "answer",
            "reading": "reading", "unsure": "unsure answer", "skip": "skip",
            "skip_repair": "skipped repair", "repair": "repair", "note": "note",
-           "mode": "mode change", "identity": "identity"}
+           "mode": "mode change", "identity": "identity", "attachment": "attachment",
+           "state": "state of the unit"}
 
 
 @command("undo")
@@ -255,7 +277,7 @@ def undo(shell: Shell, arg: str) -> None:
     what = _UNDONE.get(event.kind, event.kind)
     data = event.data
     detail = data.get("check") or data.get("repair") or data.get("param") or data.get(
-        "complaint") or data.get("text") or ""
+        "complaint") or data.get("text") or data.get("name") or ""
     shell.say(f"  undone: {what} {detail}".rstrip(), style="yellow")
     shell.restart()
 
@@ -265,6 +287,23 @@ def note(shell: Shell, arg: str) -> None:
     """Add a note to the repair log: `note customer reports a burnt smell`."""
     shell.session.note(_need(arg, "note", "note TEXT"))
     shell.say("  noted.", style="dim")
+
+
+@command("attach PATH [caption]")
+def attach(shell: Shell, arg: str) -> None:
+    """Attach a photo or file to the repair log: `attach disc.jpg worn to the rivets`.
+
+    The file is copied into the journal's attachment store (once per content, up
+    to 20 MB; a name ending .jpg or .png must hold a picture). A path with spaces
+    goes in quotes.
+    """
+    from diagnose.service.attach import attach as keep
+    from diagnose.service.attach import split_argument
+
+    path, caption = split_argument(_need(arg, "attach", "attach PATH [caption]"))
+    event = keep(shell.session, shell.journal_path, path, caption)
+    kind = "photo" if event.media_type.startswith("image/") else "file"
+    shell.say(f"  attached {kind} {event.name} ({event.size / 1e6:.1f} MB).", style="dim")
 
 
 def _repairs_offered(shell: Shell) -> tuple[Choice, ...]:
@@ -324,8 +363,11 @@ def mode(shell: Shell, arg: str) -> None:
 def save(shell: Shell, arg: str) -> None:
     """Make sure everything is in the journal and show how to resume this session later."""
     if shell.journal_path:
-        shell.say("  Saved: every answer is in the journal as it is given. Resume with: "
-                  f"diagnose resume {shell.session.session_id}")
+        from diagnose.service import resume_command
+
+        shell.say("  Saved: every answer is in the journal as it is given. Resume with:")
+        shell.console.print(resume_command(shell.session.session_id, shell.journal_path),
+                            soft_wrap=True, markup=False, highlight=False, emoji=False)
     else:
         shell.say("  No journal in use: nothing can be saved.")
 

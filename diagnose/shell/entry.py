@@ -48,17 +48,22 @@ def main(args: argparse.Namespace, *, console: Any = None, reader: Any = None) -
     and read while the pack loads in the background (see ``startup``); from a
     script, the pack is loaded first and the notice shown as the session starts.
 
+    The settings file gives the mode, the technician (``--who``) and the units
+    when the command line does not.
+
     Raises:
-        InputError: no such pack or a bad mode; KnowledgeError: the pack is broken;
-        JournalError: the journal cannot be written.
+        InputError: no such pack, a bad mode or a broken settings file;
+        KnowledgeError: the pack is broken; JournalError: the journal cannot be written.
     """
     from diagnose.kb.locate import DEFAULT_PACK
-    from diagnose.service import Where, journal_path, open_journal, open_pack, start
+    from diagnose.service import Where, journal_path, open_journal, open_pack, preferences, start
 
     where = Where.of(args)
+    prefs = preferences(args)
 
     ref = getattr(args, "pack", None) or DEFAULT_PACK
-    mode = getattr(args, "mode", None) or "site"
+    mode = getattr(args, "mode", None) or prefs.mode
+    who = getattr(args, "who", None) or prefs.technician
     console = console or _console()
     holder: list[Shell] = []
     notice = None
@@ -84,9 +89,9 @@ def main(args: argparse.Namespace, *, console: Any = None, reader: Any = None) -
             console.print(f"Loading the pack {ref} ...", style="dim", markup=False)
         model = open_pack(ref, where)
     with open_journal(where) as journal:
-        session = start(journal, model, where, mode=mode, who=getattr(args, "who", None) or None)
+        session = start(journal, model, where, mode=mode, who=who or None)
         return _run(session, console, reader, str(journal_path(where)), resumed=False,
-                    holder=holder, notice_shown=notice is not None)
+                    holder=holder, notice_shown=notice is not None, units=prefs.units)
 
 
 def resume(args: argparse.Namespace, session_id: str, *, console: Any = None,
@@ -102,21 +107,24 @@ def resume(args: argparse.Namespace, session_id: str, *, console: Any = None,
         JournalError: no journal, no such session, or the session is closed;
         InputError: the pack cannot be found, or the session was recorded with another pack.
     """
-    from diagnose.service import Where, journal_path, need_journal, open_journal
+    from diagnose.service import Where, journal_path, need_journal, open_journal, preferences
     from diagnose.service import resume as resume_session
 
     where = Where.of(args)
+    units = preferences(args).units
     need_journal(where).close()  # a missing journal is said as such, not made anew
     console = console or _console()
     with open_journal(where) as journal:
         resumed = resume_session(journal, session_id, where, getattr(args, "pack", None))
-        return _run(resumed.session, console, reader, str(journal_path(where)), resumed=True)
+        return _run(resumed.session, console, reader, str(journal_path(where)), resumed=True,
+                    units=units)
 
 
 def _run(session: Session, console: Any, reader: Any, path: str | None, *,
-         resumed: bool, holder: list[Shell] | None = None, notice_shown: bool = False) -> int:
+         resumed: bool, holder: list[Shell] | None = None, notice_shown: bool = False,
+         units: str = "metric") -> int:
     holder = [] if holder is None else holder
     shell = Shell(session, console, reader or _reader(console, holder), journal_path=path,
-                  resumed=resumed, notice_shown=notice_shown)
+                  resumed=resumed, notice_shown=notice_shown, units=units)
     holder.append(shell)
     return shell.run()

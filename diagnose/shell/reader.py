@@ -10,8 +10,6 @@ offers at that question.
 
 from __future__ import annotations
 
-import os
-import sys
 from collections.abc import Callable
 from pathlib import Path
 from typing import IO, Any
@@ -22,31 +20,16 @@ from diagnose.text import clean
 HISTORY_FILE = "history"
 
 
-def state_dir(env: dict[str, str] | None = None) -> Path:
-    """The user's state folder for diagnose: ``$XDG_STATE_HOME/diagnose`` or its default.
-
-    References:
-        XDG Base Directory Specification 0.8, ``$XDG_STATE_HOME`` (default
-        ``~/.local/state``; a relative value is ignored).
-    """
-    env = dict(os.environ) if env is None else env
-    xdg = env.get("XDG_STATE_HOME", "")
-    if xdg and os.path.isabs(xdg):
-        return Path(xdg) / "diagnose"
-    if sys.platform in ("win32", "darwin"):
-        from diagnose.paths import data_dir
-
-        return data_dir(env)
-    return Path.home() / ".local" / "state" / "diagnose"
-
-
 def history_path(env: dict[str, str] | None = None) -> Path:
-    """The file where the shell keeps what was typed, across sessions (per user)."""
+    """The file where the shell keeps what was typed, across sessions (per user), in the
+    state folder (:func:`diagnose.paths.state_dir`)."""
+    from diagnose.paths import state_dir
+
     return state_dir(env) / HISTORY_FILE
 
 
 def file_history() -> Any:
-    """A prompt_toolkit history in :func:`history_path`, or one in memory if that cannot be written."""
+    """A prompt_toolkit history in :func:`history_path`, or in memory if that cannot be written."""
     from prompt_toolkit.history import FileHistory, InMemoryHistory
 
     path = history_path()
