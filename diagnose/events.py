@@ -316,6 +316,16 @@ class Ended(Event):
 
 
 @dataclass(frozen=True)
+class Reopened(Event):
+    """A phone diagnosis that ended with a site visit goes on at the site (``mode``), by ``who``."""
+
+    KIND = "reopen"
+    UNDOABLE = False
+    mode: str = "site"
+    who: str | None = _optional()
+
+
+@dataclass(frozen=True)
 class Undone(Event):
     """The event at position ``index`` is taken back (``kind``: what it was)."""
 
@@ -342,7 +352,7 @@ CLASSES: tuple[type[Event], ...] = (
     Started, IdentityGiven, NameplateRead, ComplaintReported, Answered, ReadingTaken,
     LeftUnsure, Skipped, RepairSkipped, Acknowledged, Reminded, RepairStarted, Repaired, Noted,
     Attached,
-    HistoryNoted, ModeSet, StateSet, Ended, Undone)
+    HistoryNoted, ModeSet, StateSet, Ended, Reopened, Undone)
 
 #: The stored key of a field whose name differs from it (``Undone.was`` is stored as "kind").
 _KEY = {(Undone, "was"): "kind"}

@@ -48,6 +48,7 @@ from diagnose.events import (
     Noted,
     ReadingTaken,
     Reminded,
+    Reopened,
     Repaired,
     RepairSkipped,
     RepairStarted,
@@ -158,6 +159,8 @@ def apply(evidence: Evidence, event: Event) -> Evidence:
             return evidence.with_history(cause, factor)
         case Ended():
             return replace(evidence, end=event.data)
+        case Reopened(mode=mode):
+            return replace(evidence, end=None, mode=mode)
     return evidence
 
 
@@ -659,13 +662,28 @@ class Session:
                             parts=tuple(parts) if result == "visit" else (), text=str(text),
                             finding=finding)
 
+    def reopen_for_visit(self, who: str | None = None) -> Event:
+        """Go on at the site with a phone diagnosis that ended with a site visit.
+
+        The caller's answers stay; the session is open again in site mode, and
+        its next end closes it for good. ``who``: the technician at the site.
+
+        Raises:
+            InputError: the diagnosis did not end with a site visit.
+        """
+        end = self._evidence.end
+        if end is None or end.get("result") != "visit":
+            raise InputError("session", "only a diagnosis that ended with a site visit can "
+                                        "be taken up again")
+        return self._record(Reopened, mode="site", who=str(who).strip() or None if who else None)
+
     def undo(self) -> Event | None:
         """Undo the last event that can be undone; returns it (None when there is none)."""
         undone = {e.index for e in self._events if isinstance(e, Undone)}
         for i in range(len(self._events) - 1, -1, -1):
             e = self._events[i]
-            if isinstance(e, Ended) and i not in undone:
-                return None  # nothing before the end can be changed any more
+            if isinstance(e, (Ended, Reopened)) and i not in undone:
+                return None  # nothing before the end (or the visit) can be changed any more
             if e.UNDOABLE and i not in undone:
                 self._record(Undone, index=i, was=e.kind)
                 return e

@@ -374,7 +374,7 @@ def test_a_unit_with_two_earlier_jobs_shows_them_and_a_recent_finding_is_raised(
     assert status == 0
     assert "Earlier jobs on this unit" in screen
     assert "-> Fuse blown" in screen and "-> Lining worn" in screen
-    assert "Found on this unit 10 day(s) ago: Fuse blown" in screen
+    assert "Found on this unit 10 days ago: Fuse blown" in screen
     assert "Found on this unit 200" not in screen  # older than 90 days: shown, not raised
     assert "found on this unit before: fuse_blown" in screen  # `why` shows the step
     with Journal(jpath, readonly=True) as journal:
@@ -529,3 +529,43 @@ def test_an_answers_file_attaches_its_photos_once(tmp_path, capsys):
     code = main(base)
     err = capsys.readouterr().err
     assert code != 0 and "cannot read" in err and len(err.strip().splitlines()) == 1
+
+
+def test_a_phone_call_ended_with_a_visit_goes_on_at_the_site(tmp_path):
+    import os
+
+    from test_shell_parts import args_for, run_lines
+
+    from diagnose.journal.recorder import start_session as begin
+    from diagnose.kb.loader import load_model
+    from diagnose.shell.entry import resume
+
+    pack = load_model(str(MINI.parent / "shell-brake"))
+    jpath = os.environ["DIAGNOSE_JOURNAL"]
+    with Journal(jpath) as journal:
+        call = begin(journal, pack, mode="phone", who="Dana")
+        call.add_complaint("will_not_release")
+        call.answer("listen_click", "silent")
+        call.end("visit", parts=["fuse of the same rating"])
+        sid = call.session_id
+    args = args_for()
+    args.who = "Sam"  # the technician at the site
+    status, screen = run_lines(resume, [""] * 7 + ["repair replace_coil", "ack", "yes", "", ""],
+                               args, sid)
+    assert status == 0
+    assert "it goes on here, on site, with the caller's answers kept" in " ".join(screen.split())
+    with Journal(jpath, readonly=True) as journal:
+        info = journal.session(sid)
+        events = journal.load_events(sid)
+        record = session_record(journal, sid, pack)
+    kinds = [e.kind for e in events]
+    assert kinds.count("end") == 2 and kinds.index("reopen") == kinds.index("end") + 1
+    assert info.status == "closed" and info.outcome == "resolved"
+    replayed = Session.replay(pack, events)
+    assert replayed.evidence.findings["listen_click"] == {"silent": 1.0}  # the caller's answer
+    assert replayed.evidence.end["result"] == "resolved" and record.result == "resolved"
+    assert record.session["who"] == "Dana (phone), Sam (site)"
+    assert {s.who for s in record.steps} == {"Dana", "Sam"}
+    again = Session.replay(pack, events[: kinds.index("reopen") + 1])
+    assert again.mode == "site" and not again.ended
+    assert again.undo() is None  # the phone part is on the record for good

@@ -36,6 +36,7 @@ from diagnose.events import (
     NameplateRead,
     Noted,
     ReadingTaken,
+    Reopened,
     Repaired,
     RepairSkipped,
     Skipped,
@@ -243,6 +244,9 @@ def build_record(info: Any, events: Sequence[Event], model: Any = None,
     result = _text((end or {}).get("result")) or getattr(info, "outcome", None)
     cause_id = confirmed_cause(result, end, steps, model)
     session = info.to_dict() if hasattr(info, "to_dict") else dict(info or {})
+    if fold.site_who and fold.site_who != session.get("who"):
+        phone = session.get("who")
+        session["who"] = f"{phone} (phone), {fold.site_who} (site)" if phone else fold.site_who
     return Record(
         session=session, pack=_pack_of(session, events, model),
         notice=fold.notice or str(getattr(model, "notice", "") or ""),
@@ -344,6 +348,7 @@ class _Fold:
     notes: list[dict[str, Any]] = field(default_factory=list)
     attachments: list[dict[str, Any]] = field(default_factory=list)
     initial: tuple[dict[str, Any], ...] = ()
+    site_who: str | None = None
 
     def add(self, event: Event, ranking: tuple[dict[str, Any], ...]) -> None:
         """Fold in one event that still counts; ``ranking`` is the one after it."""
@@ -362,6 +367,9 @@ class _Fold:
                 self.initial = ranking or self.initial
             case Acknowledged():
                 self.cautions.append(self._caution(event))
+            case Reopened(who=who) if who:
+                self.site_who = who  # the technician who takes it up at the site
+                self.who = who
             case Noted(text=text):
                 self.notes.append({"time": event.time, "who": self.who, "text": text})
             case Attached():

@@ -89,8 +89,11 @@ def ensure_open(info: Any) -> None:
                            f"`diagnose report {info.id}` shows its repair log")
 
 
-def resume_session(journal: Any, session_id: str, model: Any, **options: Any) -> Any:
+def resume_session(journal: Any, session_id: str, model: Any, *, closed_ok: bool = False,
+                   **options: Any) -> Any:
     """The session ``session_id`` rebuilt from its events, recording on into ``journal``.
+
+    ``closed_ok``: a closed session is rebuilt too (to be taken up again for a site visit).
 
     Raises:
         JournalError: no such session, or it is closed.
@@ -98,7 +101,8 @@ def resume_session(journal: Any, session_id: str, model: Any, **options: Any) ->
     """
     from diagnose.session import Session
 
-    ensure_open(journal.session(session_id))
+    if not closed_ok:
+        ensure_open(journal.session(session_id))
     events = journal.load_events(session_id)
     recorder = Recorder(journal, model, max_faults=started(events).max_faults, events=events)
     return Session.replay(model, events, sink=recorder, session_id=session_id, **options)

@@ -555,7 +555,10 @@ class Journal:
             if unit:
                 conn.execute(f"UPDATE session SET {', '.join(f'{k} = ?' for k in unit)} "
                              "WHERE id = ?", (*unit.values(), session_id))
-            if kind == "end":
+            if kind == "reopen":  # a phone diagnosis goes on at the site visit
+                conn.execute("UPDATE session SET updated = ?, status = 'open', outcome = NULL, "
+                             "cause = NULL WHERE id = ?", (when, session_id))
+            elif kind == "end":
                 outcome, cause = _end_fields(data)
                 conn.execute("UPDATE session SET updated = ?, status = 'closed', outcome = ?, "
                              "cause = ? WHERE id = ?", (when, outcome, cause, session_id))

@@ -317,10 +317,13 @@ class Resumed:
 
 
 def resume(journal: Any, session_id: str, where: Where, pack: str | None = None, *,
-           choice: PackChoice | None = None) -> Resumed:
+           choice: PackChoice | None = None, visit: bool = False,
+           who: str | None = None) -> Resumed:
     """Session ``session_id`` of ``journal`` rebuilt from its events, recording on into it.
 
     ``choice``: the pack already chosen by :func:`recorded_pack` (else chosen here).
+    ``visit``: a phone diagnosis that ended with a site visit is taken up again at the
+    site (the shell's `resume`), its caller's answers kept, by ``who``.
 
     Raises:
         JournalError: no such session, or it is closed; InputError: no pack to continue with,
@@ -329,10 +332,15 @@ def resume(journal: Any, session_id: str, where: Where, pack: str | None = None,
     from diagnose.journal.recorder import ensure_open, resume_session
 
     info = journal.session(session_id)
-    ensure_open(info)
+    reopen = visit and not info.is_open and info.outcome == "visit"
+    if not reopen:
+        ensure_open(info)
     if choice is None:
         choice = recorded_pack(info, recorded_events(journal, session_id), where, pack)
-    return Resumed(resume_session(journal, session_id, choice.model), choice, info)
+    session = resume_session(journal, session_id, choice.model, closed_ok=reopen)
+    if reopen:
+        session.reopen_for_visit(who)
+    return Resumed(session, choice, info)
 
 
 def resume_command(session_id: str, journal: Any) -> str:

@@ -131,6 +131,9 @@ class Shell:
             note = session_note(self.session)
             if note:
                 self.warn(note)
+            if self.session.events and self.session.events[-1].kind == "reopen":
+                self.say("The phone diagnosis ended with a site visit: it goes on here, on "
+                         "site, with the caller's answers kept.", style="bold")
         else:
             if not self.notice_shown:
                 self.console.print(NoticeView(self.session.notice or FALLBACK_NOTICE))
@@ -424,8 +427,9 @@ class Shell:
                      f" -> {found}{cure}")
         for cause, (days, ids) in recurrences(jobs, self.model).items():
             self.session.note_history(cause, RECURRENCE_FACTOR, days=days, sessions=ids)
-            self.say(f"  Found on this unit {days} day(s) ago: {self.model.causes[cause].title}. "
-                     f"It starts {RECURRENCE_FACTOR:g} times as likely (undo takes this back).",
+            when = "today" if days == 0 else "yesterday" if days == 1 else f"{days} days ago"
+            self.say(f"  Found on this unit {when}: {self.model.causes[cause].title}. It starts "
+                     f"{RECURRENCE_FACTOR:g} times as likely (undo takes this back).",
                      style="yellow")
 
     def complaint_choices(self, *, both: bool = False) -> list[Choice]:
@@ -655,7 +659,7 @@ class Shell:
             from diagnose.physics.units import bare_unit
 
             bare = bare_unit(chk.measurement.unit, self.units)
-            msg = f"Reading ({bare} if no unit is given), unsure or skip: "
+            msg = f"Reading ({unit_text(bare)} if no unit is given), unsure or skip: "
         else:
             msg = f"Answer ({'/'.join(chk.outcomes)}, unsure, skip): "
         if not self.present(check_id, lambda shown: self.check_card(chk, action, shown=shown),

@@ -44,6 +44,9 @@ def register(sub: Any) -> None:
                        "search path); a changed pack is named. Without a terminal, answers are "
                        "read from standard input.")
     p.add_argument("session_id", metavar="ID", help="the session id (see `diagnose sessions`)")
+    p.add_argument("--who", metavar="NAME", type=storable,
+                   help="the technician who takes up a phone diagnosis at the site visit, for "
+                   "the repair log (default: the settings file's technician)")
     p.set_defaults(handler=resume)
 
 

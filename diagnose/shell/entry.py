@@ -115,7 +115,9 @@ def resume(args: argparse.Namespace, session_id: str, *, console: Any = None,
     need_journal(where).close()  # a missing journal is said as such, not made anew
     console = console or _console()
     with open_journal(where) as journal:
-        resumed = resume_session(journal, session_id, where, getattr(args, "pack", None))
+        who = getattr(args, "who", None) or preferences(args).technician or None
+        resumed = resume_session(journal, session_id, where, getattr(args, "pack", None),
+                                 visit=True, who=who)
         return _run(resumed.session, console, reader, str(journal_path(where)), resumed=True,
                     units=units)
 
