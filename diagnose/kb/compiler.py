@@ -31,6 +31,7 @@ from diagnose.kb.model import (
     Step,
 )
 from diagnose.kb.schema import SECTIONS, pack_schema
+from diagnose.kb.terms import fill
 from diagnose.kb.yamlpos import Document, Path
 from diagnose.text import short_values
 
@@ -61,6 +62,8 @@ class _Ctx:
     problems: list[Problem] = field(default_factory=list)
     items: dict[str, dict[str, _Item]] = field(default_factory=lambda: {s: {} for s in SECTIONS})
     extensions: list[_Item] = field(default_factory=list)  # `extend_checks` entries
+    overrides: list[_Item] = field(default_factory=list)  # `override` entries
+    hides: list[_Item] = field(default_factory=list)  # `hide` entries (id in `data["id"]`)
 
     def error(self, msg: str, src: Source | None, code: str) -> None:
         self.problems.append(Problem("error", short_values(msg), src, code))
@@ -177,6 +180,7 @@ def _collect(sources: list[Any], ctx: _Ctx, schema: bool = True) -> None:
                     ctx.extensions.append(_Item("extend_checks", raw["check"], raw, doc,
                                                 ("extend_checks", i), src.id,
                                                 ("extend_checks", i) not in bad))
+            _collect_device_entries(src, doc, bad, ctx)
             for section in SECTIONS:
                 entries = doc.data.get(section) if isinstance(doc.data, dict) else None
                 if not isinstance(entries, list):
@@ -187,6 +191,74 @@ def _collect(sources: list[Any], ctx: _Ctx, schema: bool = True) -> None:
                     item = _Item(section, raw["id"], raw, doc, (section, i), src.id,
                                  (section, i) not in bad)
                     _register(item, ctx)
+
+
+def _collect_device_entries(src: Any, doc: Document, bad: set[Path], ctx: _Ctx) -> None:
+    """The ``override`` and ``hide`` entries of one document (see :func:`_device_pack`)."""
+    data = doc.data if isinstance(doc.data, dict) else {}
+    for i, raw in enumerate(data.get("override") if isinstance(data.get("override"), list)
+                            else []):
+        if isinstance(raw, dict) and isinstance(raw.get("id"), str):
+            ctx.overrides.append(_Item("override", raw["id"], raw, doc, ("override", i),
+                                       src.id, ("override", i) not in bad))
+    for i, raw in enumerate(data.get("hide") if isinstance(data.get("hide"), list) else []):
+        if isinstance(raw, str):
+            ctx.hides.append(_Item("hide", raw, {"id": raw}, doc, ("hide", i), src.id, True))
+
+
+def _device_pack(manifest: Mapping[str, Any], top: Any, ctx: _Ctx) -> dict[str, str]:
+    """Apply a device pack's wording: overrides, then its terms in every worded field.
+
+    An ``override`` entry gives new wording (``OVERRIDABLE`` keys) to an entity of
+    a pack the device pack builds on; lint checks that it names one and changes
+    something. Then every text of every entity, and the manifest's, has the
+    device's terms filled in (:mod:`diagnose.kb.terms`). Returns the terms.
+    """
+    from diagnose.kb.schema import OVERRIDABLE
+    from diagnose.kb.terms import fill_all, terms_of
+
+    for o in ctx.overrides:
+        target = next((x for pool in ctx.items.values() for x in [pool.get(o.id)] if x), None)
+        if target is None:
+            ctx.ref(o.id, tuple(SECTIONS), o.at("id"), "override")
+            continue
+        changes = {k: v for k, v in o.data.items() if k in OVERRIDABLE}
+        if all(target.data.get(k) == v for k, v in changes.items()):
+            ctx.warn(f"override of {o.id!r} changes nothing", o.at("id"), "override-no-change")
+        target.data = {**target.data, **changes}
+    terms, wrong = terms_of(manifest.get("device"))
+    if any(p.message.startswith("`device`") for p in ctx.problems):
+        wrong = []  # the schema said it already, at its line
+    for line in wrong:
+        ctx.error(line, top.documents[0].where(("device",)) if top.documents else None,
+                  "device-terms")
+    for x in [i for pool in ctx.items.values() for i in pool.values()] + ctx.extensions:
+        for sub, name, filled in fill_all(x.data, terms):
+            if name:
+                ctx.error(f"{{{name}}} is not a term of the device; terms: "
+                          f"{', '.join('{' + t + '}' for t in terms)}", x.at(*sub),
+                          "unknown-term")
+            else:
+                x.data = filled
+    return terms
+
+
+def _hidden(complaints: dict[str, Complaint], checks: dict[str, Check], ctx: _Ctx
+            ) -> tuple[dict[str, Complaint], dict[str, Check]]:
+    """The complaints and checks a device pack hides (``hide``), marked hidden.
+
+    A hidden complaint is left out of the complaint menus; a hidden check is
+    never offered or proposed (it counts as not for this unit). Both stay in
+    the model, so that what the base packs say about them still holds.
+    """
+    for h in ctx.hides:
+        if h.id in complaints:
+            complaints[h.id] = _with(complaints[h.id], hidden=True)
+        elif h.id in checks:
+            checks[h.id] = _with(checks[h.id], hidden=True)
+        else:
+            ctx.ref(h.id, ("complaints", "checks"), h.at(), "hide")
+    return complaints, checks
 
 
 def _control_characters(doc: Any, ctx: _Ctx) -> None:
@@ -1233,7 +1305,9 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
     _collect(sources, ctx, schema)
     it = ctx.items
     top = sources[-1]
-    manifest = top.manifest
+    terms = _device_pack(top.manifest, top, ctx)
+    manifest = {k: fill(v, terms)[0] if isinstance(v, str) else v
+                for k, v in top.manifest.items()}
 
     cautions = {i: Caution(i, str(x.data.get("level", "NOTICE")), str(x.data.get("text", "")),
                            x.at()) for i, x in it["cautions"].items()}
@@ -1259,6 +1333,7 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
                                str(x.data.get("description", "") or ""), x.at())
                   for i, x in it["complaints"].items()}
     checks = {i: _check(x, ctx, params) for i, x in it["checks"].items()}
+    complaints, checks = _hidden(complaints, checks, ctx)
     for x in it["repairs"].values():
         _check_only_if(x, ctx, params)
     repairs = {i: _repair(x, ctx) for i, x in it["repairs"].items()}

@@ -142,6 +142,7 @@ class Complaint:
     caller_title: str = ""
     description: str = ""
     source: Source | None = None
+    hidden: bool = False  # a device pack's `hide`: not in the complaint menus
 
 
 @dataclass(frozen=True)
@@ -194,6 +195,7 @@ class Check:
     hazards: tuple[str, ...] = ()
     hazards_declared: bool = False  # `hazards:` given (an empty list says: none)
     hazards_note: str = ""
+    hidden: bool = False  # a device pack's `hide`: never offered (not for this unit)
 
     @property
     def phone_ok(self) -> bool:

@@ -200,6 +200,33 @@ EXTENSION = {
     },
 }
 
+#: The wording a device pack may override on an entity of a pack it builds on.
+OVERRIDABLE = ("title", "ask", "caller", "cautions", "unit", "default", "min", "max",
+               "description", "text", "prompt")
+
+DEVICE = {
+    "type": "object",
+    "additionalProperties": False,
+    "required": ["noun"],
+    "description": "the device's terms: {device}, {switch_on}, ... in every worded field",
+    "properties": {
+        "noun": TEXT,
+        "plural": TEXT,
+        "energised": {"enum": ["released", "engaged"],
+                      "description": "what energising the coil does to the device"},
+        "states": {"type": "object", "additionalProperties": False,
+                   "properties": {"released": TEXT, "engaged": TEXT}},
+    },
+}
+
+OVERRIDE = {
+    "type": "object",
+    "required": ["id"],
+    "additionalProperties": False,
+    "description": "new wording for an entity of a pack this one builds on",
+    "properties": {"id": ID, **{k: {} for k in OVERRIDABLE}},
+}
+
 STATE = {
     "type": "object",
     "required": ["id", "title", "values", "initial"],
@@ -342,13 +369,17 @@ PACK_FILE_SCHEMA: dict[str, Any] = {
         "states": _section(STATE),
         "hazards": _section(HAZARD),
         "extend_checks": _section(EXTENSION),
+        "device": DEVICE,
+        "override": _section(OVERRIDE),
+        "hide": {"type": "array", "items": ID, "uniqueItems": True,
+                 "description": "complaints or checks of the base packs not offered here"},
     },
 }
 
 SECTIONS = ("cautions", "parameters", "complaints", "events", "causes", "checks", "repairs",
             "tests", "states", "hazards")
 MANIFEST_KEYS = ("pack", "title", "version", "builds_on", "notice", "unknown_prior", "leak",
-                 "description")
+                 "description", "device")
 
 
 def pack_schema() -> dict[str, Any]:

@@ -79,7 +79,12 @@ def matches(model: Model, evidence: Evidence, only_if: Mapping[str, Any] | None,
 
 
 def only_if_matches(model: Model, evidence: Evidence, item: Any) -> bool:
-    """Whether the nameplate allows ``item`` (a check, repair, cause, event or parameter)."""
+    """Whether the nameplate allows ``item`` (a check, repair, cause, event or parameter).
+
+    A check a device pack hides (``hide``) is allowed for no unit.
+    """
+    if getattr(item, "hidden", False):
+        return False
     return matches(model, evidence, getattr(item, "only_if", None))
 
 

@@ -95,7 +95,8 @@ class PlanCache:
         needs = [n for c in model.checks.values() for n in c.needs]
         needs += [n for r in model.repairs.values() for n in r.needs]
         self.prerequisites = frozenset(needs)
-        self._conditioned = frozenset(c.id for c in model.checks.values() if c.only_if)
+        self._conditioned = frozenset(c.id for c in model.checks.values()
+                                      if c.only_if or c.hidden)
         self._tables = weakref.ref(tables)
         self._per_hyp = min(MEMO, max(4, MEMO_NUMBERS // tables.n_hyp))  # vectors kept
         self._checks: dict[Any, Standing] = {}

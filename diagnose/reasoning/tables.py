@@ -141,7 +141,8 @@ class Tables:
         self.check_phone = np.array([c.where == "phone" for c in chks], dtype=bool)
         self.check_prep = np.array([bool(c.preparation) for c in chks], dtype=bool)
         self.check_one_outcome = np.array([len(c.outcomes) < 2 for c in chks], dtype=bool)
-        self.checks_only_if = tuple(i for i, c in enumerate(chks) if c.only_if)
+        self.checks_only_if = tuple(i for i, c in enumerate(chks)
+                                    if c.only_if or getattr(c, "hidden", False))
         self.check_needs = tuple(tuple(c.needs) for c in chks)
         self.checks_needing = tuple(i for i, c in enumerate(chks) if c.needs)
         reps = [model.repairs[r] for r in self.repair_ids]

@@ -441,7 +441,7 @@ class Shell:
         done = set(self.session.evidence.complaints)
         out = []
         for k in self.model.complaints.values():
-            if k.id in done:
+            if k.id in done or k.hidden:  # a device pack's `hide`
                 continue
             shown = (k.caller_title or k.title) if phone else k.title
             out.append((k.id, f"{k.title} / {k.caller_title}" if both and k.caller_title
