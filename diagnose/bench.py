@@ -21,6 +21,22 @@ causes; :func:`diagnose.reasoning.synthetic.synthetic_model`) it prints:
   seconds of each, the ratio, and whether every run went the same way (every
   check and repair, in order, and every figure).
 
+Loading a pack and the first question, each in a fresh process (``load``):
+
+* a 10,000-cause synthetic pack written as YAML files (a few hundred entries a
+  file, as a trainer splits a pack) loaded as the command line loads it
+  (:func:`diagnose.kb.loader.load_model`): from the YAML with the
+  compiled-pack cache off (read, JSON Schema, compile), from the YAML keeping
+  the entry, then from the cache (the files' hashes checked, the model
+  unpickled); seconds of the load and the process's peak memory (resident
+  set) for each, the median of three runs (the one that keeps the entry: once);
+* the first question of the shell with piped input (``diagnose start`` on the
+  shipped pack, standard input empty: the safety notice, the nameplate's
+  first question, then end of input), from start to exit, with a warm cache
+  and with ``--no-cache``; the median of a few runs, after one that fills
+  the caches (the packs', pint's and Python's bytecode, kept in a temporary
+  folder as an installed program keeps it).
+
 The Bayesian network given to pgmpy is the reasoner's model written out: one
 root ``H`` over the hypotheses and one child per piece of evidence.
 """
@@ -267,6 +283,135 @@ def _against_pgmpy(model: Model, answers: list[tuple[str, str]], complaint: str,
     return {"posterior_ms": a, "pgmpy_ms": b, "pgmpy_ratio": b / a}
 
 
+#: Entries written to one YAML file of a synthetic pack (each file stays far below the
+#: reader's limit on values, :data:`diagnose.kb.yamlpos.MAX_NODES`).
+PER_FILE = 200
+
+# The peak is the process's own high-water mark (VmHWM): ru_maxrss on Linux keeps the one of
+# the process it was forked from across exec (the benchmark, with its synthetic model).
+_LOAD_SCRIPT = """
+import json, resource, sys, time
+from diagnose.kb.loader import load_model
+t0 = time.perf_counter()
+model = load_model(sys.argv[1], cache=sys.argv[2] == "cache")
+seconds = time.perf_counter() - t0
+try:
+    with open("/proc/self/status") as fh:
+        peak = next(int(x.split()[1]) for x in fh if x.startswith("VmHWM:")) / 1024
+except (OSError, StopIteration, ValueError):
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+print(json.dumps({"s": seconds, "mb": peak, "causes": len(model.causes)}))
+"""
+
+
+def write_pack(model: Model, folder: Any, per_file: int = PER_FILE) -> list[str]:
+    """Write ``model`` (a synthetic pack) into ``folder`` as YAML: the manifest, then each
+    section in files of ``per_file`` entries. Returns the file names."""
+    from pathlib import Path
+
+    import yaml
+
+    from diagnose.reasoning.synthetic import pack_data
+
+    data = pack_data(model)
+    lists = ("complaints", "events", "causes", "checks", "repairs")
+    files: dict[str, Any] = {"pack.yaml": {k: v for k, v in data.items() if k not in lists}}
+    for section in lists:
+        items = data.get(section, [])
+        for n, i in enumerate(range(0, len(items), per_file)):
+            files[f"{section}-{n:04d}.yaml"] = {section: items[i:i + per_file]}
+    dumper = getattr(yaml, "CSafeDumper", yaml.SafeDumper)
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    for name, content in files.items():
+        text = yaml.dump(content, Dumper=dumper, sort_keys=False, allow_unicode=True)
+        (folder / name).write_text(text, encoding="utf-8")
+    return list(files)
+
+
+def _environment(home: Any) -> dict[str, str]:
+    """The process environment with the user's folders and journal inside ``home``."""
+    import os
+
+    env = dict(os.environ)
+    for kind in ("DATA", "CACHE", "STATE", "CONFIG"):
+        env[f"XDG_{kind}_HOME"] = str(home / kind.lower())
+    env["DIAGNOSE_JOURNAL"] = str(home / "journal.sqlite3")
+    env.pop("DIAGNOSE_SETTINGS", None)
+    env.pop("DIAGNOSE_PACKS", None)
+    # compiled once, as an installed program is: not every start compiling its modules again
+    env.pop("PYTHONDONTWRITEBYTECODE", None)
+    env["PYTHONPYCACHEPREFIX"] = str(home / "bytecode")
+    return env
+
+
+def load_figures(causes: int = 10000, *, seed: int = 1, start_runs: int = 5) -> dict[str, Any]:
+    """Seconds and peak MB of loading a ``causes`` pack from YAML and from the cache, each in
+    a fresh process; and the piped first question with a warm cache and with ``--no-cache``."""
+    import json
+    import subprocess
+    import sys
+    import tempfile
+    from pathlib import Path
+
+    from diagnose.reasoning.synthetic import synthetic_model
+
+    out: dict[str, Any] = {"causes": causes}
+    with tempfile.TemporaryDirectory() as tmp:
+        home = Path(tmp)
+        env = _environment(home)
+        if causes:
+            folder = home / "pack"
+            out["files"] = len(write_pack(synthetic_model(causes, seed=seed), folder))
+            runs = [("warm", "electrical-supply", "none")]  # Python compiles what loading uses
+            runs += [("yaml", str(folder), "none")] * 3 + [("fill", str(folder), "cache")]
+            runs += [("cache", str(folder), "cache")] * 3
+            found: dict[str, list[dict[str, float]]] = {}
+            for key, pack, how in runs:
+                done = subprocess.run([sys.executable, "-c", _LOAD_SCRIPT, pack, how],
+                                      env=env, capture_output=True, text=True, check=True)
+                found.setdefault(key, []).append(json.loads(done.stdout))
+            for key, figures in found.items():  # the median run of each
+                middle = sorted(figures, key=lambda f: f["s"])[len(figures) // 2]
+                out[f"{key}_s"], out[f"{key}_mb"] = middle["s"], middle["mb"]
+        if start_runs:
+            out.update(_first_question(env, start_runs))
+    return out
+
+
+def _first_question(env: dict[str, str], runs: int) -> dict[str, float]:
+    """Median seconds of `diagnose start` with piped, empty input: warm cache, and no cache."""
+    import subprocess
+    import sys
+
+    def once(*extra: str) -> float:
+        t0 = time.perf_counter()
+        subprocess.run([sys.executable, "-m", "diagnose", "start", *extra], input="", env=env,
+                       capture_output=True, text=True, check=True)
+        return time.perf_counter() - t0
+
+    once()  # fills the cache
+    warm = [once() for _ in range(runs)]
+    cold = [once("--no-cache") for _ in range(runs)]
+    return {"start_s": statistics.median(warm), "start_no_cache_s": statistics.median(cold)}
+
+
+def load_table(load: dict[str, Any]) -> str:
+    """The figures of :func:`load_figures` as lines of text."""
+    lines = []
+    if "yaml_s" in load:
+        lines.append(f"load a {load['causes']:,}-cause pack ({load['files']} YAML files), each in "
+                     "a fresh process:")
+        for key, what in (("yaml", "from YAML (cache off)"), ("fill", "from YAML, cache kept"),
+                          ("cache", "from the cache")):
+            lines.append(f"  {what:<22} {load[f'{key}_s']:6.2f} s  peak "
+                         f"{load[f'{key}_mb']:5.0f} MB")
+    if "start_s" in load:
+        lines.append(f"first question, piped (`diagnose start` to exit): warm cache "
+                     f"{load['start_s']:.2f} s, --no-cache {load['start_no_cache_s']:.2f} s")
+    return "\n".join(lines)
+
+
 def table(rows: list[dict[str, Any]], sim: dict[str, Any] | None = None) -> str:
     """The rows (and the simulator's side by side) as a plain-text table of 80 columns."""
     head = (f"{'causes':>7} {'checks':>6} {'step ms':>8} {'ref ms':>7} {'compile s':>9} "
@@ -306,10 +451,18 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--no-pgmpy", action="store_true", help="skip the pgmpy comparison")
     parser.add_argument("--sim-runs", type=int, default=300, metavar="N",
                         help="runs of the simulator, planner against reference (0: skip)")
+    parser.add_argument("--load-causes", type=int, default=10000, metavar="N",
+                        help="causes of the pack loaded from YAML and from the cache (0: skip)")
+    parser.add_argument("--start-runs", type=int, default=5, metavar="N",
+                        help="runs of the piped first question, each way (0: skip)")
     args = parser.parse_args(argv)
     rows = run(tuple(args.sizes), seed=args.seed, pgmpy=not args.no_pgmpy)
     sim = simulate_side_by_side(runs=args.sim_runs, seed=args.seed) if args.sim_runs > 0 else None
     print(table(rows, sim))
+    if args.load_causes or args.start_runs:
+        print()
+        print(load_table(load_figures(args.load_causes, seed=args.seed,
+                                      start_runs=args.start_runs)))
     return 0 if sim is None or sim["identical"] else 1
 
 

@@ -54,13 +54,13 @@ class _Top(_Parser):
 
 
 #: The options of every command, accepted before the command and after it.
-GLOBAL_OPTIONS = ("--packs", "--journal", "--no-learned", "--units")
+GLOBAL_OPTIONS = ("--packs", "--journal", "--no-learned", "--no-cache", "--units")
 #: The unit systems of ``--units`` (``diagnose.settings.UNITS``; here so that --help stays fast).
 UNITS = ("metric", "inch")
 
 
 def _global_options(parser: argparse.ArgumentParser, *, after: bool) -> None:
-    """Add ``--packs``, ``--journal``, ``--no-learned`` and ``--units`` to ``parser``.
+    """Add the options of every command (:data:`GLOBAL_OPTIONS`) to ``parser``.
 
     Before the command they have their defaults; after it (``after``) they
     default to nothing (``argparse.SUPPRESS``), so that a value given after the
@@ -81,6 +81,10 @@ def _global_options(parser: argparse.ArgumentParser, *, after: bool) -> None:
     target.add_argument("--no-learned", action="store_true",
                         default=unset if after else False,
                         help="ignore priors learned from closed repairs")
+    target.add_argument("--no-cache", action="store_true",
+                        default=unset if after else False,
+                        help="read and compile packs from their YAML, not from the compiled-pack "
+                        "cache (see `diagnose kb cache`)")
     target.add_argument("--units", choices=UNITS, default=unset if after else None,
                         help="inch: bare lengths (air gap, runout, wear) are read in inches and "
                         "shown in inches with mm beside them (default: the settings file's "

@@ -260,21 +260,36 @@ def say(*parts: Any, file: IO[str] | None = None, sep: str = " ") -> None:
     print(clean(sep.join(str(p) for p in parts)), file=file if file is not None else sys.stdout)
 
 
-def console(**options: Any) -> Any:
+#: The width of a console for line-oriented output that writes to no terminal: no line is
+#: wrapped (a file or a pipe has no edge), while rules and expanding blocks keep 80 columns.
+UNBOUNDED = 1_000_000
+
+
+def console(*, lines: bool = False, **options: Any) -> Any:
     """A rich ``Console`` for the program's output: no markup, no emoji codes, text gated.
 
     Options are those of ``rich.console.Console``; ``markup``, ``emoji`` and
-    ``highlight`` default to False.
+    ``highlight`` default to False. ``lines=True`` is for output read line by
+    line (``path:line:col`` messages, results people grep): when it goes to a
+    file or a pipe rather than a terminal, no line is wrapped.
     """
     for key in ("markup", "emoji", "highlight"):
         options.setdefault(key, False)
-    return _gated_console_class()(**options)
+    con = _gated_console_class()(**options)
+    if not lines or con.is_terminal or "width" in options:
+        return con
+    return _gated_console_class(unbounded=True)(**{**options, "width": UNBOUNDED})
 
 
-@lru_cache(maxsize=1)
-def _gated_console_class() -> Any:
-    """``rich.console.Console`` with a gate where its buffer becomes text (imported late)."""
+@lru_cache(maxsize=2)
+def _gated_console_class(unbounded: bool = False) -> Any:
+    """``rich.console.Console`` with a gate where its buffer becomes text (imported late).
+
+    ``unbounded``: for a console of :data:`UNBOUNDED` width, a rule is drawn 80
+    columns wide and a block that would expand to the width takes its content's.
+    """
     from rich.console import Console
+    from rich.rule import Rule
     from rich.segment import Segment
 
     class GatedConsole(Console):
@@ -290,4 +305,22 @@ def _gated_console_class() -> Any:
                 seg if seg.control else Segment(clean(seg.text), seg.style, None)
                 for seg in buffer))
 
-    return GatedConsole
+    if not unbounded:
+        return GatedConsole
+
+    class LineConsole(GatedConsole):
+        """A gated console whose text lines are never wrapped (see :func:`console`)."""
+
+        def render(self, renderable: Any, options: Any = None) -> Any:
+            from copy import copy
+
+            options = options or self.options
+            whole = options.max_width > UNBOUNDED // 2  # the whole width, not a table cell
+            if whole and isinstance(renderable, Rule):
+                options = options.update_width(80)
+            elif whole and getattr(renderable, "expand", None) is True:
+                renderable = copy(renderable)
+                renderable.expand = False
+            return super().render(renderable, options)
+
+    return LineConsole

@@ -110,6 +110,8 @@ SAMPLE_ARGS = {
     "temperature": ["--temp", "60degC"],
     "release": ["--rated-voltage", "24V", "--volts", "24V", "--nominal-gap", "0.25mm",
                 "--gap", "0.3mm"],
+    "pull_in": ["--rated-voltage", "24V", "--volts", "24V", "--nominal-gap", "0.25mm",
+                "--gap", "0.3mm"],
     "stop": ["--inertia", "0.01", "--speed", "3000rpm", "--torque", "10"],
     "holding": ["--load-torque", "4", "--rated-torque", "10"],
 }

@@ -122,7 +122,7 @@ def _report(jpath: Path, sid: str) -> str:
     # the clock differs between two runs: times, and minutes counted on the clock
     text = re.sub(r"\d{4}-\d\d-\d\d", "DATE", text)
     text = re.sub(r"\d\d:\d\d(:\d\d)?( UTC| [+-]\d\d:\d\d)?", "TIME", text)
-    text = re.sub(r"\(\d+ min\)|[\d.]+ min on the clock", "N min", text)
+    text = re.sub(r"\([\d.]+ min\)|[\d.]+ min on the clock", "N min", text)
     return re.sub(r"minutes to the cure \| [\d.]+ min", "minutes to the cure | N", text)
 
 

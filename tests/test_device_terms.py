@@ -135,3 +135,22 @@ def test_an_unknown_term_and_an_override_that_changes_nothing(tmp_path):
     assert [p.level for p in res.problems if p.code == "override-no-change"] == ["warning"]
     with pytest.raises(KnowledgeError):
         load_model(str(tmp_path / "mini-clutch"), search=[str(tmp_path)])
+
+
+@pytest.mark.parametrize(("volts", "gap", "brake", "neutral"), [
+    (24, 0.3, "releases", "pulls_in"),           # margin (24/16.8)^2 = 2.04
+    (17.5, 0.3, "marginal", "marginal"),         # (17.5/16.8)^2 = 1.085 < 1.1^2
+    (24, 0.45, "will_not_release", "does_not_pull_in"),  # needs 16.8 x 1.5 = 25.2 V
+])
+def test_the_pull_in_calculator_speaks_of_the_armature_only(volts, gap, brake, neutral):
+    """The same first-order reckoning (pull ~ (V/g)^2, Roters) in a device's neutral words."""
+    from diagnose.physics.registry import evaluate
+
+    values = {"rated_voltage": "24 V", "volts": f"{volts} V", "nominal_gap": "0.3 mm",
+              "gap": f"{gap} mm"}
+    as_brake, as_any = evaluate("release", values), evaluate("pull_in", values)
+    assert (as_brake.verdict, as_any.verdict) == (brake, neutral)
+    assert as_any.figures["margin"].value == pytest.approx(as_brake.figures["margin"].value)
+    assert as_any.figures["needed"].value == pytest.approx(16.8 * gap / 0.3)  # 0.7 x 24 V
+    text = " ".join([as_any.summary, *(f.label for f in as_any.figures.values())]).lower()
+    assert "brake" not in text and "releas" not in text and "pull" in text

@@ -472,6 +472,7 @@ SAMPLES = {
     "insulation": {"megohms": 100},
     "temperature": {"temperature": 40},
     "release": {"rated_voltage": 24, "volts": 24, "nominal_gap": 0.25, "gap": 0.25},
+    "pull_in": {"rated_voltage": 24, "volts": 24, "nominal_gap": 0.25, "gap": 0.25},
     "stop": {"inertia": 0.01, "speed": 3000, "torque": 10},
     "holding": {"load_torque": 1, "rated_torque": 10},
 }

@@ -204,7 +204,7 @@ def test_off_voltage_figures_and_summaries():
     assert present.figures["present_limit"].value == pytest.approx(12)  # 0.5 x 24 V
     assert list(present.figures) == ["measured", "rated", "ratio", "off_limit", "present_limit"]
     residual = evaluate("off_voltage", {"rated_voltage": 24, "volts": 4})
-    assert "leakage or induced voltage that can hold a released brake open" in residual.summary
+    assert "leakage or induced voltage that can keep the armature pulled in" in residual.summary
     off = evaluate("off_voltage", {"rated_voltage": 24, "volts": 0.3})
     assert off.summary.endswith("off, as it should be")
     assert "off" in GOOD_VERDICTS and "residual" not in GOOD_VERDICTS

@@ -79,6 +79,9 @@ def _report(jpath: Path, sid: str, fmt: str = "md") -> str:
     with Journal(jpath, readonly=True) as j:
         text = render_report(session_record(j, sid, mini_model()), fmt).replace(sid, "ID")
     text = re.sub(r"\d{4}-\d\d-\d\d[ T]\d\d:\d\d:\d\d( ?UTC| ?[+-]\d\d:\d\d)", "TIME", text)
+    # the time on site (page one): "DATE HH:MM to HH:MM UTC (0.1 min)"
+    text = re.sub(r"\d{4}-\d\d-\d\d \d\d:\d\d to \d\d:\d\d( UTC| [+-]\d\d:\d\d)? "
+                  r"\([\d.]+ min\)", "SPAN", text)
     text = re.sub(r'"(clock_minutes|minutes_to_cure)": [\d.]+', r'"\1": N', text)
     text = re.sub(r"minutes to the cure \| [\d.]+ min", "minutes to the cure | N", text)
     return re.sub(r"[\d.]+ min on the clock", "N min on the clock", text)

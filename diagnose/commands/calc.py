@@ -1,7 +1,8 @@
 """`diagnose calc NAME`: run one measurement evaluator by hand.
 
 The options come from the registry (``diagnose.service.calc``, shared with
-the shell's `calc`); this face prints the verdict, or one JSON object.
+the shell's `calc`); this face prints the verdict, or one JSON object. A
+bare length is read in the preferred units, and figures are shown in them.
 """
 
 from __future__ import annotations
@@ -17,14 +18,21 @@ def register(subparsers: Any) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    """Evaluate the chosen evaluator on the options given and print the verdict."""
+    """Evaluate the chosen evaluator on the options given and print the verdict.
+
+    Bare lengths are read, and figures shown, in the preferred units
+    (``--units`` over the settings file); the JSON is the verdict's data as
+    the evaluator worked it out.
+    """
+    from diagnose.service import preferences
     from diagnose.service.calc import verdict_of
     from diagnose.text import console, json_text
     from diagnose.views import VerdictView
 
-    verdict = verdict_of(args)
+    units = preferences(args).units
+    verdict = verdict_of(args, units)
     if args.calc_json:
         print(json_text(verdict.to_dict(), indent=2))
     else:
-        console().print(VerdictView(verdict))
+        console().print(VerdictView(verdict, units))
     return 0

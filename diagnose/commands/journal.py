@@ -177,14 +177,16 @@ def _report(args: argparse.Namespace) -> int:
     from diagnose.journal.attachments import folder_of
     from diagnose.journal.record import session_record
     from diagnose.journal.report import render_report
-    from diagnose.service import recorded_events, report_pack
+    from diagnose.service import preferences, recorded_events, report_pack
 
+    units = preferences(args).units
     with _need_reader(args) as journal:
         info = journal.session(args.session_id)
         events = recorded_events(journal, info.id)  # no log from an event altered by hand
         choice = report_pack(info, events, _where(args))
         record = session_record(journal, info.id, choice.model if choice else None)
-    text = render_report(record, args.format, attachments_dir=folder_of(_path(args)))
+    text = render_report(record, args.format, attachments_dir=folder_of(_path(args)),
+                         units=units)
     write_output(text, args.output, **output_options(args))
     return 0
 

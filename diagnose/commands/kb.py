@@ -1,4 +1,5 @@
-"""`diagnose kb ...`: the trainer's commands (lint, show, graph, schema, test, analyze, new)."""
+"""`diagnose kb ...`: the trainer's commands (lint, show, graph, schema, test, list, cache,
+analyze, new)."""
 
 from __future__ import annotations
 
@@ -49,6 +50,14 @@ def register(sub: Any) -> None:
     p = ks.add_parser("list", help="the packs on the search path")
     p.set_defaults(handler=_list)
 
+    p = ks.add_parser("cache", help="the compiled-pack cache: where it is, how large; clear",
+                      description="Packs are kept compiled in the user's cache folder, so that "
+                      "they load at once; an entry is used only while the pack's files, the "
+                      "packs it builds on, the learned priors and the program are as they were. "
+                      "With no action: the folder, its entries and their size.")
+    p.add_argument("action", nargs="?", choices=("clear",), help="clear: remove every entry")
+    p.set_defaults(handler=_cache)
+
     from diagnose.commands import kb_quality
 
     kb_quality.add_analyze_parser(ks)
@@ -56,9 +65,10 @@ def register(sub: Any) -> None:
 
 
 def _console() -> Any:
+    """The console of `kb show` and `kb test`: lines never wrapped in a file or a pipe."""
     from diagnose.text import console
 
-    return console()
+    return console(lines=True)
 
 
 def load(args: argparse.Namespace, ref: str) -> Any:
@@ -209,3 +219,35 @@ def _list(args: argparse.Namespace) -> int:
     for problem in problems:  # one line per broken manifest; the others are listed
         say(f"diagnose: {problem}", file=sys.stderr)
     return 0
+
+
+def _cache(args: argparse.Namespace) -> int:
+    from diagnose.kb import cache
+
+    if args.action == "clear":
+        done = cache.clear()
+        if done.why:
+            say(f"diagnose: the compiled-pack cache is not used: {done.why}", file=sys.stderr)
+            return 0
+        say(f"removed {done.entries} compiled pack(s), {_size(done.bytes)}, from {done.folder}")
+        return 0
+    found = cache.info()
+    say(f"folder: {found.folder if found.folder is not None else 'none'}")
+    if found.why and found.folder is not None and found.folder.exists():
+        say(f"not used: {found.why}")
+    say(f"entries: {found.entries}")
+    say(f"size: {_size(found.bytes)}")
+    return 0
+
+
+def _size(n: int) -> str:
+    """Bytes as people read them.
+
+    >>> _size(0), _size(2048), _size(5_300_000)
+    ('0 bytes', '2.0 kB', '5.3 MB')
+    """
+    if n < 1000:
+        return f"{n} bytes"
+    if n < 1_000_000:
+        return f"{n / 1000:.1f} kB"
+    return f"{n / 1_000_000:.1f} MB"

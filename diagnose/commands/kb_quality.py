@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 from typing import Any
 
@@ -43,22 +44,36 @@ def add_analyze_parser(ks: Any) -> None:
 
 
 def add_new_parser(ks: Any) -> None:
-    """``kb new KIND ID [--pack DIR] [--file FILE] [--evaluator NAME]``."""
+    """``kb new KIND ID [--pack DIR] [--file FILE] [--evaluator NAME]``, and ``kb new pack ID``."""
     from diagnose.kb.scaffold import KINDS
 
     p = ks.add_parser(
-        "new", help="write a commented skeleton of a new entry into a pack",
-        description="Write a YAML skeleton of a new cause, check, measurement, repair or "
-        "complaint with every field to fill marked TODO; lint fails until they are filled.")
-    p.add_argument("kind", choices=tuple(KINDS), metavar="KIND",
-                   help="one of: " + ", ".join(KINDS))
-    p.add_argument("id", metavar="ID", help="the new entry's id (lower_case_with_underscores)")
+        "new", help="start a new pack, or write a skeleton of a new entry into a pack",
+        description="`kb new pack ID --builds-on electrical-supply [--device NOUN --energised "
+        "released|engaged]` writes a new pack folder ID (in this folder, or --folder DIR) with "
+        "one complaint, cause, check, repair and test case: lint warns at each text that "
+        "still says TODO, and `kb test ID` plays its case. Any other KIND writes a YAML "
+        "skeleton of a new cause, check, measurement, repair or complaint into a pack, with "
+        "every field to fill marked TODO; lint fails until they are filled.")
+    p.add_argument("kind", choices=("pack", *KINDS), metavar="KIND",
+                   help="one of: pack, " + ", ".join(KINDS))
+    p.add_argument("id", metavar="ID", help="the new entry's id (lower_case_with_underscores), "
+                   "or the new pack's id (lower-case-with-hyphens)")
     p.add_argument("--pack", metavar="DIR",
                    help="the pack folder (default: this folder, if it holds pack.yaml)")
     p.add_argument("--file", metavar="FILE",
                    help="append to this file of the pack (default: a new <kind>s-<id>.yaml)")
     p.add_argument("--evaluator", metavar="NAME",
                    help="for a measurement: fill evaluator, inputs and verdicts from the registry")
+    new = p.add_argument_group("a new pack (kb new pack ID)")
+    new.add_argument("--folder", metavar="DIR",
+                     help="make the pack folder ID in DIR (default: this folder)")
+    new.add_argument("--builds-on", metavar="PACK", action="append", dest="builds_on",
+                     help="a pack whose entries the new one reuses, by id (may be repeated)")
+    new.add_argument("--device", metavar="NOUN",
+                     help="the word for the device (brake, clutch, ...): the pack's device terms")
+    new.add_argument("--energised", choices=("released", "engaged"),
+                     help="what energising the coil does to the device (default: released)")
     p.set_defaults(handler=new_command)
 
 
@@ -100,7 +115,7 @@ def analyze_command(args: argparse.Namespace) -> int:
         from diagnose.text import console
         from diagnose.views_reasoning import PackAnalysisView
 
-        console().print(PackAnalysisView(result))
+        console(lines=True).print(PackAnalysisView(result))
     return 0
 
 
@@ -112,12 +127,43 @@ def _format_of(output: str) -> str:
 
 
 def new_command(args: argparse.Namespace) -> int:
+    from diagnose.errors import InputError
     from diagnose.kb.scaffold import pack_folder, write_skeleton
 
+    if args.kind == "pack":
+        wrong = [f"--{k}" for k in ("pack", "file", "evaluator") if getattr(args, k, None)]
+        why = "is for a new entry of a pack; `kb new pack ID` does not take it"
+    else:
+        wrong = [f"--{k.replace('_', '-')}" for k in ("folder", "builds_on", "device",
+                                                       "energised") if getattr(args, k, None)]
+        why = "only `kb new pack ID` takes this option"
+    if wrong:
+        raise InputError(wrong[0], why)
+    if args.kind == "pack":
+        return _new_pack(args)
     folder = pack_folder(args.pack)
     path = write_skeleton(folder, args.kind, args.id, file=args.file, evaluator=args.evaluator,
                           journal=getattr(args, "journal", None))
     todo = sum(1 for line in path.read_text(encoding="utf-8").splitlines() if "TODO" in line)
     print(f"wrote {args.kind} {args.id} to {path}; fill the lines marked TODO "
           f"({todo} in the file), then run `diagnose kb lint {folder}`")
+    return 0
+
+
+def _new_pack(args: argparse.Namespace) -> int:
+    """``kb new pack ID``: the new pack folder, and what to do next."""
+    from diagnose.kb.scaffold import write_pack
+    from diagnose.text import say
+
+    folder = write_pack(args.folder or ".", args.id, builds_on=args.builds_on or (),
+                        device=args.device, energised=args.energised,
+                        search=getattr(args, "packs", None),
+                        journal=getattr(args, "journal", None))
+    files = sorted(folder.iterdir())
+    todo = sum(line.count("TODO") for f in files
+               for line in f.read_text(encoding="utf-8").splitlines()
+               if not line.lstrip().startswith("#"))
+    ref = args.id if args.folder is None else str(folder)
+    say(f"wrote pack {args.id} to {folder}{os.sep} ({len(files)} files); write the {todo} "
+        f"texts that say TODO, then run `diagnose kb lint {ref}` and `diagnose kb test {ref}`")
     return 0

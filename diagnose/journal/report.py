@@ -72,7 +72,7 @@ def report_data(record: Record) -> dict[str, Any]:
 
 
 def render_report(record: Record, fmt: str = "md", *,
-                  attachments_dir: str | Path | None = None) -> str:
+                  attachments_dir: str | Path | None = None, units: str = "metric") -> str:
     """The repair log of ``record`` in ``fmt`` (md, html or json).
 
     ``attachments_dir``: the journal's attachment store (``attachments`` beside
@@ -80,18 +80,27 @@ def render_report(record: Record, fmt: str = "md", *,
     HTML log embeds the images found there as thumbnails; a file that is
     missing (or no longer matches its digest) is a line saying so.
 
+    ``units``: the technician's preference ("metric" or "inch"). Under "inch"
+    the Markdown and HTML logs show the readings' lengths in inches with the
+    millimetres beside them ("0.018 in (0.46 mm)"); the JSON is data and
+    keeps every figure as it was recorded.
+
     Raises:
-        InputError: an unknown format.
+        InputError: an unknown format or preference.
     """
+    from diagnose.physics.units import PREFERENCES
+
     if fmt not in FORMATS:
         raise InputError("--format", f"unknown report format {fmt!r}; use "
                                      f"{', '.join(FORMATS)}")
+    if units not in PREFERENCES:
+        raise InputError("--units", f"unknown units {units!r}; use {', '.join(PREFERENCES)}")
     data = report_data(record)
     if fmt == "json":
         from diagnose.text import json_text
 
         return json_text(data, indent=2) + "\n"
-    doc = document(data, attachments_dir, embed=fmt == "html")
+    doc = document(data, attachments_dir, embed=fmt == "html", units=units)
     text = _environment(fmt).get_template(f"report.{fmt}.j2").render(r=data, d=doc)
     return text.rstrip("\n") + "\n"
 
@@ -100,14 +109,15 @@ def render_report(record: Record, fmt: str = "md", *,
 
 
 def document(data: Mapping[str, Any], attachments_dir: str | Path | None = None, *,
-             embed: bool = False) -> dict[str, Any]:
+             embed: bool = False, units: str = "metric") -> dict[str, Any]:
     """What the Markdown and HTML logs show beside the report's data ``data``.
 
     The outcome in words, the unit's identity (site, machine, axis, serial
-    first), the parts fitted over every repair, the cautions once each, the
-    attachments (with their files read from ``attachments_dir`` and, with
-    ``embed``, images as ``data:`` URIs) and, for the HTML log, its script and
-    content security policy.
+    first), the figures of each step in the preferred ``units`` (by step
+    number, see :func:`shown_figures`), the parts fitted over every repair,
+    the cautions once each, the attachments (with their files read from
+    ``attachments_dir`` and, with ``embed``, images as ``data:`` URIs) and,
+    for the HTML log, its script and content security policy.
     """
     from markupsafe import Markup
 
@@ -117,6 +127,8 @@ def document(data: Mapping[str, Any], attachments_dir: str | Path | None = None,
     return {
         "outcome": OUTCOMES.get(data.get("result"), str(data.get("result") or "Open")),
         "identity": ordered + sorted(identity.items()),
+        "figures": {s["n"]: shown_figures(s.get("figures", ()), units)
+                    for s in data.get("steps", ())},
         "parts": [{**p, "repair": s["title"]} for s in data.get("steps", ())
                   if s["kind"] == "repair" for p in s.get("parts", ())],
         "cautions": cautions_once(data.get("cautions", ())),
@@ -126,6 +138,26 @@ def document(data: Mapping[str, Any], attachments_dir: str | Path | None = None,
         "policy": ("default-src 'none'; img-src data:; style-src 'unsafe-inline'; "
                    f"script-src 'sha256-{digest}'; base-uri 'none'; form-action 'none'"),
     }
+
+
+def shown_figures(figures: Iterable[Mapping[str, Any]], units: str = "metric"
+                  ) -> list[dict[str, Any]]:
+    """A step's figures as the log shows them: label, value, unit, and the metric ``beside``.
+
+    Under "metric" the figures as recorded (``beside`` ""); under "inch" a
+    length in inches with its millimetres beside it
+    (:func:`diagnose.physics.verdict.preferred_rows`).
+
+    >>> shown_figures([{"key": "mean", "label": "mean gap", "value": 0.018, "unit": "in"}],
+    ...               "inch")
+    [{'label': 'mean gap', 'value': 0.018, 'unit': 'in', 'beside': '0.46 mm'}]
+    """
+    from diagnose.physics.verdict import preferred_rows
+
+    rows = preferred_rows(((f.get("key"), f.get("label"), f.get("value"), f.get("unit"))
+                           for f in figures), units)
+    return [{"label": label, "value": value, "unit": unit, "beside": beside}
+            for label, value, unit, beside in rows]
 
 
 def cautions_once(cautions: Iterable[Mapping[str, Any]]) -> list[dict[str, Any]]:

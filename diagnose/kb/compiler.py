@@ -9,8 +9,10 @@ from __future__ import annotations
 
 import difflib
 import hashlib
+import os
+from contextlib import contextmanager
 from dataclasses import dataclass, field
-from typing import Any, Iterable, Mapping
+from typing import Any, Iterable, Iterator, Mapping
 
 from diagnose.errors import InputError, Problem, Source
 from diagnose.kb.model import (
@@ -36,6 +38,7 @@ from diagnose.kb.yamlpos import Document, Path
 from diagnose.text import short_values
 
 SUM_TOLERANCE = 0.001
+MISSING = -1  # the knock-on errors of a base pack that was not read
 _NOUN = {
     "cautions": "caution", "parameters": "parameter", "complaints": "complaint",
     "events": "event", "causes": "cause", "checks": "check", "repairs": "repair",
@@ -64,12 +67,34 @@ class _Ctx:
     extensions: list[_Item] = field(default_factory=list)  # `extend_checks` entries
     overrides: list[_Item] = field(default_factory=list)  # `override` entries
     hides: list[_Item] = field(default_factory=list)  # `hide` entries (id in `data["id"]`)
+    # Knock-on errors: while `root` holds the index of an error, errors follow from that one
+    # and are counted in `hidden` instead of shown. `missing_base` is where the chain names a
+    # base pack that was not read: every unresolved reference may be in it (key MISSING).
+    root: list[int] = field(default_factory=list)
+    hidden: dict[int, int] = field(default_factory=dict)
+    missing_base: Source | None = None
+    unresolved: dict[str, int] = field(default_factory=dict)  # check -> its evaluator's error
 
     def error(self, msg: str, src: Source | None, code: str) -> None:
+        if self.root:
+            self.hidden[self.root[-1]] = self.hidden.get(self.root[-1], 0) + 1
+            return
         self.problems.append(Problem("error", short_values(msg), src, code))
 
     def warn(self, msg: str, src: Source | None, code: str) -> None:
-        self.problems.append(Problem("warning", short_values(msg), src, code))
+        if not self.root:
+            self.problems.append(Problem("warning", short_values(msg), src, code))
+
+    @contextmanager
+    def following(self, root: int | None) -> Iterator[None]:
+        """Errors made inside follow from error number ``root`` (None: from nothing)."""
+        if root is not None:
+            self.root.append(root)
+        try:
+            yield
+        finally:
+            if root is not None:
+                self.root.pop()
 
     def ids(self, *sections: str) -> list[str]:
         out: list[str] = []
@@ -85,6 +110,9 @@ class _Ctx:
         pool = self.ids(*sections) + list(extra)
         if value in pool:
             return True
+        if self.missing_base is not None and not self.root:  # it may be in the missing pack
+            self.hidden[MISSING] = self.hidden.get(MISSING, 0) + 1
+            return False
         close = difflib.get_close_matches(str(value), pool, n=1, cutoff=0.6)
         hint = f"; did you mean {close[0]!r}?" if close else ""
         self.error(f"{what} {value!r} is not a known {' or '.join(_NOUN[s] for s in sections)}"
@@ -241,6 +269,25 @@ def _device_pack(manifest: Mapping[str, Any], top: Any, ctx: _Ctx) -> dict[str, 
             else:
                 x.data = filled
     return terms
+
+
+def _manifest_filled(top: Any, terms: Mapping[str, str], ctx: _Ctx) -> dict[str, Any]:
+    """The manifest's texts (title, notice, ...) with the device's terms filled in.
+
+    A name in braces that is not a term is an error at its line: the safety
+    notice must never show raw braces.
+    """
+    out = {}
+    for key, value in top.manifest.items():
+        if not isinstance(value, str):
+            out[key] = value
+            continue
+        out[key], unknown = fill(value, terms)
+        for name in unknown:
+            where = top.documents[0].where((key,)) if top.documents else None
+            ctx.error(f"{{{name}}} is not a term of the device; terms: "
+                      f"{', '.join('{' + t + '}' for t in terms)}", where, "unknown-term")
+    return out
 
 
 def _hidden(complaints: dict[str, Complaint], checks: dict[str, Check], ctx: _Ctx
@@ -517,6 +564,7 @@ def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple
         hint = f"; did you mean {close[0]!r}?" if close else ""
         ctx.error(f"check {it.id!r}: unknown evaluator {name!r}{hint}",
                   it.at("measure", "evaluator"), "evaluator")
+        ctx.unresolved[it.id] = len(ctx.problems) - 1
         return None, None
     reading = m.get("reading", spec.reading)
     reading = reading if isinstance(reading, str) else None
@@ -604,7 +652,9 @@ def _check_input_value(it: _Item, key: str, value: Any, ispec: Any,
 def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
     d = it.data
     measurement, spec = _measurement(it, ctx, params)
-    outcomes, titles = _outcomes(it, spec, ctx)
+    root = ctx.unresolved.get(it.id)  # an unknown evaluator: its verdicts are not known
+    with ctx.following(root):
+        outcomes, titles = _outcomes(it, spec, ctx)
     for j, c in enumerate(_list(d.get("cautions"))):
         ctx.ref(c, ("cautions",), it.at("cautions", j), f"check {it.id!r} caution")
     for j, c in enumerate(_list(d.get("needs"))):
@@ -617,38 +667,10 @@ def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
     if where == "phone" and not d.get("caller"):
         ctx.error(f"check {it.id!r} is marked safe for a caller but has no `caller` wording",
                   it.at("where"), "caller-wording")
-    effects: dict[str, dict[str, float]] = {}
-    for cause, row in _map(d.get("effects")).items():
-        if ctx.ref(cause, ("causes",), it.at("effects", cause), f"check {it.id!r} effect on"):
-            effects[cause] = _distribution(row, outcomes, it, ("effects", cause),
-                                           f"effects of {cause!r}", ctx)
-    for ext in ctx.extensions:
-        if ext.id != it.id:
-            continue
-        for cause, row in _map(ext.data.get("effects")).items():
-            if not ctx.ref(cause, ("causes",), ext.at("effects", cause),
-                           f"extension of check {it.id!r}: effect on"):
-                continue
-            if cause in effects:
-                ctx.error(f"check {it.id!r} already has effects of {cause!r}",
-                          ext.at("effects", cause), "duplicate-id")
-                continue
-            effects[cause] = _distribution(row, outcomes, ext, ("effects", cause),
-                                           f"effects of {cause!r}", ctx)
+    effects = _effects(it, outcomes, ctx, root)
     if measurement is not None and spec is not None:
         _unstated_outcomes(it, tuple(o for o in outcomes if o not in spec.verdicts), ctx)
-    if "normal" in d:
-        normal = _distribution(d["normal"], outcomes, it, ("normal",), "normal", ctx)
-    elif d.get("preparation"):
-        normal = {o: (1.0 if i == 0 else 0.0) for i, o in enumerate(outcomes)}
-    else:
-        ctx.error(f"check {it.id!r}: missing field `normal` (the outcomes when none of the listed "
-                  "causes is present)", it.at(), "schema")
-        normal = {o: 1.0 / len(outcomes) for o in outcomes}
-    # "None of the known causes": a cause nobody wrote down mostly leaves a check as it
-    # is without any of its listed causes, so its row is `normal` unless the pack says more.
-    unknown = _distribution(d.get("unknown"), outcomes, it, ("unknown",), "unknown", ctx,
-                            warn_extremes=False) if "unknown" in d else dict(normal)
+    normal, unknown = _normal_rows(it, outcomes, ctx, root)
     return Check(
         id=it.id, title=str(d.get("title", it.id)), minutes=_num(d.get("minutes"), 1.0),
         outcomes=outcomes, effects=effects, normal=normal, unknown=unknown, where=where,
@@ -663,6 +685,58 @@ def _check(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> Check:
         hazards=_hazard_refs(it, ctx), hazards_declared="hazards" in d,
         hazards_note=str(d.get("hazards_note", "") or ""),
     )
+
+
+def _effects(it: _Item, outcomes: tuple[str, ...], ctx: _Ctx, root: int | None
+             ) -> dict[str, dict[str, float]]:
+    """The rows of check ``it`` and of its extensions, each complete over ``outcomes``.
+
+    With ``root`` (the error of an unknown evaluator) the rows are not checked
+    against the outcomes: what they would say follows from that error.
+    """
+    effects: dict[str, dict[str, float]] = {}
+    for cause, row in _map(it.data.get("effects")).items():
+        if ctx.ref(cause, ("causes",), it.at("effects", cause), f"check {it.id!r} effect on"):
+            with ctx.following(root):
+                effects[cause] = _distribution(row, outcomes, it, ("effects", cause),
+                                               f"effects of {cause!r}", ctx)
+    for ext in ctx.extensions:
+        if ext.id != it.id:
+            continue
+        for cause, row in _map(ext.data.get("effects")).items():
+            if not ctx.ref(cause, ("causes",), ext.at("effects", cause),
+                           f"extension of check {it.id!r}: effect on"):
+                continue
+            if cause in effects:
+                ctx.error(f"check {it.id!r} already has effects of {cause!r}",
+                          ext.at("effects", cause), "duplicate-id")
+                continue
+            with ctx.following(root):
+                effects[cause] = _distribution(row, outcomes, ext, ("effects", cause),
+                                               f"effects of {cause!r}", ctx)
+    return effects
+
+
+def _normal_rows(it: _Item, outcomes: tuple[str, ...], ctx: _Ctx, root: int | None
+                 ) -> tuple[dict[str, float], dict[str, float]]:
+    """The ``normal`` and ``unknown`` rows of check ``it``, complete over ``outcomes``."""
+    d = it.data
+    if "normal" in d:
+        with ctx.following(root):
+            normal = _distribution(d["normal"], outcomes, it, ("normal",), "normal", ctx)
+    elif d.get("preparation"):
+        normal = {o: (1.0 if i == 0 else 0.0) for i, o in enumerate(outcomes)}
+    else:
+        ctx.error(f"check {it.id!r}: missing field `normal` (the outcomes when none of the listed "
+                  "causes is present)", it.at(), "schema")
+        normal = {o: 1.0 / len(outcomes) for o in outcomes}
+    # "None of the known causes": a cause nobody wrote down mostly leaves a check as it
+    # is without any of its listed causes, so its row is `normal` unless the pack says more.
+    if "unknown" not in d:
+        return normal, dict(normal)
+    with ctx.following(root):
+        return normal, _distribution(d["unknown"], outcomes, it, ("unknown",), "unknown", ctx,
+                                     warn_extremes=False)
 
 
 def _unstated_outcomes(it: _Item, outcomes: tuple[str, ...], ctx: _Ctx) -> None:
@@ -937,17 +1011,7 @@ def _case(it: _Item, ctx: _Ctx, checks: Mapping[str, Check],
         if isinstance(s.get("check"), str):
             cid = moved.get(s["check"], s["check"])
             if ctx.ref(cid, ("checks",), it.at("steps", j, "check"), f"test {it.id!r} step"):
-                chk = checks.get(cid)
-                ans = s.get("answer")
-                if chk is not None and chk.measurement is None and ans is not None \
-                        and str(ans) not in chk.outcomes and str(ans) != "unsure":
-                    close = difflib.get_close_matches(str(ans), chk.outcomes, n=1)
-                    hint = f"; did you mean {close[0]!r}?" if close else ""
-                    ctx.error(f"test {it.id!r}: {ans!r} is not an outcome of check {cid!r}{hint}",
-                              it.at("steps", j, "answer"), "unknown-ref")
-                if ans is None and not s.get("skip"):
-                    ctx.error(f"test {it.id!r}: step on {cid!r} needs `answer` or `skip: true`",
-                              src, "schema")
+                _step_answer(it, j, cid, checks.get(cid), ctx)
             steps.append(Step(check=cid, answer=s.get("answer"), skip=bool(s.get("skip", False)),
                               source=src))
         elif isinstance(s.get("repair"), str):
@@ -966,6 +1030,65 @@ def _case(it: _Item, ctx: _Ctx, checks: Mapping[str, Check],
         expect_not_asked=tuple(moved.get(c, c) for c in _list(d.get("expect_not_asked"))),
         expect_offered=tuple(moved.get(c, c) for c in _list(d.get("expect_offered"))),
     )
+
+
+def _step_answer(it: _Item, j: int, cid: str, chk: Check | None, ctx: _Ctx) -> None:
+    """Step ``j`` of test ``it`` answers check ``cid``: with one of its outcomes, or a reading.
+
+    A reading must be in a unit of the measurement's kind (the unit grammar of
+    :mod:`diagnose.physics.units`), so that the case fails at lint, at the step,
+    not only when `kb test` plays it.
+    """
+    step = it.data["steps"][j]
+    ans = step.get("answer")
+    if ans is None:
+        if not step.get("skip"):
+            ctx.error(f"test {it.id!r}: step on {cid!r} needs `answer` or `skip: true`",
+                      it.at("steps", j), "schema")
+        return
+    if chk is None:
+        return
+    with ctx.following(ctx.unresolved.get(cid)):
+        if chk.measurement is None and str(ans) not in chk.outcomes and str(ans) != "unsure":
+            close = difflib.get_close_matches(str(ans), chk.outcomes, n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            ctx.error(f"test {it.id!r}: {ans!r} is not an outcome of check {cid!r}{hint}",
+                      it.at("steps", j, "answer"), "unknown-ref")
+        why = _reading_problem(chk, ans) if chk.measurement is not None else ""
+        if why:
+            ctx.error(f"test {it.id!r}: reading {ans!r} of check {cid!r} does not fit its "
+                      f"unit {chk.measurement.unit or 'a plain number'!r}: {why}",
+                      it.at("steps", j, "answer"), "unit")
+
+
+def _reading_problem(chk: Check, ans: Any) -> str:
+    """Why ``ans`` is neither an outcome of measurement ``chk`` nor a reading in its unit ("")."""
+    from diagnose.physics.inputs import split_readings
+
+    units = _units()
+    m = chk.measurement
+    assert m is not None
+    text = ("yes" if ans else "no") if isinstance(ans, bool) else ans
+    if isinstance(text, str) and _squash(text) in {_squash(o) for o in (*chk.outcomes, "unsure")}:
+        return ""
+    if isinstance(ans, Mapping):
+        return ""  # named readings: the evaluator's to judge
+    if isinstance(ans, (list, tuple)) and not m.many:
+        return "expected one reading, got a list"
+    try:
+        for reading in split_readings(ans, m.reading) if m.many else [ans]:
+            if not units.is_open(reading):
+                units.parse_quantity(reading, m.unit, m.reading, negative=True)
+    except InputError as exc:
+        return exc.message
+    except ValueError:
+        return ""  # the check's own unit is unknown: an error at its line already
+    return ""
+
+
+def _squash(text: str) -> str:
+    """An answer as the session matches it to an outcome: no case, spaces, _ or -."""
+    return "".join(ch for ch in text.strip().lower() if ch not in " _-")
 
 
 # ---------------------------------------------------------------------------------------------
@@ -1301,13 +1424,12 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
     ``schema=False`` skips the JSON Schema pass, for data that code built and
     already checked (the benchmark times that pass on its own).
     """
-    ctx = _Ctx()
+    ctx = _Ctx(missing_base=_missing_base(sources))
     _collect(sources, ctx, schema)
     it = ctx.items
     top = sources[-1]
     terms = _device_pack(top.manifest, top, ctx)
-    manifest = {k: fill(v, terms)[0] if isinstance(v, str) else v
-                for k, v in top.manifest.items()}
+    manifest = _manifest_filled(top, terms, ctx)
 
     cautions = {i: Caution(i, str(x.data.get("level", "NOTICE")), str(x.data.get("text", "")),
                            x.at()) for i, x in it["cautions"].items()}
@@ -1359,15 +1481,45 @@ def compile_sources(sources: list[Any], *, learned: Mapping[str, float] | None =
         repairs=repairs, cautions=cautions, cases=cases, states=states, hazards=hazards,
         unknown_prior=_num(manifest.get("unknown_prior"), 5.0),
         leak=_num(manifest.get("leak"), 0.01), content_hash=digest.hexdigest()[:16],
-        path=top.folder, cause_order={c: i for i, c in enumerate(causes)},
+        path=top.folder, cause_order={c: i for i, c in enumerate(causes)}, terms=terms,
     )
-    if not any(p.level == "error" and p.code == "unknown-ref" for p in ctx.problems):
-        if _tree_checks(model, ctx):
-            _usage_checks(model, ctx)
-        _safety_checks(model, ctx)
+    _whole_pack_checks(model, ctx)
     if any(p.level == "error" for p in ctx.problems):
         return None, ctx.problems
     return model, ctx.problems
+
+
+def _whole_pack_checks(model: Model, ctx: _Ctx) -> None:
+    """The fault tree, usage and safety, unless a missing base pack leaves them half a pack.
+
+    Then each error that hid knock-on errors says how many: in its own message,
+    or (for the missing base pack, whose error the loader reported) in a
+    ``knock-on`` error at the same place, which lint joins to it.
+    """
+    if ctx.missing_base is None:
+        if not any(p.level == "error" and p.code == "unknown-ref" for p in ctx.problems):
+            if _tree_checks(model, ctx):
+                _usage_checks(model, ctx)
+        _safety_checks(model, ctx)
+    for root, n in ctx.hidden.items():
+        note = f"and {n} errors that follow from it are not shown" if n != 1 else \
+            "and 1 error that follows from it is not shown"
+        if root == MISSING:
+            ctx.problems.append(Problem("error", note, ctx.missing_base, "knock-on"))
+        else:
+            first = ctx.problems[root]
+            ctx.problems[root] = _with(first, message=f"{first.message} ({note})")
+
+
+def _missing_base(sources: list[Any]) -> Source | None:
+    """Where the chain names a base pack that was not read (by id or folder name), or None."""
+    read = {s.id for s in sources} | {os.path.basename(str(s.folder)) for s in sources}
+    for src in sources:
+        bases = src.manifest.get("builds_on")
+        for i, base in enumerate(bases if isinstance(bases, list) else []):
+            if isinstance(base, str) and base not in read and src.documents:
+                return src.documents[0].where(("builds_on", i))
+    return None
 
 
 def compile_pack(files: list[tuple[str, dict[str, Any]]], *, pack_id: str = "inline",

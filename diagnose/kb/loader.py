@@ -206,15 +206,38 @@ def _manifest_where(src: PackSource, key: str) -> Source | None:
 
 
 def check_pack(ref: str, *, search: list[str] | None = None,
-               learned: dict[str, float] | None = None) -> tuple[Model | None, list[Problem]]:
-    """Read and compile ``ref``; return the model (None on errors) and every problem found."""
+               learned: dict[str, float] | None = None,
+               cache: bool = False) -> tuple[Model | None, list[Problem]]:
+    """Read and compile ``ref``; return the model (None on errors) and every problem found.
+
+    With ``cache`` the compiled-pack cache (:mod:`diagnose.kb.cache`) is asked
+    first, and a pack read anew is kept there; lint never asks it, since it
+    reports what the YAML says, where.
+    """
+    return _compiled(ref, search, learned, cache=cache)
+
+
+def _compiled(ref: str, search: list[str] | None, learned: dict[str, float] | None, *,
+              cache: bool) -> tuple[Model | None, list[Problem]]:
+    """The one way to a compiled pack: the cache's entry when asked for and current, else
+    the YAML read, checked and compiled (and then kept in the cache when asked for)."""
+    found = None
+    if cache:
+        from diagnose.kb import cache as pack_cache
+
+        found = pack_cache.lookup(ref, search, learned)
+        if found.hit:
+            return found.model, list(found.problems or ())
     from diagnose.kb.compiler import compile_sources
 
     sources, problems = read_chain(ref, search)
     if any(p.level == "error" and p.code in ("yaml", "io", "manifest") for p in problems):
         return None, problems
     model, more = compile_sources(sources, learned=learned)
-    return model, problems + _not_again(more, problems)
+    problems = problems + _not_again(more, problems)
+    if found is not None and model is not None:
+        pack_cache.store(found, sources, model, problems, search=search, learned=learned)
+    return model, problems
 
 
 def _not_again(more: list[Problem], found: list[Problem]) -> list[Problem]:
@@ -233,17 +256,18 @@ def _not_again(more: list[Problem], found: list[Problem]) -> list[Problem]:
 
 
 def load_model(ref: str, *, search: list[str] | None = None,
-               learned: dict[str, float] | None = None) -> Model:
+               learned: dict[str, float] | None = None, cache: bool = False) -> Model:
     """Find, read, validate and compile pack ``ref`` (an id or a folder).
 
     ``learned`` optionally replaces cause priors (an overlay learned from closed
-    repairs); the trainers' YAML is never changed.
+    repairs); the trainers' YAML is never changed. ``cache``: through the
+    compiled-pack cache (see :func:`check_pack`); the faces ask for it.
 
     Raises:
         InputError: no such pack.
         KnowledgeError: the pack has errors; ``.problems`` lists all of them.
     """
-    model, problems = check_pack(ref, search=search, learned=learned)
+    model, problems = check_pack(ref, search=search, learned=learned, cache=cache)
     errors = [p for p in problems if p.level == "error"]
     if errors or model is None:
         raise KnowledgeError(errors or problems,

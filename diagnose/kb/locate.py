@@ -445,6 +445,27 @@ def find_pack_id(pid: str, extra: list[str] | None = None) -> Path:
     raise InputError("pack", unknown_pack(pid, list(known)))
 
 
+def pack_id(folder: str | os.PathLike[str]) -> str:
+    """The id of the pack in ``folder`` as loading it gives it, from its manifest alone.
+
+    The manifest's ``pack:`` id, else the folder's name (a manifest that cannot
+    be read is the loader's to report). Read as discovery reads it (the id line
+    when it settles the id, else the bounded reader) and kept in the same cache,
+    so that the rest of the pack is not read for it.
+    """
+    manifest = os.path.join(os.path.abspath(folder), MANIFEST)
+    try:
+        st = os.stat(manifest)
+    except (OSError, ValueError):
+        return Path(folder).name
+    manifests = _Manifests(_Cache.open())
+    try:
+        pid, _ = manifests.look(manifest, st, check=False)
+    finally:
+        manifests.cache.save()
+    return pid or Path(os.path.abspath(folder)).name
+
+
 def unknown_pack(ref: str, known: list[str]) -> str:
     """The message for an unknown pack id: a few known ids, how many more, and the closest one.
 

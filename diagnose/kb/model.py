@@ -292,6 +292,8 @@ class Model:
     leak: float = 0.01  # P(complaint | a hypothesis whose tree does not produce it)
     content_hash: str = ""
     path: str = ""
+    #: The device's terms (``diagnose.kb.terms``: device, Device, switch_on, ...).
+    terms: Mapping[str, str] = field(default_factory=dict, compare=False)
     #: Listing position of each cause, built when the pack is compiled (empty: worked out).
     cause_order: Mapping[str, int] = field(default_factory=dict, repr=False, compare=False)
 

@@ -1,7 +1,11 @@
-"""Skeletons of new pack entries for trainers: ``diagnose kb new KIND ID``.
+"""Skeletons of new packs and pack entries for trainers: ``diagnose kb new KIND ID``.
 
-A skeleton is commented YAML with every field a trainer must fill. Each field
-still to fill holds a placeholder that lint rejects until it is replaced: an
+A new pack (``kb new pack ID``) is a folder with a manifest and one complaint,
+cause, check, repair and test case that fit together: it lints clean but for
+a warning at each text that still says ``TODO``, and ``kb test`` plays its case.
+
+A skeleton of one entry is commented YAML with every field a trainer must
+fill. Each field still to fill holds a placeholder that lint rejects until it is replaced: an
 empty value where a text or a number belongs, ``TODO`` where a probability
 belongs, or a reference to an id that does not exist (``todo_cause``,
 ``$todo_parameter``, an evaluator ``TODO``). Every placeholder
@@ -331,3 +335,200 @@ def _check_unused(folder: Path, id: str) -> None:
             for entry in entries if isinstance(entries, list) else []:
                 if isinstance(entry, dict) and entry.get("id") == id:
                     raise InputError("ID", f"{id} is already a {section[:-1]} in {path.name}")
+
+
+# ---------------------------------------------------------------------------------------------
+# a new pack
+
+_PACK_ID = re.compile(r"^[a-z][a-z0-9-]*$")
+_SENSES = ("released", "engaged")
+
+_MANIFEST = """\
+# A new knowledge pack. Write every text that says TODO (lint warns at each one),
+# then run `diagnose kb lint {ref}` and `diagnose kb test {ref}`.
+# DEVELOPERS.md, "Writing knowledge", explains each field.
+pack: {id}
+title: "TODO: the device and the faults this pack covers"
+version: 0.1.0
+{builds_on}{device}# Shown at the start of every session and in every repair log: adapt it.
+notice: >-
+  This tool is an aid for trained service staff. It does not replace local
+  codes, the machine's own instructions or licensed practice, and it defers to
+  them. Isolate and lock out power before hands-on work. Measurements on live
+  circuits are for qualified persons only.
+unknown_prior: 30     # "none of the known causes": times per 1,000 service calls
+leak: 0.01            # chance of a complaint that its tree does not explain
+"""
+
+_DEVICE = """\
+device:               # the device's words: {{device}}, {{switch_on}}, ... in any text of the chain
+  noun: {noun}
+  energised: {energised}   # what energising the coil does to it: released | engaged
+  states: {{released: released, engaged: engaged}}   # its states' words (a brake: applied)
+"""
+
+_FAULTS = """\
+# The complaint (the symptom first reported, the top of its fault tree) and the causes under it.
+complaints:
+  - id: {p}_complaint
+    title: "TODO: the symptom as the technician reports it"
+    caller: "TODO: the symptom as a caller says it on the phone"
+    gate: or          # or | and | k_of_n (with k: 2); or: any one input causes it
+    inputs: [{p}_cause]   # the causes or events under this complaint
+
+causes:
+  - id: {p}_cause
+    title: "TODO: what is found, as the technician would say it"
+    prior: 10         # times this cause is the one found per 1,000 service calls
+    # description: how it comes about and what it looks like (optional)
+"""
+
+_CHECKS = """\
+# A measurement instead: `diagnose kb new measurement ID --evaluator NAME --file checks.yaml`.
+checks:
+  - id: {p}_check
+    title: "TODO: short name of the check"
+    minutes: 5        # minutes of work, including getting at the part
+    where: site       # site, or phone if an untrained caller can do it safely
+    tools: []         # e.g. [multimeter]
+    cautions: []      # ids of cautions shown before the instructions
+    ask: "TODO: what the technician does and looks for"
+    outcomes:         # outcome id -> its wording
+      as_expected: "TODO: the answer when all is well"
+      fault_seen: "TODO: the answer the fault gives"
+    normal: {{as_expected: 0.95}}   # P(outcome) when none of the listed causes is present
+    effects:          # P(outcome | cause present); left-out outcomes share the rest
+      {p}_cause: {{fault_seen: 0.9}}
+"""
+
+_REPAIRS = """\
+repairs:
+  - id: {p}_repair
+    title: "TODO: what is done"
+    minutes: 30       # minutes of work, including getting at the part
+    parts:            # one whole part per line, as it is ordered
+      - "TODO: the part, to the nameplate"
+    fixes: [{p}_cause]
+    success: 0.95     # P(cured | a cause it fixes is present)
+    cautions: []      # e.g. [lockout] with hazards: [hands_on]; lint asks for them by the wording
+    confirm: {p}_check   # the check that confirms the cure
+    ask: "TODO: what the technician does, cautions first"
+"""
+
+_TESTS = """\
+# Knowledge test cases: `diagnose kb test {ref}` plays each one.
+tests:
+  - id: {p}_case
+    title: "TODO: the story this case tells"
+    complaints: [{p}_complaint]
+    steps:
+      - {{check: {p}_check, answer: fault_seen}}
+    expect_top: [{p}_cause]
+"""
+
+
+def pack_files(id: str, *, builds_on: tuple[str, ...] | list[str] = (),
+               device: str | None = None, energised: str | None = None,
+               ref: str | None = None) -> dict[str, str]:
+    """The files of a new pack ``id``: file name -> YAML text (``pack.yaml`` first).
+
+    ``device`` and ``energised`` give the manifest its device terms; ``ref``
+    is how the messages in the files name the pack (default: ``id``).
+
+    Raises:
+        InputError: an id that is not a pack id, a base that is not one, a
+            device noun that is no plain word, ``energised`` without a device.
+
+    >>> files = pack_files("demo", builds_on=["electrical-supply"], device="clutch",
+    ...                    energised="engaged")
+    >>> list(files)
+    ['pack.yaml', 'faults.yaml', 'checks.yaml', 'repairs.yaml', 'tests.yaml']
+    >>> "  energised: engaged" in files["pack.yaml"], "demo_cause" in files["tests.yaml"]
+    (True, True)
+    """
+    if not _PACK_ID.match(id):
+        raise InputError("ID", f"{id!r} is not a pack id: lower-case letters, digits and "
+                         "hyphens, starting with a letter")
+    for base in builds_on:
+        if not _PACK_ID.match(base):
+            raise InputError("--builds-on", f"{base!r} is not a pack id")
+    lines = f"builds_on: [{', '.join(builds_on)}]   # packs whose entries this one reuses\n" \
+        if builds_on else ""
+    terms = _device_block(device, energised)
+    p = id.replace("-", "_")
+    ref = ref or id
+    return {
+        MANIFEST: _MANIFEST.format(id=id, ref=ref, builds_on=lines, device=terms),
+        "faults.yaml": _FAULTS.format(p=p),
+        "checks.yaml": _CHECKS.format(p=p),
+        "repairs.yaml": _REPAIRS.format(p=p),
+        "tests.yaml": _TESTS.format(p=p, ref=ref),
+    }
+
+
+def _device_block(device: str | None, energised: str | None) -> str:
+    """The manifest's ``device:`` block ("" without a device)."""
+    import json
+
+    if device is None:
+        if energised is not None:
+            raise InputError("--energised", "give --device too: the energised sense is the "
+                             "device's")
+        return ""
+    noun = device.strip()
+    if not noun or len(noun) > 40 or not noun.isprintable() or set(noun) & set("{}\"\\#:"):
+        raise InputError("--device", f"{device!r} is not a plain word for the device "
+                         "(brake, clutch, ...)")
+    if energised is not None and energised not in _SENSES:
+        raise InputError("--energised", f"{energised!r}: give released or engaged")
+    return _DEVICE.format(noun=json.dumps(noun, ensure_ascii=False),
+                          energised=energised or "released")
+
+
+def write_pack(parent: str | Path, id: str, *, builds_on: tuple[str, ...] | list[str] = (),
+               device: str | None = None, energised: str | None = None,
+               search: list[str] | None = None,
+               journal: str | os.PathLike[str] | None = None) -> Path:
+    """Write the new pack ``id`` into a new folder ``parent/id``; return that folder.
+
+    Each base of ``builds_on`` must be a pack on the search path (``search``
+    first). A folder that exists is never written into. Each file is written
+    at once (:func:`diagnose.paths.replace_atomically`); when one cannot be,
+    the new folder is removed again.
+
+    Raises:
+        InputError: see :func:`pack_files`; no such base pack; ``parent`` is no
+            folder; ``parent/id`` exists; a file is refused or cannot be written.
+    """
+    from diagnose.kb.locate import find_pack_id
+    from diagnose.paths import writable_target, write_text_atomically
+
+    parent = Path(parent)
+    target = parent / id
+    files = pack_files(id, builds_on=builds_on, device=device, energised=energised,
+                       ref=str(target) if parent != Path(".") else id)
+    for base in builds_on:
+        try:
+            find_pack_id(base, search)
+        except InputError as exc:
+            raise InputError("--builds-on", exc.message) from None
+    if not parent.is_dir():
+        raise InputError("--folder", f"{parent} is not a folder")
+    if os.path.lexists(target):
+        raise InputError("ID", f"{target} exists already; a new pack gets a folder of its own")
+    for name in files:
+        writable_target(target / name, journal=journal, field="ID")
+    try:
+        target.mkdir()
+    except OSError as exc:
+        raise InputError("ID", f"cannot make the folder {target}: "
+                         f"{exc.strerror or exc}") from None
+    try:
+        for name, text in files.items():
+            write_text_atomically(target / name, text, field="ID")
+    except BaseException:
+        for name in files:
+            (target / name).unlink(missing_ok=True)
+        target.rmdir()
+        raise
+    return target

@@ -22,6 +22,7 @@ term                      for a spring-applied brake (energised: released)
 ``{device}``              brake
 ``{Device}``              Brake
 ``{devices}``             brakes
+``{Devices}``             Brakes
 ``{energised_state}``     released: the state the coil's current puts it in
 ``{deenergised_state}``   applied: the state without current
 ``{switch_on}``           releases the brake: what switching the supply on does
@@ -42,7 +43,7 @@ from collections.abc import Iterator, Mapping
 from typing import Any
 
 SENSES = ("released", "engaged")
-NEUTRAL = {"device": "device", "Device": "Device", "devices": "devices",
+NEUTRAL = {"device": "device", "Device": "Device", "devices": "devices", "Devices": "Devices",
            "energised_state": "energised", "deenergised_state": "de-energised",
            "switch_on": "energises the device", "switch_off": "de-energises the device"}
 TERM = re.compile(r"\{([A-Za-z_]+)\}")
@@ -85,6 +86,7 @@ def terms_of(spec: Any) -> tuple[dict[str, str], list[str]]:
     noun = noun.strip()
     plural = str(spec.get("plural") or f"{noun}s")
     return {"device": noun, "Device": noun[:1].upper() + noun[1:], "devices": plural,
+            "Devices": plural[:1].upper() + plural[1:],
             "energised_state": word[sense], "deenergised_state": word[other],
             "switch_on": f"{verb[sense]} the {noun}",
             "switch_off": f"{undo[sense]} the {noun}"}, wrong

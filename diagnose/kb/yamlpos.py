@@ -26,6 +26,7 @@ References:
 from __future__ import annotations
 
 import errno
+import gc
 import os
 import re
 from dataclasses import dataclass, field
@@ -58,6 +59,23 @@ _CHECKED = {_TAG + kind: kind for kind in ("int", "float", "bool", "null", "time
 _BASE = getattr(yaml, "CSafeLoader", yaml.SafeLoader)  # libyaml when present: ten times faster
 
 
+def _libyaml_version() -> tuple[int, ...]:
+    try:
+        from yaml import _yaml  # type: ignore[attr-defined]
+
+        return tuple(_yaml.get_version())
+    except (ImportError, AttributeError, TypeError):
+        return ()
+
+
+#: One pass of libyaml for a clean document (see :func:`read_yaml`): only with libyaml 0.2.6
+#: or later, whose scanner itself refuses nesting deeper than 1,000 levels.
+FAST = _BASE is not yaml.SafeLoader and _libyaml_version() >= (0, 2, 6)
+# Where an anchor or an alias could start: "&" or "*" and a name character, after a line
+# break, a space, a flow indicator or a colon. A text without one has neither, for sure.
+_MAY_ALIAS = re.compile(r"(?:^|(?<=[\s\[{,:\ufeff]))[&*][^\s\[\]{},]", re.MULTILINE)
+
+
 class _Loader(_BASE):  # type: ignore[misc, valid-type]
     """SafeLoader (libyaml's when present) with YAML 1.2-style booleans."""
 
@@ -73,11 +91,16 @@ _Loader.add_implicit_resolver(
 
 @dataclass
 class Document:
-    """One YAML file: its data and the position of every value in it."""
+    """One YAML file: its data and the position of every value in it.
+
+    ``positions`` holds the 1-based line and column of each path (plain
+    numbers, so that a large pack does not weigh on memory and on the
+    garbage collector); :meth:`where` gives them as a ``Source``.
+    """
 
     path: str
     data: Any
-    positions: dict[Path, Source] = field(default_factory=dict)
+    positions: dict[Path, tuple[int, int]] = field(default_factory=dict)
 
     def where(self, path: Path) -> Source:
         """The position of ``path`` or of its closest recorded ancestor."""
@@ -86,13 +109,13 @@ class Document:
         p = tuple(path)
         while p:
             if p in self.positions:
-                return self.positions[p]
+                return Source(self.path, *self.positions[p])
             p = p[:-1]
-        return self.positions.get((), Source(self.path, 1, 1))
+        return Source(self.path, *self.positions.get((), (1, 1)))
 
 
-def _mark(path: str, node: yaml.Node) -> Source:
-    return Source(path, node.start_mark.line + 1, node.start_mark.column + 1)
+def _mark(node: yaml.Node) -> tuple[int, int]:
+    return node.start_mark.line + 1, node.start_mark.column + 1
 
 
 def read_text(path: str | os.PathLike[str], limit: int) -> str:
@@ -131,6 +154,10 @@ def read_yaml(text: str, path: str) -> tuple[Document | None, list[Problem]]:
     """
     if len(text) > PACK_FILE_BYTES:
         return None, [Problem("error", _too_large(len(text), PACK_FILE_BYTES), Source(path), "io")]
+    if FAST and not _MAY_ALIAS.search(text):
+        doc = _read_clean(text, path)
+        if doc is not None:
+            return doc, []
     problems: list[Problem] = []
     loader = _Loader(text)
     try:
@@ -162,6 +189,91 @@ def read_yaml(text: str, path: str) -> tuple[Document | None, list[Problem]]:
                               Source(path), "yaml")]
     finally:
         loader.dispose()
+
+
+def _read_clean(text: str, path: str) -> Document | None:
+    """The document of ``text`` read in one pass of libyaml, when it is clean; else None.
+
+    Clean: no anchor or alias (the caller has made sure), at most
+    :data:`MAX_NODES` values nested at most :data:`MAX_DEPTH` deep, every
+    scalar readable as its type (integers of at most :data:`MAX_INT_DIGITS`
+    digits), no key twice in a mapping. The data and the positions are the
+    ones the exact reader gives; on any doubt the exact reader (an event scan
+    first, then the document) reads the text again and says what and where.
+    """
+    loader = _Loader(text)
+    paused = gc.isenabled()
+    gc.disable()  # many objects and no cycle: the collector would only walk them again and again
+    try:
+        node = loader.get_single_node()
+        if node is None:
+            return Document(path, {})
+        data = loader.construct_document(node)
+        positions = _clean_positions(node, loader)
+    except Exception:  # noqa: BLE001 (whatever it is, the exact reader says it at its place)
+        return None
+    finally:
+        loader.dispose()
+        if paused:
+            gc.enable()
+    if positions is None:
+        return None
+    return Document(path, {} if data is None else data, positions)
+
+
+_STR = _TAG + "str"
+
+
+def _clean_positions(root: yaml.Node, loader: Any) -> dict[Path, tuple[int, int]] | None:
+    """The positions :func:`_walk` records for ``root``, or None when a check fails.
+
+    The checks are those of :func:`_scan` that building the data does not
+    already make (depth, number of values, long scalars) and the duplicate
+    keys of :func:`_walk`. Walks iteratively, in the order of the text.
+    """
+    positions: dict[Path, tuple[int, int]] = {}
+    stack: list[tuple[yaml.Node, Path, int, Any]] = [(root, (), 0, None)]
+    count = 0
+    while stack:
+        node, at, level, mark = stack.pop()
+        count += 1
+        mark = mark or node.start_mark
+        positions[at] = (mark.line + 1, mark.column + 1)
+        if isinstance(node, yaml.ScalarNode):
+            if node.tag != _STR and _long_scalar(node):
+                return None
+            continue
+        level += 1
+        if level > MAX_DEPTH:
+            return None
+        items: list[tuple[yaml.Node, Path, int, Any]] = []
+        if isinstance(node, yaml.MappingNode):
+            seen: set[Any] = set()
+            for key_node, value_node in node.value:
+                if not isinstance(key_node, yaml.ScalarNode) or _long_scalar(key_node):
+                    return None
+                key = key_node.value if key_node.tag == _STR else _scalar_key(key_node, loader)
+                if key in seen:
+                    return None
+                seen.add(key)
+                items.append((value_node, at + (key,), level, key_node.start_mark))
+            count += len(items)  # the keys
+        else:
+            items = [(item, at + (i,), level, None) for i, item in enumerate(node.value)]
+        if count + len(items) > MAX_NODES:
+            return None
+        stack.extend(reversed(items))
+    return positions if count <= MAX_NODES else None
+
+
+def _long_scalar(node: yaml.ScalarNode) -> bool:
+    """A scalar :func:`_bad_scalar` refuses for its length alone (its type being built anyway)."""
+    kind = _CHECKED.get(node.tag)
+    if kind is None:
+        return False
+    if kind == "int":
+        return sum(ch.isalnum() for ch in node.value) > MAX_INT_DIGITS
+    return len(node.value) > 1000
 
 
 def _scan(text: str, path: str) -> Problem | None:
@@ -254,16 +366,17 @@ def _bad_scalar(loader: Any, event: yaml.ScalarEvent) -> str | None:
 
 def _walk(node: yaml.Node, at: Path, doc: Document, problems: list[Problem], path: str,
           loader: Any) -> None:
-    doc.positions[at] = _mark(path, node)
+    doc.positions[at] = _mark(node)
     if isinstance(node, yaml.MappingNode):
-        seen: dict[Any, Source] = {}
+        seen: dict[Any, tuple[int, int]] = {}
         for key_node, value_node in node.value:
             key = _scalar_key(key_node, loader)
-            here = _mark(path, key_node)
+            here = _mark(key_node)
             if key in seen:
                 problems.append(Problem(
                     "error", f"key {key!r} appears twice in one mapping (first at line "
-                    f"{seen[key].line}); YAML keeps only the last", here, "duplicate-key"))
+                    f"{seen[key][0]}); YAML keeps only the last", Source(path, *here),
+                    "duplicate-key"))
             seen[key] = here
             _walk(value_node, at + (key,), doc, problems, path, loader)
             doc.positions[at + (key,)] = here  # point at the key, where people look

@@ -55,7 +55,7 @@ def judge_gap(readings: list[float], nominal: float, smallest: float | None, lar
 _MEANING = {
     "ok": "within limits",
     "worn": "worn: the gap is beyond the wear limit",
-    "too_small": "too small: the brake may drag while released",
+    "too_small": "too small: the faces may touch and drag while the armature is pulled in",
     "uneven": "uneven: the readings differ too much around the circumference",
 }
 

@@ -56,7 +56,7 @@ def judge_off_voltage(rated: float, volts: float, off_share: float, present_shar
 
 _MEANING = {
     "off": "off, as it should be",
-    "residual": "leakage or induced voltage that can hold a released brake open",
+    "residual": "leakage or induced voltage that can keep the armature pulled in",
     "present": "the supply is still on the coil (a welded contact or wiring past the switch)",
 }
 

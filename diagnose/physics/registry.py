@@ -260,7 +260,23 @@ _SPECS = (
         "diagnose.physics.temperature:evaluate_temperature",
     ),
     EvaluatorSpec(
-        "release", "First-order release margin",
+        "pull_in", "First-order pull-in margin (any device, either sense)",
+        (
+            _q("rated_voltage", "V", "rated coil voltage"),
+            _q("volts", "V", "measured volts at the coil terminals"),
+            _q("temperature", "degC", "coil temperature", required=False, default="20 degC"),
+            _q("nominal_gap", "mm", "nominal air gap"),
+            _q("gap", "mm", "measured mean air gap"),
+            _q("pull_in", "", "fraction of rated voltage that pulls a cold armature in at the "
+               "nominal gap", required=False, default=0.7),
+            _q("reserve", "", "voltage reserve below which the pull-in counts as marginal, "
+               "as a fraction", required=False, default=0.1),
+        ),
+        ("pulls_in", "marginal", "does_not_pull_in"), "volts",
+        "diagnose.physics.release:evaluate_pull_in",
+    ),
+    EvaluatorSpec(
+        "release", "First-order release margin (a spring-applied brake's words)",
         (
             _q("rated_voltage", "V", "rated coil voltage"),
             _q("volts", "V", "measured volts at the coil terminals"),

@@ -1,4 +1,12 @@
-"""A first-order release margin: will the coil pull the armature in?
+"""A first-order pull-in margin: will the coil pull the armature in?
+
+Two evaluators share the model: ``pull_in`` speaks of the armature only
+(pulls in / does not pull in), for any device, whichever way energising acts
+on it: a spring-applied brake releases when it pulls in, a clutch or a
+holding magnet that engages when energised engages; the pack says which in
+the outcome titles of its check. ``release`` is the same reckoning in a
+brake's words (releases / will not release), kept for the brake packs and
+``diagnose calc release``.
 
 The model. The pull across an air gap goes with the square of the
 ampere-turns over the gap, ``F ~ (N*I / g)**2``; the current is the volts
@@ -82,6 +90,37 @@ _MEANING = {
     "marginal": "marginal: a little more wear, heat or voltage loss stops the release",
     "will_not_release": "will not release",
 }
+
+
+_PULL = {
+    "pulls_in": "pulls in with margin",
+    "marginal": "marginal: a little more wear, heat or voltage loss and it does not pull in",
+    "does_not_pull_in": "does not pull in",
+}
+_AS_PULL = {"releases": "pulls_in", "marginal": "marginal", "will_not_release": "does_not_pull_in"}
+
+
+def evaluate_pull_in(values: Mapping[str, Any]) -> Verdict:
+    """Estimate whether the coil pulls the armature in at the measured volts, heat and gap.
+
+    The inputs and the reckoning of :func:`evaluate_release`; the verdicts
+    ``pulls_in``, ``marginal`` and ``does_not_pull_in`` say nothing of what
+    pulling in does to the device.
+
+    >>> v = evaluate_pull_in({"rated_voltage": 24, "volts": 12, "nominal_gap": 0.3,
+    ...                       "gap": 0.3})
+    >>> v.verdict, v.summary.startswith("needs about 16.8 V to pull the armature in")
+    ('does_not_pull_in', True)
+    """
+    brake = evaluate_release(values)
+    verdict = _AS_PULL[brake.verdict]
+    figures = dict(brake.figures)
+    needed = figures["needed"]
+    figures["needed"] = type(needed)(needed.label.replace("release", "pull in"), needed.value,
+                                      needed.unit)
+    head, _, tail = brake.summary.partition(" to release ")
+    summary = f"{head} to pull the armature in {tail.rsplit(': ', 1)[0]}: {_PULL[verdict]}"
+    return Verdict("pull_in", verdict, figures, summary)
 
 
 def evaluate_release(values: Mapping[str, Any]) -> Verdict:

@@ -95,12 +95,71 @@ _KINDS: tuple[tuple[str, str, str], ...] = (
 )
 
 
+#: The sub-folder of the user's cache folder where pint keeps its parsed definitions.
+UNITS_CACHE = "units"
+
+
 @lru_cache(maxsize=1)
 def registry() -> Any:
-    """The one shared pint ``UnitRegistry``, created on first use."""
+    """The one shared pint ``UnitRegistry``, created on first use.
+
+    Reading pint's definitions takes a quarter of a second; pint's own disk
+    cache (``cache_folder``, keyed by pint's version and the definitions'
+    content) keeps them parsed in ``units`` under the user's cache folder, when
+    that folder is the user's own, no symbolic link and written by nobody else.
+    A cache that cannot be read is emptied and made again; the registry is the
+    same either way.
+    """
     import pint
 
+    folder = _registry_cache()
+    if folder is not None:
+        for _ in range(2):
+            try:
+                return pint.UnitRegistry(cache_folder=folder)
+            except Exception:  # noqa: BLE001 (a damaged cache file: pint unpickles it as it is)
+                _empty(folder)
     return pint.UnitRegistry()
+
+
+def _registry_cache() -> str | None:
+    """pint's cache folder in the user's cache folder (made), or None when it may not be used."""
+    import os
+    import stat
+
+    from diagnose.paths import cache_dir
+
+    try:
+        folder = cache_dir() / UNITS_CACHE
+        folder.mkdir(parents=True, exist_ok=True, mode=0o700)
+        mine = [os.lstat(p) for p in (folder.parent, folder)]
+    except (OSError, RuntimeError, KeyError):
+        return None
+    uid = os.getuid() if hasattr(os, "getuid") else None
+    for st in mine:
+        if stat.S_ISLNK(st.st_mode) or not stat.S_ISDIR(st.st_mode) or (
+                uid is not None and st.st_uid != uid):
+            return None
+    if os.name == "posix" and mine[1].st_mode & 0o022:
+        return None
+    return str(folder)
+
+
+def _empty(folder: str) -> None:
+    """Remove the files of pint's cache folder (not what is below it)."""
+    import os
+
+    try:
+        names = os.listdir(folder)
+    except OSError:
+        return
+    for name in names:
+        path = os.path.join(folder, name)
+        try:
+            if os.path.isfile(path) and not os.path.islink(path):
+                os.unlink(path)
+        except OSError:
+            continue
 
 
 def normalize_unit(text: str) -> str:

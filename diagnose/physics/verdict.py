@@ -88,6 +88,48 @@ def preferred_figure(value: float, unit: str, units: str = "metric") -> tuple[fl
     return inches, "in", f"{_mm_text(mm)} mm"
 
 
+def preferred_rows(rows: Iterable[tuple[str, str, Any, str]], units: str = "metric"
+                   ) -> list[tuple[str, Any, str, str]]:
+    """``(label, value, unit, beside)`` for figures given as ``(key, label, value, unit)``.
+
+    Under ``"metric"`` the figures as they are (``beside`` ""). Under ``"inch"``
+    each length is given by :func:`preferred_figure`, and a figure keyed
+    ``X_mm`` that only repeats figure ``X`` in millimetres is left out (its
+    value is the one beside ``X`` now). A value that is not a number stays as
+    it is.
+
+    >>> preferred_rows([("tir", "runout", 0.007, "in"), ("tir_mm", "in mm", 0.1778, "mm"),
+    ...                 ("used", "share", 12.5, "%")], "inch")
+    [('runout', 0.007, 'in', '0.18 mm'), ('share', 12.5, '%', '')]
+    >>> preferred_rows([("tir", "runout", 0.1778, "mm")])
+    [('runout', 0.1778, 'mm', '')]
+    """
+    rows = list(rows)
+    keys = {row[0] for row in rows}
+    out: list[tuple[str, Any, str, str]] = []
+    for key, label, value, unit in rows:
+        if units != "metric" and isinstance(key, str) and key.endswith("_mm") \
+                and key[:-3] in keys:
+            continue
+        number = _finite(value) if units != "metric" and isinstance(unit, str) else None
+        if number is None:
+            out.append((label, value, unit, ""))
+        else:
+            out.append((label, *preferred_figure(number, unit, units)))
+    return out
+
+
+def _finite(value: Any) -> float | None:
+    """``value`` as a finite float, or None: not a number (a bool is none), too large, NaN."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return None
+    try:
+        number = float(value)
+    except OverflowError:
+        return None
+    return number if math.isfinite(number) else None
+
+
 def _mm_text(mm: float) -> str:
     """Millimetres beside an inch figure: 0.46, 12.7, 0.051."""
     if abs(mm) >= 0.1:

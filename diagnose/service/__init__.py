@@ -42,10 +42,11 @@ class Where:
     packs: tuple[str, ...] = ()
     journal: str | None = None
     learned: bool = True
+    cache: bool = True  # packs through the compiled-pack cache (``diagnose.kb.cache``)
 
     @classmethod
     def of(cls, args: Any) -> Where:
-        """From parsed command-line options (``packs``, ``journal``, ``no_learned``).
+        """From parsed command-line options (``packs``, ``journal``, ``no_learned``, ``no_cache``).
 
         The journal is ``--journal``; without it, and without ``DIAGNOSE_JOURNAL``,
         the one the settings file names (None: the data folder's; see ``diagnose.paths``).
@@ -54,7 +55,8 @@ class Where:
             InputError: the settings file is broken (only read when its journal counts).
         """
         return cls(tuple(getattr(args, "packs", None) or ()), _journal_of(args),
-                   not getattr(args, "no_learned", False))
+                   not getattr(args, "no_learned", False),
+                   not getattr(args, "no_cache", False))
 
     @property
     def search(self) -> list[str]:
@@ -124,15 +126,16 @@ def open_pack(ref: str, where: Where) -> Any:
     Raises:
         InputError: no such pack. KnowledgeError: the pack has errors.
     """
-    from diagnose.kb.loader import load_model, read_pack
-    from diagnose.kb.locate import find_pack
+    from diagnose.kb.loader import load_model
+    from diagnose.kb.locate import find_pack, pack_id
 
-    try:
-        src, _ = read_pack(find_pack(ref, where.search))
+    try:  # the id from the manifest alone: the cache may spare reading the rest
+        pid = pack_id(find_pack(ref, where.search))
     except (DiagnoseError, OSError):  # load_model below reports the real problem
-        return load_model(ref, search=where.search)
-    overlay = learned_overlay(src.id, where)
-    return load_model(ref, search=where.search, learned=overlay.priors if overlay else None)
+        return load_model(ref, search=where.search, cache=where.cache)
+    overlay = learned_overlay(pid, where)
+    return load_model(ref, search=where.search, learned=overlay.priors if overlay else None,
+                      cache=where.cache)
 
 
 def try_pack(ref: str, where: Where) -> Any:

@@ -50,7 +50,9 @@ def register(subparsers: Any, handler: Any = None) -> Any:
         "calc", help="work out one measurement by hand (coil, supply, cable, gap, ...)",
         description=textwrap.fill(
             "Judge one measurement without a session. Values take units (24V, 0.15 mm, "
-            "0.006 in, 40 degC, 0.5mm2, OL); a bare number is in the input's default unit. "
+            "0.006 in, 40 degC, 0.5mm2, OL); a bare number is in the input's default unit, "
+            "but for a length in mm it is in inches under the inch preference (--units inch "
+            "or the settings file), and figures are then shown in inches with mm beside. "
             "See `diagnose calc NAME --help` for the inputs of each.", 78),
         epilog="verdicts:\n" + listing,
         formatter_class=argparse.RawDescriptionHelpFormatter,
@@ -110,13 +112,19 @@ def _add_input(parser: argparse.ArgumentParser, inp: InputSpec) -> None:
     action.calc_single = not inp.many  # type: ignore[attr-defined]
 
 
-def verdict_of(args: argparse.Namespace) -> Any:
+def verdict_of(args: argparse.Namespace, units: str = "metric") -> Any:
     """The verdict of the chosen evaluator on the options given (parsed by :func:`register`'s).
+
+    ``units``: the technician's preference; under "inch" a bare number given
+    for a length in mm (a gap, a runout) is taken in inches, as the readings
+    of a session are (``diagnose.physics.units.preferred_reading``), and the
+    evaluator then works its figures out in inches.
 
     Raises:
         InputError: a value the physics refuses.
     """
     from diagnose.physics import evaluate
+    from diagnose.physics.units import preferred_reading
 
     spec = EVALUATORS[args.calc_evaluator]
     values: dict[str, Any] = {}
@@ -124,7 +132,9 @@ def verdict_of(args: argparse.Namespace) -> Any:
         given = getattr(args, f"in_{inp.name}", None)
         if given is not None:
             joined = isinstance(given, list) and not inp.many
-            values[inp.name] = " ".join(given) if joined else given
+            value = " ".join(given) if joined else given
+            values[inp.name] = preferred_reading(value, inp.unit, units) \
+                if inp.kind == "quantity" else value
     accuracy = getattr(args, "calc_accuracy", None)
     if accuracy is not None:
         from diagnose.physics.soft import soft_verdict

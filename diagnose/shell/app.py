@@ -51,7 +51,7 @@ if TYPE_CHECKING:
     from diagnose.session import Session
 
 IDENTITY_FIELDS = (("site", "Site or customer"), ("machine", "Machine"), ("axis", "Axis"),
-                   ("serial", "Brake serial number"))
+                   ("serial", "{Device} serial number"))
 ACK_WORDS = frozenset({"ack", "acknowledge", "acknowledged", "ok", "yes", "y"})
 YES = frozenset({"yes", "y", "cured", "true"})
 NO = frozenset({"no", "n", "not cured", "false"})
@@ -401,7 +401,9 @@ class Shell:
         """Optional facts for the log; Enter skips each."""
         self.heading("For the repair log (optional: Enter skips)")
         fields: dict[str, str] = {}
+        device = self.model.terms.get("Device") or "Unit"
         for key, label in IDENTITY_FIELDS:
+            label = label.replace("{Device}", device)
             text = self.ask(f"{label}: ", lambda t: t)
             if text:
                 fields[key] = text

@@ -2,7 +2,8 @@
 
 ``calc coil --rated-voltage 24V --rated-power 20W --ohms 3.2`` gives the
 verdict with its figures. The options are those of `diagnose calc NAME`
-(generated from the evaluator registry), so the two never disagree.
+(generated from the evaluator registry), so the two never disagree; a bare
+length is read, and figures are shown, in the technician's preferred units.
 """
 
 from __future__ import annotations
@@ -37,11 +38,16 @@ def _parsers() -> tuple[argparse.ArgumentParser, dict[str, argparse.ArgumentPars
     return root, names
 
 
-def run_calc(line: str) -> Any:
+def run_calc(line: str, units: str | None = None) -> Any:
     """A renderable: the verdict of ``line`` (``NAME --input VALUE ...``) or the help asked for.
 
+    ``units``: the technician's preference ("metric" or "inch"): under "inch" a
+    bare length is read in inches and lengths are shown in inches with mm
+    beside them, as the shell's readings are. None: the settings file's.
+
     Raises:
-        InputError: unknown calculator, bad options, a value the physics refuses.
+        InputError: unknown calculator, bad options, a value the physics refuses,
+            a broken settings file.
     """
     from rich.text import Text
 
@@ -61,7 +67,10 @@ def run_calc(line: str) -> Any:
         raise InputError("calc", f"no calculator {name!r}; known: {', '.join(EVALUATORS)}")
     if len(tokens) == 1 or any(t in ("-h", "--help", "help") for t in tokens[1:]):
         return Text(names[name].format_help().replace("usage:  calc", "usage: calc"))
+    from diagnose.service import preferences
     from diagnose.service.calc import verdict_of
     from diagnose.views import VerdictView
 
-    return VerdictView(verdict_of(root.parse_args(["calc", *tokens])))
+    args = root.parse_args(["calc", *tokens])
+    units = units or preferences().units
+    return VerdictView(verdict_of(args, units), units)

@@ -339,7 +339,7 @@ def calc(shell: Shell, arg: str) -> None:
     `calc coil --rated-voltage 24V --rated-power 20W --ohms 3.2`."""
     from diagnose.shell.calc import run_calc
 
-    shell.console.print(run_calc(arg.strip()))
+    shell.console.print(run_calc(arg.strip(), shell.units))
 
 
 @command("mode phone|site", choices=lambda shell: (("site", "a technician at the unit"),
