@@ -113,6 +113,21 @@ def _q(name: str, unit: str, help: str, required: bool = True, default: Any = No
     return InputSpec(name, help, "quantity", unit, required, default, (), many)
 
 
+def _pull_inputs(pull_in: str, what: str) -> tuple[Any, ...]:
+    """The inputs of the pull-in reckoning (``release`` and ``pull_in`` share them)."""
+    return (
+        _q("rated_voltage", "V", "rated coil voltage"),
+        _q("volts", "V", "measured volts at the coil terminals"),
+        _q("temperature", "degC", "coil temperature", required=False, default="20 degC"),
+        _q("nominal_gap", "mm", "nominal air gap"),
+        _q("gap", "mm", "measured mean air gap"),
+        _q("pull_in", "", f"fraction of rated voltage that {pull_in}", required=False,
+           default=0.7),
+        _q("reserve", "", f"voltage reserve below which {what} counts as marginal, as a "
+           "fraction", required=False, default=0.1),
+    )
+
+
 def _choice(name: str, choices: tuple[str, ...], help: str, default: str | None = None,
             required: bool | None = None) -> InputSpec:
     """A choice input; required when it has no default, unless ``required=False`` says otherwise."""
@@ -261,33 +276,13 @@ _SPECS = (
     ),
     EvaluatorSpec(
         "pull_in", "First-order pull-in margin (any device, either sense)",
-        (
-            _q("rated_voltage", "V", "rated coil voltage"),
-            _q("volts", "V", "measured volts at the coil terminals"),
-            _q("temperature", "degC", "coil temperature", required=False, default="20 degC"),
-            _q("nominal_gap", "mm", "nominal air gap"),
-            _q("gap", "mm", "measured mean air gap"),
-            _q("pull_in", "", "fraction of rated voltage that pulls a cold armature in at the "
-               "nominal gap", required=False, default=0.7),
-            _q("reserve", "", "voltage reserve below which the pull-in counts as marginal, "
-               "as a fraction", required=False, default=0.1),
-        ),
+        _pull_inputs("pulls a cold armature in at the nominal gap", "the pull-in"),
         ("pulls_in", "marginal", "does_not_pull_in"), "volts",
         "diagnose.physics.release:evaluate_pull_in",
     ),
     EvaluatorSpec(
         "release", "First-order release margin (a spring-applied brake's words)",
-        (
-            _q("rated_voltage", "V", "rated coil voltage"),
-            _q("volts", "V", "measured volts at the coil terminals"),
-            _q("temperature", "degC", "coil temperature", required=False, default="20 degC"),
-            _q("nominal_gap", "mm", "nominal air gap"),
-            _q("gap", "mm", "measured mean air gap"),
-            _q("pull_in", "", "fraction of rated voltage that releases a cold brake at nominal gap",
-               required=False, default=0.7),
-            _q("reserve", "", "voltage reserve below which the release counts as marginal, "
-               "as a fraction", required=False, default=0.1),
-        ),
+        _pull_inputs("releases a cold brake at nominal gap", "the release"),
         ("releases", "marginal", "will_not_release"), "volts",
         "diagnose.physics.release:evaluate_release",
     ),
