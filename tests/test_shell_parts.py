@@ -386,3 +386,15 @@ def test_a_broken_pack_name_is_one_line_exit_2():
                           capture_output=True, text=True, timeout=60, input="", check=False)
     assert proc.returncode == 2
     assert proc.stderr.count("\n") == 1 and "no pack 'no-such-pack'" in proc.stderr
+
+
+def test_piped_input_never_imports_prompt_toolkit(tmp_path):
+    """A shell reading a script needs no terminal library: the first question comes sooner."""
+    code = ("import sys, io\n"
+            "from diagnose.shell.entry import main\n"
+            "sys.stdin = io.StringIO('quit\\n')\n"
+            "import diagnose.shell.app, diagnose.shell.complete\n"
+            "assert 'prompt_toolkit' not in sys.modules, 'prompt_toolkit imported'\n")
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          timeout=60, check=False)
+    assert proc.returncode == 0, proc.stderr

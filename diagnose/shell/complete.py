@@ -9,11 +9,9 @@ word: "rel" finds "Brake will not release", "coil res" finds
 
 from __future__ import annotations
 
-from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
-
-from prompt_toolkit.completion import Completer, Completion
 
 Choice = tuple[str, str]  # (text to insert, what it means)
 
@@ -78,27 +76,10 @@ def choose(query: str, choices: Iterable[Choice]) -> list[Choice]:
     return [c for c in pool if matches(q, c[0], c[1])]
 
 
-class ShellCompleter(Completer):
-    """A prompt_toolkit completer over ``state()`` (see :class:`CompletionState`)."""
+def __getattr__(name: str) -> Any:
+    """``ShellCompleter`` is made when first asked for: piped input never imports prompt_toolkit."""
+    if name == "ShellCompleter":
+        from diagnose.shell.completer import ShellCompleter
 
-    def __init__(self, state: Callable[[], CompletionState]) -> None:
-        self.state = state
-
-    def get_completions(self, document: Any, complete_event: Any) -> Iterator[Completion]:
-        st = self.state()
-        before = document.text_before_cursor
-        stripped = before.lstrip()
-        head, sep, rest = stripped.partition(" ")
-        if sep and head.lower() in st.arguments:
-            pool: Sequence[Choice] = st.arguments[head.lower()]
-            query = rest
-        elif sep and st.commands and head.lower() in {c for c, _ in st.commands}:
-            return
-        else:
-            pool = list(st.answers) + [c for c in st.commands
-                                       if c[0] not in {a for a, _ in st.answers}]
-            query = stripped
-        for text, meaning in pool:
-            if matches(query, text, meaning):
-                yield Completion(text, start_position=-len(query), display=text,
-                                 display_meta=meaning or None)
+        return ShellCompleter
+    raise AttributeError(name)
