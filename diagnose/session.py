@@ -675,7 +675,8 @@ class Session:
         if end is None or end.get("result") != "visit":
             raise InputError("session", "only a diagnosis that ended with a site visit can "
                                         "be taken up again")
-        return self._record(Reopened, mode="site", who=str(who).strip() or None if who else None)
+        name = str(who or "").strip()
+        return self._record(Reopened, mode="site", who=name or None)
 
     def undo(self) -> Event | None:
         """Undo the last event that can be undone; returns it (None when there is none)."""
