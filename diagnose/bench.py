@@ -1,41 +1,54 @@
-"""Benchmark of the reasoner: ``python -m diagnose.bench``.
+"""Benchmark of the reasoner, the loading of packs and the start-up: ``python -m diagnose.bench``.
 
 For synthetic packs of 200, 2,000 and 10,000 causes (about one check per five
 causes; :func:`diagnose.reasoning.synthetic.synthetic_model`) it prints:
 
-* the median milliseconds of one step: add one finding to the evidence, then
-  the posterior and the full ranking of the next actions (every check's
-  expected information and ECO, every repair's p/c, sorted, and the choice);
+* cold steps of realistic sessions: three sessions of twelve answers at each
+  size, each session drawn from its own cause and answered as that cause
+  would answer the planner's proposals, played on a fresh copy of the pack
+  (no table, memo or cached vector of it yet beyond the tables a loaded pack
+  has), so every step is a new answer; the median milliseconds of
+
+  - the reasoner's step: the answer added, the posterior, every check's
+    expected information and ECO and every repair's p/c ranked, the choice;
+  - the shell-equivalent step: the same, then the ranking view drawn (what
+    the shell does after an answer);
+
+  each with the fast planner and with its reference version
+  (``plan(..., reference=True)``, ``--policy reference``) side by side, and
+  the peak memory (tracemalloc) of the shell step;
 * the compile time of the same pack as raw data through the knowledge
-  compiler (``diagnose.kb.compiler.compile_pack``: references, fault tree,
-  effects, the networkx graph), and apart from it the JSON Schema pass, which
-  belongs to loading a pack from YAML;
-* the peak memory (tracemalloc) of compiling and of one planning step;
-* the same step with the planner's reference version (``ref ms``:
-  ``plan(..., reference=True)``);
-* on the 200-cause pack, pgmpy's VariableElimination for the same posterior,
-  and how many times slower it is than the reasoner;
+  compiler (``diagnose.kb.compiler.compile_pack``), the JSON Schema pass apart
+  from it, the tables' build and the compiler's peak memory;
+* up to 2,000 causes, the posterior of each step's new evidence by the
+  reasoner (cold) and by pgmpy's VariableElimination (its network built once
+  per session with every answered check; each query with that step's
+  evidence), and how many times slower pgmpy is;
+* at 2,000 causes, the ``--max-faults 2`` step: the posterior and ranking
+  with the pairs pruned to the evidence (``diagnose.reasoning.tables``,
+  "Pruned pairs"), and with the planner on top when the planner takes them;
 * the simulator on a shipped pack (``spring-applied-brake``, 300 runs, seed
   1, noise 0.05, a tenth of the calls with a cause outside the pack) with the
   planner and with its reference version on the same draws, side by side:
-  seconds of each, the ratio, and whether every run went the same way (every
-  check and repair, in order, and every figure).
+  seconds of each, the ratio, and whether every run went the same way.
 
-Loading a pack and the first question, each in a fresh process (``load``):
+Loading a pack and the start-up, each in a fresh process (``load``), with the
+user's folders in a temporary one and Python's bytecode kept there as an
+installed program keeps it:
 
 * a 10,000-cause synthetic pack written as YAML files (a few hundred entries a
   file, as a trainer splits a pack) loaded as the command line loads it
   (:func:`diagnose.kb.loader.load_model`): from the YAML with the
-  compiled-pack cache off (read, JSON Schema, compile), from the YAML keeping
-  the entry, then from the cache (the files' hashes checked, the model
-  unpickled); seconds of the load and the process's peak memory (resident
-  set) for each, the median of three runs (the one that keeps the entry: once);
-* the first question of the shell with piped input (``diagnose start`` on the
+  compiled-pack cache off (read, schema, compile), from the YAML keeping the
+  entry, then from the cache; seconds and the process's peak memory (resident
+  set) of each, the median of three runs (the one that keeps the entry: once);
+* ``diagnose --help``, ``diagnose calc coil ...`` (the README's example), the
+  first question of the shell with piped input (``diagnose start`` on the
   shipped pack, standard input empty: the safety notice, the nameplate's
-  first question, then end of input), from start to exit, with a warm cache
-  and with ``--no-cache``; the median of a few runs, after one that fills
-  the caches (the packs', pint's and Python's bytecode, kept in a temporary
-  folder as an installed program keeps it).
+  first question, then end of input) with a warm cache and with
+  ``--no-cache``, and, when pexpect is installed, the first question at a
+  terminal (Enter pressed at the notice at once); the median of a few runs,
+  after one that fills the caches.
 
 The Bayesian network given to pgmpy is the reasoner's model written out: one
 root ``H`` over the hypotheses and one child per piece of evidence.
@@ -165,23 +178,156 @@ def _session(model: Model, steps: int, seed: int) -> tuple[str, list[tuple[str, 
     return complaint, out
 
 
-def _step_times(model: Model, answers: list[tuple[str, str]], complaint: str,
-                reference: bool = False) -> list[float]:
+def _fresh(model: Model) -> Model:
+    """The same pack as a new Model object: no table, memo or cached vector of it exists yet."""
+    import dataclasses
+
+    return dataclasses.replace(model)
+
+
+def _sessions(model: Model, sessions: int, steps: int, seed: int,
+              ) -> list[tuple[str, list[tuple[str, str]]]]:
+    """Realistic sessions (complaint, answers), each from its own drawn cause, until there are
+    ``sessions * steps`` answers (a session ends early when the planner turns to a repair;
+    at most four times ``sessions`` are drawn)."""
+    out: list[tuple[str, list[tuple[str, str]]]] = []
+    for i in range(4 * sessions):
+        if sum(len(a) for _, a in out) >= sessions * steps:
+            break
+        complaint, answers = _session(model, steps, seed + 1000 * (i + 1))
+        if answers:
+            out.append((complaint, answers))
+    return out
+
+
+def _shell_step(model: Model, ev: Evidence, cid: str, outcome: str, *, reference: bool,
+                max_faults: int = 1) -> Evidence:
+    """What the shell does after an answer: the update, the full next-action ranking (every
+    check with its ECO, every repair, the choice) and the ranking view drawn."""
+    import io
+
+    from rich.console import Console
+
+    from diagnose.reasoning.planner import plan
+    from diagnose.reasoning.posterior import posterior
+    from diagnose.views import RankingView
+
+    ev = ev.with_outcome(cid, outcome)
+    post = posterior(model, ev, max_faults=max_faults)
+    pl = plan(model, ev, max_faults=max_faults, post=post, reference=reference)
+    pl.checks()
+    pl.repairs()
+    console = Console(file=io.StringIO(), width=80, color_system=None)
+    console.print(RankingView.of(post.ranking(), top=5))
+    return ev
+
+
+def cold_steps(model: Model, sessions: list[tuple[str, list[tuple[str, str]]]], *,
+               reference: bool = False, shell: bool = False, max_faults: int = 1,
+               ) -> list[float]:
+    """Milliseconds of each step of ``sessions``, each session on a fresh copy of ``model``.
+
+    Every step adds an answer never seen before by that copy: nothing of the step is in a
+    cache (the tables of the pack are made before the first step, as a pack loaded once).
+    ``shell``: the shell-equivalent step (:func:`_shell_step`), else the reasoner's step.
+    """
+    from diagnose.reasoning.tables import tables_for
+
+    times: list[float] = []
+    for complaint, answers in sessions:
+        fresh = _fresh(model)
+        if max_faults == 1:
+            tables_for(fresh)
+        ev = Evidence(complaints=(complaint,))
+        for cid, o in answers:
+            gc.collect()
+            t0 = time.perf_counter()
+            if shell:
+                ev = _shell_step(fresh, ev, cid, o, reference=reference, max_faults=max_faults)
+            else:
+                ev = _reasoner_step(fresh, ev, cid, o, reference=reference)
+            times.append((time.perf_counter() - t0) * 1000)
+    return times
+
+
+def _reasoner_step(model: Model, ev: Evidence, cid: str, outcome: str, *,
+                   reference: bool) -> Evidence:
+    """One finding added, the posterior, every check's ECO and every repair ranked, the choice."""
     from diagnose.reasoning.planner import plan
     from diagnose.reasoning.posterior import posterior
 
-    ev = Evidence(complaints=(complaint,))
-    times = []
-    for cid, o in answers:
-        t0 = time.perf_counter()
-        ev = ev.with_outcome(cid, o)
-        post = posterior(model, ev)
-        pl = plan(model, ev, post=post, reference=reference)
-        # all checks, every ECO filled in (the fast planner computes some only when asked)
-        np.lexsort((np.nan_to_num(pl.ecos(), nan=np.inf), pl.check_code != 0))
-        np.argsort(-(pl.p_cure / pl.repair_minutes))  # all repairs
-        times.append((time.perf_counter() - t0) * 1000)
-    return times
+    ev = ev.with_outcome(cid, outcome)
+    post = posterior(model, ev)
+    pl = plan(model, ev, post=post, reference=reference)
+    np.lexsort((np.nan_to_num(pl.ecos(), nan=np.inf), pl.check_code != 0))
+    np.argsort(-(pl.p_cure / pl.repair_minutes))
+    return ev
+
+
+def two_fault_steps(model: Model, sessions: list[tuple[str, list[tuple[str, str]]]],
+                    ) -> dict[str, Any]:
+    """Cold ``--max-faults 2`` steps: the posterior and ranking (pairs pruned to the evidence,
+    ``diagnose.reasoning.tables``), and the planner on top when it takes them."""
+    from diagnose.errors import InputError
+    from diagnose.reasoning.planner import plan
+    from diagnose.reasoning.posterior import posterior
+
+    post_ms, step_ms, planner = [], [], "yes"
+    for complaint, answers in sessions:
+        fresh = _fresh(model)
+        ev = Evidence(complaints=(complaint,))
+        for cid, o in answers:
+            ev = ev.with_outcome(cid, o)
+            gc.collect()
+            t0 = time.perf_counter()
+            post = posterior(fresh, ev, max_faults=2)
+            post.ranking()
+            t1 = time.perf_counter()
+            post_ms.append((t1 - t0) * 1000)
+            if planner == "yes":
+                try:
+                    plan(fresh, ev, max_faults=2, post=post).checks()
+                    step_ms.append((time.perf_counter() - t0) * 1000)
+                except (InputError, ValueError, IndexError) as exc:
+                    planner = f"no ({type(exc).__name__})"
+    hyps = post.tables.n_hyp
+    return {"posterior_ms": statistics.median(post_ms), "hypotheses": hyps,
+            "step_ms": statistics.median(step_ms) if step_ms else float("nan"),
+            "planner": planner, "steps": len(post_ms)}
+
+
+def pgmpy_new_evidence(model: Model, sessions: list[tuple[str, list[tuple[str, str]]]],
+                       ) -> dict[str, Any]:
+    """Median ms of the posterior for each step's new evidence: the reasoner (cold, on a fresh
+    copy) against pgmpy's VariableElimination (its network built once per session with every
+    answered check as a node; each query with that step's evidence)."""
+    try:
+        from pgmpy.inference import VariableElimination
+    except ImportError:
+        return {}
+    from diagnose.reasoning.posterior import posterior
+
+    ours, theirs = [], []
+    for complaint, answers in sessions:
+        last = Evidence(complaints=(complaint,))
+        for cid, o in answers:
+            last = last.with_outcome(cid, o)
+        bn, _, _, _ = bayesian_network(model, last)
+        ve = VariableElimination(bn)
+        fresh = _fresh(model)
+        ev = Evidence(complaints=(complaint,))
+        for cid, o in answers:
+            ev = ev.with_outcome(cid, o)
+            hard = {f"complaint_{k}": "yes" for k in ev.complaints}
+            hard.update({f"check_{c}": next(iter(w)) for c, w in ev.findings.items()})
+            t0 = time.perf_counter()
+            posterior(fresh, ev)
+            ours.append((time.perf_counter() - t0) * 1000)
+            t0 = time.perf_counter()
+            ve.query(["H"], evidence=hard, show_progress=False)
+            theirs.append((time.perf_counter() - t0) * 1000)
+    a, b = statistics.median(ours), statistics.median(theirs)
+    return {"posterior_ms": a, "pgmpy_ms": b, "pgmpy_ratio": b / a, "pgmpy_steps": len(ours)}
 
 
 def simulate_side_by_side(pack: str = "spring-applied-brake", *, runs: int = 300, seed: int = 1,
@@ -207,8 +353,8 @@ def simulate_side_by_side(pack: str = "spring-applied-brake", *, runs: int = 300
     return out
 
 
-def run(sizes: tuple[int, ...] = SIZES, *, seed: int = 1, steps: int = 12,
-        pgmpy: bool = True) -> list[dict[str, Any]]:
+def run(sizes: tuple[int, ...] = SIZES, *, seed: int = 1, sessions: int = 3, steps: int = 12,
+        pgmpy: bool = True, two_faults: int = 2000) -> list[dict[str, Any]]:
     """Measure each size; returns one row per size (see the module docstring)."""
     from diagnose.kb.compiler import compile_pack
     from diagnose.reasoning.synthetic import pack_data, synthetic_model
@@ -237,50 +383,26 @@ def run(sizes: tuple[int, ...] = SIZES, *, seed: int = 1, steps: int = 12,
         tracemalloc.stop()
         del compiled
         t0 = time.perf_counter()
-        tables_for(model)
+        tables_for(_fresh(model))
         row["tables_s"] = time.perf_counter() - t0
-        complaint, answers = _session(model, steps, seed)
-        _step_times(model, answers[:2], complaint)  # warm caches
-        times = _step_times(model, answers, complaint)
-        row["step_ms"] = statistics.median(times) if times else float("nan")
-        times = _step_times(model, answers, complaint, reference=True)
-        row["ref_ms"] = statistics.median(times) if times else float("nan")
+        plays = _sessions(model, sessions, steps, seed)
+        row["steps"] = sum(len(a) for _, a in plays)
+        cold_steps(model, [_session(model, 2, seed)])  # imports and first-call costs, not timed
+        for key, shell, reference in (("step_ms", False, False), ("ref_ms", False, True),
+                                      ("shell_ms", True, False), ("shell_ref_ms", True, True)):
+            row[key] = statistics.median(cold_steps(model, plays, shell=shell,
+                                                    reference=reference))
         gc.collect()
         tracemalloc.start()
-        _step_times(model, answers[:3], complaint)
+        cold_steps(model, [(plays[0][0], plays[0][1][:3])], shell=True)
         row["step_peak_mb"] = tracemalloc.get_traced_memory()[1] / 2**20
         tracemalloc.stop()
-        if pgmpy and n == min(sizes):
-            row.update(_against_pgmpy(model, answers, complaint))
+        if pgmpy and n <= 2000:
+            row.update(pgmpy_new_evidence(model, plays))
+        if n == two_faults:
+            row["two_faults"] = two_fault_steps(model, plays)
         rows.append(row)
     return rows
-
-
-def _against_pgmpy(model: Model, answers: list[tuple[str, str]], complaint: str,
-                   ) -> dict[str, Any]:
-    """Median ms of the same posterior: the reasoner against pgmpy's VariableElimination."""
-    try:
-        from pgmpy.inference import VariableElimination
-    except ImportError:
-        return {}
-    from diagnose.reasoning.posterior import posterior
-
-    ev = Evidence(complaints=(complaint,))
-    for cid, o in answers[:6]:
-        ev = ev.with_outcome(cid, o)
-    bn, hard, virtual, _ = bayesian_network(model, ev)
-    ve = VariableElimination(bn)
-    ours, theirs = [], []
-    for _ in range(5):
-        t0 = time.perf_counter()
-        ve.query(["H"], evidence=hard, virtual_evidence=virtual or None, show_progress=False)
-        theirs.append((time.perf_counter() - t0) * 1000)
-    for _ in range(50):
-        t0 = time.perf_counter()
-        posterior(model, ev)
-        ours.append((time.perf_counter() - t0) * 1000)
-    a, b = statistics.median(ours), statistics.median(theirs)
-    return {"posterior_ms": a, "pgmpy_ms": b, "pgmpy_ratio": b / a}
 
 
 #: Entries written to one YAML file of a synthetic pack (each file stays far below the
@@ -379,21 +501,65 @@ def load_figures(causes: int = 10000, *, seed: int = 1, start_runs: int = 5) -> 
     return out
 
 
+#: The calculator run timed at start-up (the README's example).
+CALC = ("calc", "coil", "--rated-voltage", "24V", "--rated-power", "20W", "--ohms", "31.1ohm",
+        "--temp", "40degC")
+
+
 def _first_question(env: dict[str, str], runs: int) -> dict[str, float]:
-    """Median seconds of `diagnose start` with piped, empty input: warm cache, and no cache."""
+    """Median seconds, each in a fresh process: `diagnose --help`, `diagnose calc coil ...`,
+    `diagnose start` with piped, empty input (warm cache and ``--no-cache``) and, when pexpect
+    is there, the first question at a terminal (Enter pressed at the notice at once)."""
     import subprocess
     import sys
 
-    def once(*extra: str) -> float:
+    def once(*args: str) -> float:
         t0 = time.perf_counter()
-        subprocess.run([sys.executable, "-m", "diagnose", "start", *extra], input="", env=env,
+        subprocess.run([sys.executable, "-m", "diagnose", *args], input="", env=env,
                        capture_output=True, text=True, check=True)
         return time.perf_counter() - t0
 
-    once()  # fills the cache
-    warm = [once() for _ in range(runs)]
-    cold = [once("--no-cache") for _ in range(runs)]
-    return {"start_s": statistics.median(warm), "start_no_cache_s": statistics.median(cold)}
+    once("start")  # fills the caches
+    once(*CALC)
+    out = {"start_s": statistics.median([once("start") for _ in range(runs)]),
+           "start_no_cache_s": statistics.median([once("start", "--no-cache")
+                                                  for _ in range(runs)]),
+           "help_s": statistics.median([once("--help") for _ in range(runs)]),
+           "calc_s": statistics.median([once(*CALC) for _ in range(runs)])}
+    _at_terminal(env)  # the terminal library's bytecode, made once as an installed program has it
+    terminal = [t for t in (_at_terminal(env) for _ in range(runs)) if t is not None]
+    if terminal:
+        out["terminal_s"] = statistics.median(terminal)
+    return out
+
+
+def _at_terminal(env: dict[str, str]) -> float | None:
+    """Seconds from start to the nameplate's first question at a terminal, None without pexpect.
+
+    The terminal is pexpect's; prompt_toolkit's question where the cursor is (which a real
+    terminal answers at once) is switched off, or its wait would be counted.
+    """
+    try:
+        import pexpect
+    except ImportError:
+        return None
+    import sys
+
+    t0 = time.perf_counter()
+    child = pexpect.spawn(sys.executable, ["-m", "diagnose", "start"], dimensions=(24, 80),
+                          env={**env, "TERM": "xterm", "NO_COLOR": "1",
+                               "PROMPT_TOOLKIT_NO_CPR": "1"}, encoding="utf-8", timeout=30)
+    child.delaybeforesend = 0
+    try:
+        child.expect("Press Enter")
+        child.send("\r")
+        child.expect("Enter keeps")
+        child.expect(r"\]:|: ")
+        return time.perf_counter() - t0
+    except (pexpect.TIMEOUT, pexpect.EOF):
+        return None
+    finally:
+        child.close(force=True)
 
 
 def load_table(load: dict[str, Any]) -> str:
@@ -407,30 +573,56 @@ def load_table(load: dict[str, Any]) -> str:
             lines.append(f"  {what:<22} {load[f'{key}_s']:6.2f} s  peak "
                          f"{load[f'{key}_mb']:5.0f} MB")
     if "start_s" in load:
-        lines.append(f"first question, piped (`diagnose start` to exit): warm cache "
+        lines.append("start-up, each in a fresh process (median):")
+        lines.append(f"  diagnose --help {load['help_s']:.2f} s; diagnose calc coil ... "
+                     f"{load['calc_s']:.2f} s")
+        lines.append(f"  first question, piped (`diagnose start` to exit): warm cache "
                      f"{load['start_s']:.2f} s, --no-cache {load['start_no_cache_s']:.2f} s")
+        if "terminal_s" in load:
+            lines.append(f"  first question at a terminal (Enter at the notice at once): "
+                         f"{load['terminal_s']:.2f} s")
     return "\n".join(lines)
 
 
 def table(rows: list[dict[str, Any]], sim: dict[str, Any] | None = None) -> str:
-    """The rows (and the simulator's side by side) as a plain-text table of 80 columns."""
-    head = (f"{'causes':>7} {'checks':>6} {'step ms':>8} {'ref ms':>7} {'compile s':>9} "
-            f"{'schema s':>8} {'tables s':>8} {'peak MB':>7} {'step MB':>7}")
-    lines = [head, "-" * len(head)]
+    """The rows (and the simulator's side by side) as plain text of 80 columns."""
+    nan = float("nan")
+    head = (f"{'causes':>7} {'checks':>6} {'steps':>5} | {'step ms':>7} {'ref ms':>7} | "
+            f"{'shell ms':>8} {'ref ms':>7} | {'step MB':>7}")
+    lines = ["cold steps (each a new answer; median), fast planner | reference:",
+             head, "-" * len(head)]
     for r in rows:
-        lines.append(f"{r['causes']:>7} {r['checks']:>6} {r['step_ms']:>8.2f} "
-                     f"{r.get('ref_ms', float('nan')):>7.2f} "
-                     f"{r['compile_s']:>9.2f} {r.get('schema_s', float('nan')):>8.2f} "
-                     f"{r['tables_s']:>8.3f} "
-                     f"{r['compile_peak_mb']:>7.1f} {r['step_peak_mb']:>7.1f}")
+        lines.append(f"{r['causes']:>7} {r['checks']:>6} {r.get('steps', 0):>5} | "
+                     f"{r['step_ms']:>7.2f} {r.get('ref_ms', nan):>7.2f} | "
+                     f"{r.get('shell_ms', nan):>8.2f} {r.get('shell_ref_ms', nan):>7.2f} | "
+                     f"{r['step_peak_mb']:>7.1f}")
+    lines.append("step: one answer added, the posterior, every check's ECO and every repair "
+                 "ranked;")
+    lines.append("shell: the same, then the ranking view drawn; ref: the reference planner")
+    lines.append("")
+    head = (f"{'causes':>7} {'compile s':>9} {'schema s':>8} {'tables s':>8} "
+            f"{'compile MB':>10}")
+    lines += [head, "-" * len(head)]
+    for r in rows:
+        lines.append(f"{r['causes']:>7} {r['compile_s']:>9.2f} "
+                     f"{r.get('schema_s', nan):>8.2f} {r['tables_s']:>8.3f} "
+                     f"{r['compile_peak_mb']:>10.1f}")
     for r in rows:
         if "pgmpy_ms" in r:
-            lines.append("")
-            lines.append(f"posterior at {r['causes']} causes: reasoner {r['posterior_ms']:.3f} ms, "
-                         f"pgmpy VariableElimination {r['pgmpy_ms']:.1f} ms "
-                         f"({r['pgmpy_ratio']:.0f}x)")
-    lines.append("step: add one finding, posterior, rank every check and repair, choose;")
-    lines.append("ref: the same step with the planner's reference version")
+            lines.append(f"posterior on each step's new evidence at {r['causes']:,} causes: "
+                         f"reasoner {r['posterior_ms']:.3f} ms,")
+            lines.append(f"  pgmpy VariableElimination {r['pgmpy_ms']:.1f} ms "
+                         f"({r['pgmpy_ratio']:.0f}x; {r['pgmpy_steps']} steps)")
+    for r in rows:
+        two = r.get("two_faults")
+        if two:
+            n = r["causes"]
+            every = n * (n - 1) // 2 + n + 1
+            lines.append(f"--max-faults 2 at {n:,} causes ({two['hypotheses']:,} hypotheses, "
+                         f"every pair: {every:,}):")
+            planned = (f"with the planner {two['step_ms']:.0f} ms" if two["planner"] == "yes"
+                       else f"the planner: {two['planner']}")
+            lines.append(f"  posterior and ranking {two['posterior_ms']:.0f} ms; {planned}")
     if sim is not None:
         same = "identical runs" if sim["identical"] else "RUNS DIFFER"
         lines.append("")
@@ -448,6 +640,12 @@ def main(argv: list[str] | None = None) -> int:
                                      description="Benchmark the reasoner on synthetic packs.")
     parser.add_argument("--sizes", type=int, nargs="+", default=list(SIZES), metavar="N")
     parser.add_argument("--seed", type=int, default=1)
+    parser.add_argument("--sessions", type=int, default=3, metavar="N",
+                        help="sessions timed at each size (new answers at every step)")
+    parser.add_argument("--steps", type=int, default=12, metavar="N",
+                        help="answers in each session")
+    parser.add_argument("--two-faults", type=int, default=2000, metavar="N",
+                        help="size of the --max-faults 2 figure (0: skip)")
     parser.add_argument("--no-pgmpy", action="store_true", help="skip the pgmpy comparison")
     parser.add_argument("--sim-runs", type=int, default=300, metavar="N",
                         help="runs of the simulator, planner against reference (0: skip)")
@@ -456,7 +654,8 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--start-runs", type=int, default=5, metavar="N",
                         help="runs of the piped first question, each way (0: skip)")
     args = parser.parse_args(argv)
-    rows = run(tuple(args.sizes), seed=args.seed, pgmpy=not args.no_pgmpy)
+    rows = run(tuple(args.sizes), seed=args.seed, sessions=args.sessions, steps=args.steps,
+               pgmpy=not args.no_pgmpy, two_faults=args.two_faults)
     sim = simulate_side_by_side(runs=args.sim_runs, seed=args.seed) if args.sim_runs > 0 else None
     print(table(rows, sim))
     if args.load_causes or args.start_runs:

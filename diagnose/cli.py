@@ -76,8 +76,9 @@ def _global_options(parser: argparse.ArgumentParser, *, after: bool) -> None:
                         help="a folder of your own packs, searched before the shipped ones "
                         "(repeatable; also DIAGNOSE_PACKS, separated by ':')")
     target.add_argument("--journal", metavar="PATH", default=unset if after else None,
-                        help="the journal file (default: DIAGNOSE_JOURNAL, the settings file's "
-                        "journal, or the user data folder)")
+                        help="the journal file, or a team journal's postgresql:// URL "
+                        "(default: DIAGNOSE_JOURNAL, the settings file's journal, or the user "
+                        "data folder)")
     target.add_argument("--no-learned", action="store_true",
                         default=unset if after else False,
                         help="ignore priors learned from closed repairs")

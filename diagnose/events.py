@@ -326,6 +326,18 @@ class Reopened(Event):
 
 
 @dataclass(frozen=True)
+class HandedOver(Event):
+    """The session passed from one holder to another (``giver`` to ``taker``): a phone call
+    taken up at the site on another machine; ``forced``: taken over before the lease ran out."""
+
+    KIND = "handover"
+    UNDOABLE = False
+    taker: str
+    giver: str | None = _optional()
+    forced: bool = _optional(False)
+
+
+@dataclass(frozen=True)
 class Undone(Event):
     """The event at position ``index`` is taken back (``kind``: what it was)."""
 
@@ -352,10 +364,10 @@ CLASSES: tuple[type[Event], ...] = (
     Started, IdentityGiven, NameplateRead, ComplaintReported, Answered, ReadingTaken,
     LeftUnsure, Skipped, RepairSkipped, Acknowledged, Reminded, RepairStarted, Repaired, Noted,
     Attached,
-    HistoryNoted, ModeSet, StateSet, Ended, Reopened, Undone)
+    HistoryNoted, ModeSet, StateSet, Ended, Reopened, HandedOver, Undone)
 
 #: The stored key of a field whose name differs from it (``Undone.was`` is stored as "kind").
-_KEY = {(Undone, "was"): "kind"}
+_KEY = {(Undone, "was"): "kind", (HandedOver, "taker"): "to", (HandedOver, "giver"): "from"}
 
 
 @dataclass(frozen=True)

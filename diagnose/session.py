@@ -29,7 +29,7 @@ import uuid
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from datetime import datetime
-from typing import Any, Protocol, TypeVar
+from typing import TYPE_CHECKING, Any, Protocol, TypeVar
 
 from diagnose.errors import InputError
 from diagnose.events import (
@@ -62,27 +62,23 @@ from diagnose.events import fold as fold_events
 from diagnose.kb.model import Case, Caution, Check, Model, Parameter, Step
 from diagnose.physics.verdict import Verdict
 from diagnose.reasoning.evidence import MODES, Evidence
-from diagnose.reasoning.explain import (
-    CheckExplanation,
-    RankingExplanation,
-    explain_check,
-    explain_ranking,
-)
-from diagnose.reasoning.nameplate import only_if_matches, parameter_needed
-from diagnose.reasoning.planner import (
-    DEFAULT,
-    Action,
-    ChecksTable,
-    Plan,
-    Settings,
-    nameplate_value,
-    plan,
-)
-from diagnose.reasoning.posterior import Posterior, Ranking, posterior
+from diagnose.reasoning.nameplate import nameplate_value, only_if_matches, parameter_needed
 from diagnose.reasoning.safety import card_cautions, lapsed_since, renewals
 from diagnose.reasoning.unitstate import setup_steps, unit_state
 
+if TYPE_CHECKING:  # numpy comes with these: imported when the first ranking is asked for
+    from diagnose.reasoning.explain import CheckExplanation, RankingExplanation
+    from diagnose.reasoning.planner import Action, ChecksTable, Plan, Settings
+    from diagnose.reasoning.posterior import Posterior, Ranking
+
 E = TypeVar("E", bound=Event)
+
+
+def plan(model: Model, evidence: Evidence, **options: Any) -> Plan:
+    """:func:`diagnose.reasoning.planner.plan`, imported when first asked for (with numpy)."""
+    from diagnose.reasoning.planner import plan as weigh
+
+    return weigh(model, evidence, **options)
 
 END_RESULTS = ("resolved", "visit", "escalated", "abandoned")
 
@@ -228,7 +224,7 @@ class Session:
 
     def __init__(self, model: Model, *, mode: str = "site", max_faults: int = 1,
                  sink: Sink | None = None, session_id: str | None = None,
-                 clock: Callable[[], str] | None = None, settings: Settings = DEFAULT,
+                 clock: Callable[[], str] | None = None, settings: Settings | None = None,
                  _events: list[Event] | None = None) -> None:
         if mode not in MODES:
             raise InputError("mode", f"expected site or phone, got {mode!r}")
@@ -238,7 +234,7 @@ class Session:
         self.max_faults = max_faults
         self.sink: Sink = sink if sink is not None else NullSink()
         self.session_id = session_id or uuid.uuid4().hex
-        self.settings = settings
+        self._settings = settings
         self._clock = clock or _now
         self._events: list[Event] = []
         self._evidence = Evidence(mode=mode)
@@ -261,6 +257,15 @@ class Session:
     @property
     def evidence(self) -> Evidence:
         return self._evidence
+
+    @property
+    def settings(self) -> Settings:
+        """The planner's decision rule (its default unless one was given)."""
+        if self._settings is None:
+            from diagnose.reasoning.policy import DEFAULT
+
+            return DEFAULT
+        return self._settings
 
     @property
     def mode(self) -> str:
@@ -362,9 +367,8 @@ class Session:
         bad = [o for o in weights if o not in chk.outcomes]
         if bad:
             raise InputError(check_id, f"the verdict {bad[0]!r} is not an outcome of this check")
-        shown = [_text(t) for t in text] if isinstance(text, (list, tuple)) else _text(text)
-        self._record(ReadingTaken, check=check_id,
-                     text=tuple(shown) if isinstance(shown, list) else shown,
+        shown = _shown_readings(chk, text)
+        self._record(ReadingTaken, check=check_id, text=shown,
                      verdict=verdict.verdict, weights=weights, summary=verdict.summary,
                      figures={k: f.to_dict() for k, f in verdict.figures.items()},
                      assumed=assumed)
@@ -417,7 +421,14 @@ class Session:
             return x
 
         inp = spec.input(field_name)
-        if inp is not None and inp.many:
+        if m.also:  # several named readings on one card: volts and the gap
+            from diagnose.physics.inputs import named_readings
+
+            wanted = {r.name: r.unit for r in m.readings}
+            for r, (name, typed) in zip(m.readings, named_readings(text, wanted,
+                                                                  chk.id).items()):
+                values[name] = typed if units.is_open(typed) else _in_unit(typed, r.unit)
+        elif inp is not None and inp.many:
             values[field_name] = [with_unit(x) for x in split_readings(text, field_name)]
         elif isinstance(text, (list, tuple)):
             raise InputError(chk.id, "expected one reading, got a list")
@@ -713,6 +724,8 @@ class Session:
 
     # --- reasoning ---------------------------------------------------------------------------
     def posterior(self) -> Posterior:
+        from diagnose.reasoning.posterior import posterior
+
         if "post" not in self._cache:
             self._cache["post"] = posterior(self.model, self._evidence,
                                             max_faults=self.max_faults)
@@ -734,14 +747,20 @@ class Session:
 
     def checks_table(self) -> ChecksTable:
         """Every check with minutes, expected bits, ECO, and why it is not offered."""
+        from diagnose.reasoning.actions import ChecksTable
+
         pl = self.plan()
         return ChecksTable(pl.checks(), pl.ecr, self.mode)
 
     def explain_ranking(self, leading: int = 3) -> RankingExplanation:
+        from diagnose.reasoning.explain import explain_ranking
+
         return explain_ranking(self.model, self._evidence, max_faults=self.max_faults,
                                leading=leading)
 
     def explain_check(self, check_id: str) -> CheckExplanation:
+        from diagnose.reasoning.explain import explain_check
+
         return explain_check(self.model, self._evidence, check_id, max_faults=self.max_faults,
                              settings=self.settings)
 
@@ -799,7 +818,7 @@ class Session:
     @classmethod
     def replay(cls, model: Model, events: Iterable[Event | Mapping[str, Any]], *,
                sink: Sink | None = None, session_id: str | None = None,
-               clock: Callable[[], str] | None = None, settings: Settings = DEFAULT) -> Session:
+               clock: Callable[[], str] | None = None, settings: Settings | None = None) -> Session:
         """Rebuild a session from its events (for resume); new events go to ``sink``.
 
         Raises:
@@ -924,6 +943,29 @@ def normalise_parameter(param: Parameter, text: Any) -> str:
             raise InputError(param.id, f"{_text(raw)} is outside {span} {param.unit}".rstrip())
         return f"{value:.6g} {param.unit}".rstrip()
     return str(raw)
+
+
+def _in_unit(text: str, unit: str) -> str:
+    """A named reading with its unit: a bare number is taken in ``unit``."""
+    from diagnose.physics import units
+
+    if unit and units.unit_of(text) is None and not units.is_unit(text):
+        return f"{text} {unit}"
+    return text
+
+
+def _shown_readings(chk: Check, text: Any) -> str | tuple[str, ...]:
+    """The reading(s) as the record keeps them: named readings as ``name=value`` each."""
+    m = chk.measurement
+    if m is not None and m.also:
+        from diagnose.physics.inputs import named_readings
+
+        wanted = {r.name: r.unit for r in m.readings}
+        from diagnose.physics import units
+
+        return tuple(f"{k}={v if units.is_open(v) else _in_unit(v, wanted[k])}"
+                     for k, v in named_readings(text, wanted, chk.id).items())
+    return tuple(_text(t) for t in text) if isinstance(text, (list, tuple)) else _text(text)
 
 
 def _match_outcome(chk: Check, text: Any) -> str | None:

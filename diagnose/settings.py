@@ -9,14 +9,17 @@ with the standard library's ``tomllib``; every key may be left out::
     units = "inch"              # "metric" (default) or "inch"
     technician = "A. Example"   # the default of --who
     mode = "site"               # "site" (default) or "phone": the mode of `diagnose start`
-    journal = "~/jobs/journal.sqlite3"
+    journal = "~/jobs/journal.sqlite3"   # or a team journal: "postgresql://ana@desk/jobs"
+    team_journal = "postgresql://ana@desk/jobs"   # where `diagnose sync` sends to
 
 ``units = "inch"``: a bare number typed for a length measured in mm (an air
 gap, a runout, a wear) is taken in inches, and lengths are shown in inches
 with millimetres beside them; the ``--units`` option says the same for one
 command. ``journal`` comes after ``--journal`` and ``DIAGNOSE_JOURNAL`` and
 before the data folder (see :mod:`diagnose.paths`); ``~`` is the home folder
-and a relative path is taken from the settings file's folder.
+and a relative path is taken from the settings file's folder. ``team_journal``
+is the team journal ``diagnose sync`` sends to when ``--to`` is not given
+(after ``DIAGNOSE_TEAM_JOURNAL``).
 
 A missing file means the defaults (unless ``DIAGNOSE_SETTINGS`` names it:
 then it is an error). A broken file is one line that names the file and the
@@ -60,11 +63,13 @@ class Preferences:
     mode: str = "site"
     journal: str | None = None
     source: str = ""
+    team_journal: str | None = None  # where `diagnose sync` sends to
 
 
 #: The keys of the file and what each must be: the choices, or None for free text.
 KEYS: dict[str, tuple[str, ...] | None] = {"units": UNITS, "technician": None,
-                                            "mode": MODES, "journal": None}
+                                            "mode": MODES, "journal": None,
+                                            "team_journal": None}
 
 
 def settings_path(env: Mapping[str, str] | None = None) -> Path | None:
@@ -120,7 +125,9 @@ def preferences_from(data: Mapping[str, Any], path: str | os.PathLike[str]) -> P
                                     f"are {', '.join(KEYS)}")
     values = {key: _value(where, key, data[key]) for key in KEYS if key in data}
     journal = values.get("journal")
-    if journal:
+    from diagnose.paths import is_journal_url
+
+    if journal and not is_journal_url(journal):  # a team journal's URL is taken as it is
         folder = Path(path).expanduser().parent
         values["journal"] = str(folder / Path(journal).expanduser())  # absolute stays absolute
     return Preferences(**values, source=where)

@@ -249,11 +249,12 @@ class CheckCard:
     needs: tuple[str, ...] = ()
     many: bool = False  # a measurement that takes several readings
     fit: int | None = None
+    readings: tuple[tuple[str, str], ...] = ()  # named readings: (name, unit words), in turn
 
     def instructions_view(self) -> InstructionsView:
         """The instructions alone (once acknowledged), below the cautions on one line each."""
         return InstructionsView(self.title, self.instructions or "",
-                                _answer_hint(self.outcomes, self.unit, self.many),
+                                _answer_hint(self.outcomes, self.unit, self.many, self.readings),
                                 _one_line(self.cautions))
 
     def __rich_console__(self, console: Any, options: Any) -> Any:
@@ -263,7 +264,7 @@ class CheckCard:
             lines.append([_Fact("First", "; ".join(self.needs))])
         yield _fitted(_CardLayout(f"{self.label}: {self.title}", self.id, self.cautions,
                                  self.why, lines, self.instructions,
-                                 _answer_hint(self.outcomes, self.unit, self.many)),
+                                 _answer_hint(self.outcomes, self.unit, self.many, self.readings)),
                       self.fit, console, options)
 
 
@@ -444,7 +445,14 @@ class CautionsView:
                     expand=True)
 
 
-def _answer_hint(outcomes: Sequence[tuple[str, str]], unit: str, many: bool = False) -> str:
+def _answer_hint(outcomes: Sequence[tuple[str, str]], unit: str, many: bool = False,
+                 readings: Sequence[tuple[str, str]] = ()) -> str:
+    if readings:
+        listed = ", ".join(f"{name} (a bare number in {words})" if words else name
+                           for name, words in readings)
+        example = " ".join(f"{name}=…" for name, _ in readings)
+        return (f"Answer with the readings in turn: {listed}; or all at once, as {example}; "
+                "or unsure, or skip.")
     if unit:
         what = ("the readings, separated by spaces (for example 0.35 0.36 0.34)" if many
                 else "the reading")

@@ -18,3 +18,44 @@ def _clean_environment(monkeypatch, tmp_path_factory):
     monkeypatch.setenv("XDG_CONFIG_HOME", str(home / "config"))  # not the tester's settings
     monkeypatch.delenv("DIAGNOSE_SETTINGS", raising=False)
     monkeypatch.setenv("DIAGNOSE_DEBUG", "1")  # a bug is a traceback in a test, not one line
+
+
+# --- a PostgreSQL server of the tests' own (tests/pgserver.py) ---------------------------------
+
+
+@pytest.fixture(scope="session")
+def pg_server():
+    """A real PostgreSQL server for the whole run, stopped at the end; skipped without one."""
+    try:
+        import psycopg  # noqa: F401
+    except ImportError:
+        pytest.skip("no psycopg: pip install -e '.[test]' to test the PostgreSQL journal")
+    from pgserver import PgServer, find_bindir
+
+    bindir = find_bindir()
+    if bindir is None:
+        pytest.skip("no PostgreSQL server binaries (initdb, pg_ctl): the PostgreSQL journal "
+                    "is not tested")
+    server = PgServer(bindir)
+    try:
+        server.start()
+    except RuntimeError as exc:
+        server.stop()
+        pytest.skip(f"cannot start a PostgreSQL test server: {exc}")
+    yield server
+    server.stop()
+
+
+@pytest.fixture()
+def pg_url(pg_server):
+    """The URL of a fresh, empty PostgreSQL database of this test's own."""
+    return pg_server.url(pg_server.new_database())
+
+
+@pytest.fixture(params=["sqlite", "postgresql"])
+def journal_target(request, tmp_path):
+    """Where a journal is, for the tests of the store's guarantees: an SQLite file's path,
+    then a fresh PostgreSQL database's URL (skipped when no server can be had)."""
+    if request.param == "sqlite":
+        return str(tmp_path / "data" / "journal.sqlite3")
+    return request.getfixturevalue("pg_url")

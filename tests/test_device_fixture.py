@@ -55,7 +55,7 @@ ANSWERS = {
         {"check": "caller_clutch_click", "answer": "silent"},
         {"check": "coil_voltage", "answer": "23.8 V"},
         {"check": "secure_driven_side", "answer": "done"},
-        {"check": "gap_pull_in", "answer": "0.42 mm"},
+        {"check": "gap_pull_in", "answer": {"gap": "0.42 mm", "volts": "23.8 V"}},
         {"check": "field_coil_resistance", "answer": "OL"},
         {"repair": "replace_field_coil", "cured": True,
          "parts": ["field coil for the nameplate voltage"]},
@@ -292,9 +292,9 @@ VERDICTS = [
     (_CONVERTER, "field_coil_resistance", "15 ohm", "low"),
     (_CONVERTER, "field_coil_resistance", "23 ohm", "ok"),
     (_CONVERTER, "field_coil_resistance", "40 ohm", "high"),
-    (_CONVERTER, "gap_pull_in", "0.3 mm", "pulls_in"),
-    (_CONVERTER, "gap_pull_in", "0.55 mm", "marginal"),
-    (_CONVERTER, "gap_pull_in", "0.9 mm", "does_not_pull_in"),
+    (_CONVERTER, "gap_pull_in", "gap=0.3 mm volts=24 V", "pulls_in"),
+    (_CONVERTER, "gap_pull_in", "gap=0.55 mm volts=24 V", "marginal"),
+    (_CONVERTER, "gap_pull_in", "gap=0.9 mm volts=24 V", "does_not_pull_in"),
 ]
 
 

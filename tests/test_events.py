@@ -53,7 +53,7 @@ WHEN = "2025-01-14T09:00:00+01:00"
 
 def test_every_kind_is_a_class_and_every_class_a_kind():
     assert set(KINDS) == {c.KIND for c in CLASSES}
-    assert len(KINDS) == len(CLASSES) == 21
+    assert len(KINDS) == len(CLASSES) == 22
     for kind in KINDS.values():
         assert kind.cls.KIND == kind.name and kind.means
         assert dataclasses.is_dataclass(kind.cls)

@@ -1,4 +1,12 @@
-"""The journal store: sessions and events, schema versions, damaged and read-only files."""
+"""The journal store: sessions and events, schema versions, damaged and read-only files.
+
+The tests of the store's guarantees run against both stores (the fixture
+``journal_target``: an SQLite file, then a PostgreSQL database of a test
+server of the tests' own, skipped without one). SQLite only, as they are
+about the file: the path order, WAL mode and header, 0-byte files, backup,
+the copy kept at a migration, damaged or foreign files, a read-only folder.
+Their PostgreSQL counterparts are in ``test_journal_pg.py``.
+"""
 
 from __future__ import annotations
 
@@ -12,12 +20,14 @@ import sys
 from pathlib import Path
 
 import pytest
+from pgserver import raw_sql
 
 from diagnose.cli import main
 from diagnose.errors import JournalError
 from diagnose.journal import store as store_mod
-from diagnose.paths import journal_path, overlay_path
 from diagnose.journal.store import APPLICATION_ID, SCHEMA_VERSION, Journal
+from diagnose.journal.stores import open_journal
+from diagnose.paths import journal_path, overlay_path
 
 FIXTURES = Path(__file__).parent / "fixtures"
 MINI = FIXTURES / "mini"
@@ -74,10 +84,9 @@ def jpath(tmp_path):
     return tmp_path / "data" / "journal.sqlite3"
 
 
-@pytest.fixture()
-def filled(jpath):
-    """A journal with one open and one closed session."""
-    with Journal(jpath) as j:
+def fill(target):
+    """One open and one closed session into the journal ``target``."""
+    with open_journal(target) as j:
         a = j.new_session("mini-brake", "1.0.0", "h1", "site", who="ana",
                           started="2025-01-14T09:00:00+01:00")
         j.write(a, _event("complaint", complaint="will_not_release"))
@@ -85,7 +94,26 @@ def filled(jpath):
                           started="2025-01-14T10:00:00+01:00")
         j.write(b, _event("note", text="called back"))
         j.write(b, _event("end", result="escalated"))
-    return jpath
+    return target
+
+
+def fill_ids(target):
+    """The short ids of :func:`fill`'s open and closed session: ``250114-1`` and ``250114-2``
+    in an SQLite file; in a team journal, made from their UUIDs (``250114-3fa2c1``)."""
+    with open_journal(target, readonly=True) as j:
+        return tuple(s.id for s in reversed(j.sessions()))
+
+
+@pytest.fixture()
+def filled(jpath):
+    """An SQLite journal with one open and one closed session."""
+    return fill(jpath)
+
+
+@pytest.fixture()
+def filled_target(journal_target):
+    """A journal (SQLite, then PostgreSQL) with one open and one closed session."""
+    return fill(journal_target)
 
 
 # --- where it lives ---------------------------------------------------------------------
@@ -116,21 +144,37 @@ def test_new_file_is_wal_with_version(jpath):
     conn.close()
 
 
-def test_ids_are_date_and_counter(jpath):
-    with Journal(jpath) as j:
+def test_ids_are_date_and_counter(journal_target):
+    """An SQLite journal counts the sessions of a day; a team journal, where journals synced
+    in any order must agree, takes the first 6 hex digits of the session's UUID."""
+    with open_journal(journal_target) as j:
         ids = [j.new_session("p", "1", "h", "site", started="2025-01-14T09:00:00+01:00")
                for _ in range(3)]
         other = j.new_session("p", "1", "h", "site", started="2025-02-01T09:00:00+01:00")
-    assert ids == ["250114-1", "250114-2", "250114-3"]
-    assert other == "250201-1"
+        uids = [j.session(i).uid for i in [*ids, other]]
+    if journal_target.startswith("postgresql://"):
+        assert ids == [f"250114-{u[:6]}" for u in uids[:3]]
+        assert other == f"250201-{uids[3][:6]}"
+    else:
+        assert ids == ["250114-1", "250114-2", "250114-3"]
+        assert other == "250201-1"
 
 
-def test_events_round_trip_in_order(jpath):
+def test_a_team_journal_id_grows_on_a_collision(pg_url):
+    with open_journal(pg_url) as j:
+        a = j.new_session("p", "1", "h", "site", started="2025-01-14T09:00:00+01:00",
+                          uid="abcdef12-0000-4000-8000-000000000001")
+        b = j.new_session("p", "1", "h", "site", started="2025-01-14T10:00:00+01:00",
+                          uid="abcdef12-0000-4000-8000-000000000002")
+    assert (a, b) == ("250114-abcdef", "250114-abcdef12")
+
+
+def test_events_round_trip_in_order(journal_target):
     class Ev:  # any object with kind, data and time will do
         def __init__(self, kind, data, time):
             self.kind, self.data, self.time = kind, data, time
 
-    with Journal(jpath) as j:
+    with open_journal(journal_target) as j:
         sid = j.new_session("p", "1", "h", "site")
         sent = [Ev("nameplate", {"param": "rated_voltage", "text": "24", "value": "24 V"},
                    "2025-01-14T09:00:00Z"),
@@ -144,8 +188,8 @@ def test_events_round_trip_in_order(jpath):
     assert [(e.kind, e.data, e.time) for e in got] == [(e.kind, e.data, e.time) for e in sent]
 
 
-def test_a_malformed_event_is_refused_before_it_is_written(jpath):
-    with Journal(jpath) as j:
+def test_a_malformed_event_is_refused_before_it_is_written(journal_target):
+    with open_journal(journal_target) as j:
         sid = j.new_session("p", "1", "h", "site")
         for kind, data in [("nameplate", {"values": {"rated_voltage": "24 V"}}),
                            ("repair", {"repair": "replace_fuse", "cured": "yes"}),
@@ -155,28 +199,33 @@ def test_a_malformed_event_is_refused_before_it_is_written(jpath):
         assert j.load_events(sid) == [] and j.session(sid).events == 0
 
 
-def test_sessions_filter_and_close(filled):
-    with Journal(filled, readonly=True) as j:
+def test_sessions_filter_and_close(filled_target):
+    a, b = fill_ids(filled_target)
+    with open_journal(filled_target, readonly=True) as j:
         every = j.sessions()
-        assert [s.id for s in every] == ["250114-2", "250114-1"]  # newest first
-        assert [s.id for s in j.sessions("open")] == ["250114-1"]
+        assert [s.id for s in every] == [b, a]  # newest first
+        assert [s.id for s in j.sessions("open")] == [a]
         closed = j.sessions("closed")[0]
         assert (closed.outcome, closed.events, closed.last_kind) == ("escalated", 2, "end")
-        assert j.session("250114-1").who == "ana"
-    with Journal(filled) as j:
-        j.close_session("250114-1", "cured", cause="coil_open")
-        assert j.session("250114-1").cause == "coil_open"
-        j.write("250114-1", _event("note", text="a note after the end is kept"))
+        assert j.session(a).who == "ana"
+    with open_journal(filled_target) as j:
+        j.close_session(a, "cured", cause="coil_open")
+        assert j.session(a).cause == "coil_open"
+        j.write(a, _event("note", text="a note after the end is kept"))
         with pytest.raises(JournalError, match="closed already"):
-            j.write("250114-1", _event("end", result="resolved"))
+            j.write(a, _event("end", result="resolved"))
         with pytest.raises(JournalError, match="no session 999"):
             j.load_events("999")
 
 
-def test_readonly_never_creates(tmp_path):
-    with pytest.raises(JournalError, match="no journal"):
-        Journal(tmp_path / "none.sqlite3", readonly=True)
-    assert not (tmp_path / "none.sqlite3").exists()
+def test_readonly_never_creates(journal_target):
+    with pytest.raises(JournalError, match="no journal|nothing was recorded"):
+        open_journal(journal_target, readonly=True)
+    if journal_target.startswith("postgresql://"):
+        assert raw_sql(journal_target, "SELECT count(*) FROM pg_tables "
+                       "WHERE schemaname = 'public'") == [(0,)]
+    else:
+        assert not Path(journal_target).exists()
 
 
 @pytest.mark.parametrize("command", [["sessions"], ["stats"], ["report", "1"]])
@@ -332,57 +381,62 @@ def test_read_only_location(filled, tmp_path):
 
 _BUSY = """
 import sys
-from diagnose.journal.store import Journal
+from diagnose.journal.stores import open_journal
 path, who, n = sys.argv[1], sys.argv[2], int(sys.argv[3])
-with Journal(path) as j:
+with open_journal(path) as j:
     sid = j.new_session("p", "1", "h", "site", who=who)
     for i in range(n):
-        j.write(sid, {"kind": "note", "data": {"text": f"{who} {i}"}, "time": "2025-01-14T09:00:00Z"})
+        j.write(sid, {"kind": "note", "data": {"text": f"{who} {i}"},
+                      "time": "2025-01-14T09:00:00Z"})
 print(sid)
 """
 
 
-def test_two_writers_lose_nothing(jpath):
+def test_two_writers_lose_nothing(journal_target):
     n = 150
-    procs = [subprocess.Popen([sys.executable, "-c", _BUSY, str(jpath), who, str(n)],
+    procs = [subprocess.Popen([sys.executable, "-c", _BUSY, journal_target, who, str(n)],
                               stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
              for who in ("ana", "ben")]
     outs = [p.communicate(timeout=60) for p in procs]
     assert [p.returncode for p in procs] == [0, 0], outs
     ids = {o[0].strip() for o in outs}
     assert len(ids) == 2  # no id handed out twice
-    with Journal(jpath, readonly=True) as j:
+    with open_journal(journal_target, readonly=True) as j:
         for s in j.sessions():
             texts = [e.data["text"] for e in j.load_events(s.id)]
             assert texts == [f"{s.who} {i}" for i in range(n)]
+        assert j.verify_chain().ok
 
 
-def test_events_are_json_text(jpath):
-    with Journal(jpath) as j:
+def test_events_are_json_text(journal_target):
+    with open_journal(journal_target) as j:
         sid = j.new_session("p", "1", "h", "site")
         j.write(sid, _event("note", text="c", figures={"ohms": 28.8}, done={"a"}))
-    conn = sqlite3.connect(jpath)
-    data = conn.execute("SELECT data FROM event").fetchone()[0]
-    conn.close()
+    ((data,),) = raw_sql(journal_target, "SELECT data FROM event")
     assert json.loads(data) == {"text": "c", "figures": {"ohms": 28.8}, "done": ["a"]}
 
 
 # --- the commands ------------------------------------------------------------------------------
 
 
-def test_cli_sessions_resume_backup(filled, tmp_path, capsys):
-    base = ["--journal", str(filled)]
+def test_cli_sessions_resume_backup(filled_target, tmp_path, capsys):
+    base = ["--journal", str(filled_target)]
+    a, b = fill_ids(filled_target)
     assert main([*base, "sessions", "--json"]) == 0
-    assert [s["id"] for s in json.loads(capsys.readouterr().out)] == ["250114-2", "250114-1"]
+    assert [s["id"] for s in json.loads(capsys.readouterr().out)] == [b, a]
     assert main([*base, "sessions", "--open", "--json"]) == 0
-    assert [s["id"] for s in json.loads(capsys.readouterr().out)] == ["250114-1"]
+    assert [s["id"] for s in json.loads(capsys.readouterr().out)] == [a]
     assert main([*base, "sessions", "--closed"]) == 0
     out = capsys.readouterr().out
-    assert "250114-2" in out and "escalated" in out and "250114-1" not in out
-    assert main([*base, "resume", "250114-2"]) == 1
+    assert b in out and "escalated" in out and a not in out
+    assert main([*base, "resume", b]) == 1
     assert "closed" in capsys.readouterr().err
     assert main([*base, "resume", "nope"]) == 1
     assert "no session nope" in capsys.readouterr().err
+    if filled_target.startswith("postgresql://"):
+        assert main([*base, "backup", str(tmp_path / "copy.sqlite3")]) == 1
+        assert "pg_dump" in capsys.readouterr().err
+        return
     assert main([*base, "backup", str(tmp_path / "copy.sqlite3")]) == 0
     with Journal(tmp_path / "copy.sqlite3", readonly=True) as j:
         assert len(j.sessions()) == 2

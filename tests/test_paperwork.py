@@ -559,7 +559,11 @@ def test_a_phone_call_ended_with_a_visit_goes_on_at_the_site(tmp_path):
         events = journal.load_events(sid)
         record = session_record(journal, sid, pack)
     kinds = [e.kind for e in events]
-    assert kinds.count("end") == 2 and kinds.index("reopen") == kinds.index("end") + 1
+    # the hand-off from the phone to the site is recorded, then the session goes on
+    assert kinds.count("end") == 2 and kinds.index("reopen") == kinds.index("end") + 2
+    handed = events[kinds.index("handover")]
+    assert (handed.giver, handed.taker) == ("Dana", "Sam")
+    assert [(h["from"], h["to"]) for h in record.handovers] == [("Dana", "Sam")]
     assert info.status == "closed" and info.outcome == "resolved"
     replayed = Session.replay(pack, events)
     assert replayed.evidence.findings["listen_click"] == {"silent": 1.0}  # the caller's answer

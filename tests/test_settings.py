@@ -139,7 +139,7 @@ def test_a_broken_file_is_one_line_at_the_command_line(tmp_path, capsys, gap_ans
     code, out, err = run(capsys, "run", "spring-applied-brake", "--answers", gap_answers)
     assert code == 2 and out == ""
     assert err == f"diagnose: {path}: unknown key 'unit' (did you mean 'units'?); the keys are " \
-                  "units, technician, mode, journal\n"
+                  "units, technician, mode, journal, team_journal\n"
 
 
 # --- the user's folders ------------------------------------------------------------------------

@@ -1,12 +1,18 @@
-"""The journal's commands: sessions, resume, report, learn, stats, backup, export, import.
+"""The journal's commands: sessions, resume, report, learn, stats, backup, export, import, verify,
+sync.
 
 `diagnose sessions` lists what the journal holds; `diagnose resume ID`
 continues an open session in the shell; `diagnose report ID` writes its
 repair log; `diagnose learn PACK` refines the pack's cause priors from
 confirmed cures; `diagnose stats` sums up; `diagnose backup FILE` copies the
 journal safely while it may be in use; `diagnose export ID` and `diagnose
-import FILE` carry one session to another journal. The journal is ``--journal PATH``,
-else DIAGNOSE_JOURNAL, else the user's data folder.
+import FILE` carry one session to another journal; `diagnose verify` checks
+that no recorded event was altered or taken out; `diagnose sync` sends the
+sessions to the team journal (``--pull`` brings its closed ones back). The
+journal is ``--journal PATH`` (or a team journal's ``postgresql://`` URL), else
+DIAGNOSE_JOURNAL, else the settings file's, else the user's data folder. A
+session is named by its short id, its UUID or a unique prefix of the UUID (8
+hex digits or more).
 """
 
 from __future__ import annotations
@@ -15,7 +21,7 @@ import argparse
 from typing import Any
 
 from diagnose.commands import add_output_arguments, output_options, write_output
-from diagnose.errors import InputError
+from diagnose.errors import InputError, JournalError
 from diagnose.journal import REPORT_FORMATS
 from diagnose.text import clean, json_text, say
 
@@ -96,6 +102,34 @@ def register(sub: Any) -> None:
                        "here is never overwritten. The session keeps its id when it is free.")
     p.add_argument("file", metavar="FILE")
     p.set_defaults(handler=_import)
+    _register_verify(sub)
+
+
+def _register_verify(sub: Any) -> None:
+    p = sub.add_parser("verify", help="check that no recorded event was altered or taken out",
+                       description="Check the hash chain of every session's events (or of "
+                       "session ID's): each event carries the hash of the one before it in its "
+                       "session and its own (SHA-256 over its contents). Prints one line; "
+                       "exits 1 at the first break, naming the session and the event.")
+    p.add_argument("session_id", nargs="?", metavar="ID",
+                   help="only this session (short id, UUID or a unique prefix of it)")
+    p.set_defaults(handler=_verify)
+
+    p = sub.add_parser("sync", help="send this journal's sessions to the team journal",
+                       description="Copy every session of this journal (open and closed, with "
+                       "their events, UUIDs and hash chains) to the team journal: --to URL, else "
+                       "DIAGNOSE_TEAM_JOURNAL, else the settings file's team_journal. With "
+                       "--pull, also bring back the team journal's closed sessions this one "
+                       "lacks (the history of units and `learn` work offline). Running it "
+                       "again sends nothing; a sync cut off part-way is finished by the next; "
+                       "laptops syncing in any order give the same team journal. Prints one "
+                       "line; exits 1 when a session went on differently in both journals (it "
+                       "is left as it is in both).")
+    p.add_argument("--to", metavar="URL",
+                   help="the team journal (a postgresql:// URL, or another journal file)")
+    p.add_argument("--pull", action="store_true",
+                   help="also copy the team journal's closed sessions that this one lacks")
+    p.set_defaults(handler=_sync)
 
 
 # --- helpers -------------------------------------------------------------------------------
@@ -111,6 +145,12 @@ def _path(args: argparse.Namespace) -> Any:
     from diagnose.service import journal_path
 
     return journal_path(_where(args))
+
+
+def _label(args: argparse.Namespace) -> str:
+    from diagnose.service import journal_label
+
+    return journal_label(_where(args))
 
 
 def _reader(args: argparse.Namespace) -> Any:
@@ -151,7 +191,7 @@ def _sessions(args: argparse.Namespace) -> int:
         print(json_text([i.to_dict() for i in infos], indent=2))
         return 0
     if not infos:
-        say(f"no sessions in the journal {_path(args)}")
+        say(f"no sessions in the journal {_label(args)}")
         return 0
     from rich.table import Table
 
@@ -270,5 +310,27 @@ def _backup(args: argparse.Namespace) -> int:
     with _need_reader(args) as journal:
         target = journal.backup(args.target, force=args.force)
     print("integrity: ok")
-    say(f"journal {_path(args)} copied to {target}")
+    say(f"journal {_label(args)} copied to {target}")
     return 0
+
+
+def _verify(args: argparse.Namespace) -> int:
+    journal = _reader(args)
+    if journal is None:
+        if args.session_id:
+            raise JournalError(f"no session {args.session_id} in the journal {_label(args)}: "
+                               "nothing was recorded there yet")
+        say(f"no sessions in the journal {_label(args)}: nothing to verify")
+        return 0
+    with journal:
+        result = journal.verify_chain(args.session_id)
+    say(f"journal {_label(args)}: {result}")
+    return 0 if result.ok else 1
+
+
+def _sync(args: argparse.Namespace) -> int:
+    from diagnose.service.sync import sync_journals, team_label
+
+    done = sync_journals(_where(args), args.to, pull=args.pull)
+    say(f"{_label(args)} -> {team_label(args.to)}: {done}")
+    return 0 if done.ok else 1

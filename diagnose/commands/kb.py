@@ -188,10 +188,17 @@ def _schema(args: argparse.Namespace) -> int:
 
 
 def _test(args: argparse.Namespace) -> int:
-    from diagnose.service.cases import run_cases
+    from diagnose.commands.progress import progress_bar
+    from diagnose.service.cases import run_case
 
     model = load(args, args.pack)
-    results = run_cases(model)
+    cases = list(model.cases.values())
+    results = []
+    with progress_bar("testing", json=args.json) as progress:
+        for case in cases:  # as run_cases does, one case at a time for the bar
+            results.append(run_case(model, case))
+            if progress is not None:
+                progress(len(results), len(cases))
     if args.json:
         print(json_text([r.to_dict() for r in results], indent=2))
     else:

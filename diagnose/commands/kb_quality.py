@@ -91,9 +91,13 @@ def analyze_command(args: argparse.Namespace) -> int:
         raise InputError("--unknown-rate", "give a share from 0 up to 1")
     if args.json and args.format:
         raise InputError("--format", "give either --json or --format")
+    from diagnose.commands.progress import progress_bar
+
     model = load(args, args.pack)
-    result = analyze(model, complaint=args.complaint, threshold=args.threshold,
-                     effort=not args.no_effort, runs=args.runs, unknown_rate=rate)
+    with progress_bar("analysing", json=args.json) as progress:
+        result = analyze(model, complaint=args.complaint, threshold=args.threshold,
+                         effort=not args.no_effort, runs=args.runs, unknown_rate=rate,
+                         progress=progress)
     if args.json:
         from diagnose.commands import output_options, write_output
 

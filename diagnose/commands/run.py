@@ -50,6 +50,10 @@ def register(sub: Any) -> None:
     p.add_argument("--who", metavar="NAME", type=storable,
                    help="who does the steps, for the repair log (default: the settings file's "
                    "technician)")
+    p.add_argument("--take-over", action="store_true",
+                   help="with --resume: take the session even while another holder (another "
+                   "machine or program) holds it and wrote within the lease (see `diagnose "
+                   "resume`)")
     p.add_argument("--no-journal", action="store_true",
                    help="a dry run: show the steps but write nothing to the journal")
     p.add_argument("--json", action="store_true", help="one JSON object instead of text")
@@ -412,7 +416,7 @@ def _run(args: argparse.Namespace) -> int:
 
 
 def _start(args: argparse.Namespace, data: dict[str, Any]) -> int:
-    from diagnose.service import Where, journal_path, open_journal, open_pack, preferences, start
+    from diagnose.service import Where, journal_label, open_journal, open_pack, preferences, start
 
     where = Where.of(args)
     prefs = preferences(args)
@@ -432,7 +436,7 @@ def _start(args: argparse.Namespace, data: dict[str, Any]) -> int:
                         who=args.who or prefs.technician)
         try:
             return _play(args, session, data, recorded=True, resumed=False,
-                         journal=str(journal_path(where)), units=prefs.units)
+                         journal=journal_label(where), units=prefs.units)
         except Exception as exc:
             _close_stopped(session, exc)
             raise
@@ -462,7 +466,7 @@ def _resume(args: argparse.Namespace, data: dict[str, Any]) -> int:
     from diagnose.journal.recorder import ensure_open
     from diagnose.service import (
         Where,
-        journal_path,
+        journal_label,
         need_journal,
         open_journal,
         preferences,
@@ -475,13 +479,10 @@ def _resume(args: argparse.Namespace, data: dict[str, Any]) -> int:
     units = preferences(args).units
     sid = args.resume
     with need_journal(where) as reader:
-        info = reader.session(sid)
+        info = reader.session(sid)  # the short id, the UUID or a prefix of it
+        sid = info.id
         ensure_open(info)
         events = recorded_events(reader, sid)
-    if args.who and args.who != info.who:
-        raise InputError("--who", f"session {sid} was recorded by "
-                         f"{info.who or 'nobody named'}; the repair log names one person a "
-                         "session (leave --who out to continue it)")
     choice = recorded_pack(info, events, where, args.pack)
     old = Session.replay(choice.model, events)  # in memory: checks the pack and the answers
     mode, faults = _options(args, data)
@@ -497,11 +498,17 @@ def _resume(args: argparse.Namespace, data: dict[str, Any]) -> int:
         return _play(args, session, data, recorded=False, resumed=True, journal=None,
                      units=units)
     from diagnose.service import resume
+    from diagnose.service.holding import handover_line
+    from diagnose.text import say
 
     with open_journal(where) as journal:
-        session = resume(journal, sid, where, args.pack, choice=choice).session
+        resumed = resume(journal, sid, where, args.pack, choice=choice, who=args.who,
+                         take_over=args.take_over)
+        if resumed.handover is not None and not args.json:
+            say(handover_line(sid, resumed.handover))
+        session = resumed.session
         return _play(args, session, data, recorded=True, resumed=True,
-                     journal=str(journal_path(where)), units=units)
+                     journal=journal_label(where), units=units)
 
 
 def _play(args: argparse.Namespace, session: Any, data: dict[str, Any], *, recorded: bool,

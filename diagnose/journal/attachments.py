@@ -61,7 +61,9 @@ def folder_of(journal: str | os.PathLike[str]) -> Path:
     >>> folder_of("/data/journal.sqlite3").as_posix()
     '/data/attachments'
     """
-    return Path(journal).parent / FOLDER
+    from diagnose.paths import journal_path
+
+    return journal_path(journal).parent / FOLDER  # a team journal's: its local folder
 
 
 def media_type(head: bytes) -> str:

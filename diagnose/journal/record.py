@@ -32,6 +32,7 @@ from diagnose.events import (
     ComplaintReported,
     Ended,
     Event,
+    HandedOver,
     LeftUnsure,
     NameplateRead,
     Noted,
@@ -100,6 +101,7 @@ class Record:
     cautions: tuple[Mapping[str, Any], ...] = ()
     notes: tuple[Mapping[str, Any], ...] = ()
     attachments: tuple[Mapping[str, Any], ...] = ()  # sha256, name, caption, media_type, ...
+    handovers: tuple[Mapping[str, Any], ...] = ()  # time, from, to, forced
     initial_ranking: tuple[Mapping[str, Any], ...] = ()
     final_ranking: tuple[Mapping[str, Any], ...] = ()
     result: str | None = None  # of the end: resolved, visit, escalated, abandoned
@@ -138,6 +140,7 @@ class Record:
             "repairs": [s.to_dict() for s in self.repairs],
             "notes": [dict(n) for n in self.notes],
             "attachments": [dict(a) for a in self.attachments],
+            "handovers": [dict(h) for h in self.handovers],
             "initial_ranking": [dict(r) for r in self.initial_ranking],
             "final_ranking": [dict(r) for r in self.final_ranking],
             "result": self.result, "cause": dict(self.cause) if self.cause else None,
@@ -254,7 +257,7 @@ def build_record(info: Any, events: Sequence[Event], model: Any = None,
         complaints=tuple({"id": c, "title": _title(fold.tables.complaints, c)}
                          for c in ev.complaints),
         mode=ev.mode, steps=tuple(steps), cautions=tuple(fold.cautions), notes=tuple(fold.notes),
-        attachments=tuple(fold.attachments),
+        attachments=tuple(fold.attachments), handovers=tuple(fold.handovers),
         initial_ranking=fold.initial, final_ranking=final or fold.initial, result=result or None,
         cause={"id": cause_id, "title": _cause_title(model, cause_id)} if cause_id else None,
         finding=_finding(end, cause_id, model), covers=_covers(cure, model),
@@ -349,6 +352,7 @@ class _Fold:
     attachments: list[dict[str, Any]] = field(default_factory=list)
     initial: tuple[dict[str, Any], ...] = ()
     site_who: str | None = None
+    handovers: list[dict[str, Any]] = field(default_factory=list)
 
     def add(self, event: Event, ranking: tuple[dict[str, Any], ...]) -> None:
         """Fold in one event that still counts; ``ranking`` is the one after it."""
@@ -370,6 +374,10 @@ class _Fold:
             case Reopened(who=who) if who:
                 self.site_who = who  # the technician who takes it up at the site
                 self.who = who
+            case HandedOver(taker=taker, giver=giver, forced=forced):
+                self.handovers.append({"time": event.time, "from": giver, "to": taker,
+                                       "forced": forced})
+                self.who = taker  # what follows is theirs
             case Noted(text=text):
                 self.notes.append({"time": event.time, "who": self.who, "text": text})
             case Attached():

@@ -22,6 +22,16 @@ Safety rules, in the order ``Journal`` applies them:
   sessions writing at once lose nothing.
 * A full disk stops the write that did not fit and says so; what was
   committed before stays, and the session resumes once there is space.
+* Every session and event has a UUID (``uid``) besides its short id
+  (``250114-3``, unique within the journal); commands take either, or a
+  unique prefix of the UUID of at least 8 hex digits (:meth:`Journal.resolve`).
+  Writing a session or an event whose UUID is there already changes nothing
+  (what a copy between journals needs to be idempotent).
+* Events are only ever inserted: the program never updates or deletes an
+  event row (the session row is updated: its status, outcome, unit and time
+  of the last event). Each event carries the hash of the one before it in
+  its session and its own (:mod:`diagnose.journal.chain`);
+  :meth:`Journal.verify_chain` finds the first event altered or taken out.
 * Events are read back checked: a row altered by hand (data that is not a
   JSON object, a field of the wrong type, a missing key, a ranking that is no
   list) raises ``JournalError`` naming the session and the event number; an
@@ -42,9 +52,11 @@ import dataclasses
 import errno
 import json
 import os
+import re
 import shutil
 import sqlite3
 import time as _time
+import uuid
 from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -54,10 +66,12 @@ from typing import Any
 
 from diagnose.errors import JournalError
 from diagnose.events import EVENT_KEYS, FORMAT, Event, EventError, Row, decode, encode, problem
+from diagnose.journal.chain import Verified, check_chain, event_hash
+from diagnose.journal.holders import Holding, renew_row, take_row
 from diagnose.paths import APPLICATION_ID
 from diagnose.text import storable
 
-SCHEMA_VERSION = 3
+SCHEMA_VERSION = 5
 #: The identity keys kept as columns of a session, to find the past jobs on a unit.
 UNIT_FIELDS = ("site", "machine", "axis", "serial")
 HEADER = b"SQLite format 3\x00"
@@ -114,6 +128,32 @@ _MIGRATIONS: tuple[tuple[str, ...], ...] = (
         "ALTER TABLE session ADD COLUMN origin TEXT",
         "CREATE INDEX session_by_origin ON session (origin)",
     ),
+    (  # 4: a UUID for every session and event; the events hash-chained (diagnose.journal.chain)
+        "ALTER TABLE session ADD COLUMN uid TEXT",
+        lambda conn: _fill_session_uids(conn),
+        "CREATE UNIQUE INDEX session_by_uid ON session (uid)",
+        """CREATE TABLE event4 (
+            session_id TEXT NOT NULL REFERENCES session(id),
+            seq INTEGER NOT NULL,
+            uid TEXT NOT NULL UNIQUE,
+            kind TEXT NOT NULL,
+            time TEXT NOT NULL,
+            data TEXT NOT NULL,
+            ranking TEXT,
+            format INTEGER NOT NULL DEFAULT 1,
+            prev_hash TEXT,
+            hash TEXT NOT NULL,
+            PRIMARY KEY (session_id, seq)
+        ) WITHOUT ROWID""",
+        # The events are copied into the new table with their uids and chain, never updated.
+        lambda conn: _copy_chained(conn),
+        "DROP TABLE event",
+        "ALTER TABLE event4 RENAME TO event",
+    ),
+    (  # 5: who holds a session, and the time of their last write (diagnose.journal.holders)
+        "ALTER TABLE session ADD COLUMN holder TEXT",
+        "ALTER TABLE session ADD COLUMN held TEXT",
+    ),
 )
 
 
@@ -140,6 +180,7 @@ class SessionInfo:
     axis: str | None = None
     serial: str | None = None
     origin: str | None = None  # of an imported session: its key in the journal it came from
+    uid: str | None = None  # the session's UUID (None in a journal of schema 3 or before)
 
     @property
     def unit(self) -> dict[str, str]:
@@ -182,7 +223,7 @@ def to_jsonable(value: Any) -> Any:
     return str(value)
 
 
-def _event_fields(event: Any) -> tuple[str, dict[str, Any], str, int]:
+def event_fields(event: Any) -> tuple[str, dict[str, Any], str, int]:
     """The row of an event: a typed one through the codec, a mapping or object as it is."""
     if isinstance(event, Event):
         row = encode(event)
@@ -194,7 +235,8 @@ def _event_fields(event: Any) -> tuple[str, dict[str, Any], str, int]:
                             getattr(event, "time", None))
     if not isinstance(kind, str) or not kind:
         raise JournalError(f"cannot record an event without a kind: {event!r}")
-    row = Row(kind, to_jsonable(data or {}), str(when or now()), FORMAT)
+    fmt = event.get("format", FORMAT) if isinstance(event, Mapping) else FORMAT
+    row = Row(kind, to_jsonable(data or {}), str(when or now()), fmt)
     why = problem(row)
     if why:  # a bug of the caller: the journal keeps only what reads back
         raise JournalError(f"cannot record a malformed event: {why}")
@@ -352,6 +394,7 @@ class Journal:
     def __init__(self, path: str | os.PathLike[str], *, readonly: bool = False) -> None:
         self.path = Path(path)
         self.readonly = readonly
+        self.held: dict[str, str] = {}  # the sessions this program holds: id -> holder
         if readonly:
             if not self.path.exists():
                 raise JournalError(f"there is no journal at {self.path} yet: nothing was "
@@ -436,7 +479,10 @@ class Journal:
                                    "diagnose; upgrade diagnose too")
             for step in _MIGRATIONS[current:SCHEMA_VERSION]:
                 for statement in step:
-                    conn.execute(statement)
+                    if callable(statement):  # rows a migration fills in Python
+                        statement(conn)
+                    else:
+                        conn.execute(statement)
             if 0 < current < 3:
                 _fill_unit_fields(conn)
             conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
@@ -479,6 +525,12 @@ class Journal:
 
     # -- public API ----------------------------------------------------------------
     def close(self) -> None:
+        """Release the sessions this program holds (leaving them), then close."""
+        for sid in list(self.held):
+            try:
+                self.release(sid)
+            except JournalError:
+                pass  # the lease runs out instead
         self._conn.close()
 
     def __enter__(self) -> Journal:  # noqa: PYI034 (no subclasses)
@@ -494,16 +546,22 @@ class Journal:
     def new_session(self, pack_id: str, pack_version: str, content_hash: str, mode: str,
                     who: str | None = None, *, started: str | None = None,
                     learned: str | None = None, wanted: str | None = None,
-                    origin: str | None = None) -> str:
+                    origin: str | None = None, uid: str | None = None) -> str:
         """Record a new open session; return its id, the date and a counter: ``250114-3``.
 
         ``learned`` says which learned priors the session ranks with (None: the pack's own).
         ``wanted``: the id to use if it is free (an imported session keeps its id when it
-        can); ``origin``: where an imported session came from.
+        can); ``origin``: where an imported session came from. ``uid``: the session's
+        UUID (a new one when None); a session with that UUID here already is kept as it
+        is and its id returned.
         """
         when = started or now()
         day = when[2:10].replace("-", "")
+        uid = new_uid() if uid is None else normal_uid(uid)
         with self._transaction() as conn:
+            there = conn.execute("SELECT id FROM session WHERE uid = ?", (uid,)).fetchone()
+            if there is not None:
+                return str(there[0])
             free = wanted and conn.execute("SELECT 1 FROM session WHERE id = ?",
                                            (wanted,)).fetchone() is None
             if free:
@@ -516,12 +574,13 @@ class Journal:
                 sid = f"{day}-{max(taken, default=0) + 1}"
             conn.execute(
                 "INSERT INTO session (id, pack_id, pack_version, content_hash, mode, who, "
-                "started, updated, learned, origin) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                "started, updated, learned, origin, uid) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
                 (sid, pack_id, pack_version, content_hash, mode,
-                 None if who is None else storable(who), when, when, learned, origin))
+                 None if who is None else storable(who), when, when, learned, origin, uid))
         return sid
 
-    def write(self, session_id: str, event: Any, *, ranking: Any = None) -> int:
+    def write(self, session_id: str, event: Any, *, ranking: Any = None,
+              uid: str | None = None) -> int:
         """Append one event to a session, committed before this returns; the session's sink.
 
         ``event`` has ``kind``, ``data`` (JSON-able) and ``time`` (ISO text), as an
@@ -529,27 +588,40 @@ class Journal:
         is the ranking after the event, kept beside it for the repair log. An
         ``end`` event also closes the session with the ``result`` and ``cause`` of
         its data; a closed session still takes notes and acknowledgements.
-        Returns the event's number (from 1).
+        ``uid`` is the event's UUID (a new one when None); an event with that UUID
+        here already is not written again. Returns the event's number (from 1).
 
         Raises:
             JournalError: unknown session, a second end, or the file cannot be written.
         """
-        kind, data, when, fmt = _event_fields(event)
+        kind, data, when, fmt = event_fields(event)
         payload = json.dumps(data, ensure_ascii=False, separators=(",", ":"))
         payload = storable(payload)
         ranked = None if ranking is None else json.dumps(to_jsonable(ranking),
                                                          separators=(",", ":"))
+        uid = new_uid() if uid is None else normal_uid(uid)
         with self._transaction() as conn:
-            row = conn.execute("SELECT status FROM session WHERE id = ?", (session_id,)).fetchone()
+            row = conn.execute("SELECT status, uid, holder FROM session WHERE id = ?",
+                               (session_id,)).fetchone()
             if row is None:
-                raise JournalError(f"no session {session_id} in the journal {self.path}")
+                session_id = self._resolve(session_id, conn)
+                row = conn.execute("SELECT status, uid, holder FROM session WHERE id = ?",
+                                   (session_id,)).fetchone()
+            there = conn.execute("SELECT seq FROM event WHERE uid = ?", (uid,)).fetchone()
+            if there is not None:  # written before (a copy run again): nothing to add
+                return int(there[0])
+            if session_id in self.held:
+                renew_row(conn, str, session_id, self.held[session_id], row[2])
             if row[0] == "closed" and kind == "end":
                 raise JournalError(f"session {session_id} is closed already")
-            seq = conn.execute("SELECT coalesce(max(seq), 0) + 1 FROM event WHERE session_id = ?",
-                               (session_id,)).fetchone()[0]
-            conn.execute("INSERT INTO event (session_id, seq, kind, time, data, ranking, format) "
-                         "VALUES (?, ?, ?, ?, ?, ?, ?)",
-                         (session_id, seq, kind, when, payload, ranked, fmt))
+            last = conn.execute("SELECT seq, hash FROM event WHERE session_id = ? "
+                                "ORDER BY seq DESC LIMIT 1", (session_id,)).fetchone()
+            seq, prev = (1, None) if last is None else (last[0] + 1, last[1])
+            digest = event_hash(row[1], seq, kind, fmt=fmt, time=when, data=json.loads(payload),
+                                prev=prev)
+            conn.execute("INSERT INTO event (session_id, seq, uid, kind, time, data, ranking, "
+                         "format, prev_hash, hash) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                         (session_id, seq, uid, kind, when, payload, ranked, fmt, prev, digest))
             unit = {k: str(data[k]).strip() for k in UNIT_FIELDS
                     if kind == "identity" and str(data.get(k) or "").strip()}
             if unit:
@@ -559,12 +631,47 @@ class Journal:
                 conn.execute("UPDATE session SET updated = ?, status = 'open', outcome = NULL, "
                              "cause = NULL WHERE id = ?", (when, session_id))
             elif kind == "end":
-                outcome, cause = _end_fields(data)
+                outcome, cause = end_fields(data)
                 conn.execute("UPDATE session SET updated = ?, status = 'closed', outcome = ?, "
                              "cause = ? WHERE id = ?", (when, outcome, cause, session_id))
             else:
                 conn.execute("UPDATE session SET updated = ? WHERE id = ?", (when, session_id))
         return int(seq)
+
+    def take(self, session_id: str, holder: str, *, force: bool = False,
+             lease: float | None = None) -> Holding:
+        """Take session ``session_id`` for ``holder`` (see :mod:`diagnose.journal.holders`).
+
+        Returns the holding before (whom it was taken from).
+
+        Raises:
+            SessionHeld: another holder wrote within the lease (and not ``force``).
+        """
+        session_id = self.resolve(session_id)
+        with self._transaction() as conn:
+            before = take_row(conn, str, session_id, holder, force=force, lease=lease)
+        self.held[session_id] = holder
+        return before
+
+    def release(self, session_id: str) -> None:
+        """Leave session ``session_id``: another may take it at once (its holder's name stays)."""
+        holder = self.held.pop(session_id, None)
+        if holder is not None:
+            with self._transaction() as conn:
+                conn.execute("UPDATE session SET held = NULL WHERE id = ? AND holder = ?",
+                             (session_id, holder))
+
+    def holding(self, session_id: str) -> Holding:
+        """Who holds session ``session_id``, and when they last wrote."""
+        row = self._read("SELECT holder, held FROM session WHERE id = ?",
+                         (self.resolve(session_id),))
+        return Holding(*row[0])
+
+    def stored_events(self, session_id: str) -> list[tuple[Any, ...]]:
+        """The rows of a session's events as stored, for a copy to another journal:
+        ``(seq, uid, kind, data text, time, ranking text, format, hash)`` in order."""
+        return self._read("SELECT seq, uid, kind, data, time, ranking, format, hash FROM event "
+                          "WHERE session_id = ? ORDER BY seq", (self.resolve(session_id),))
 
     def close_session(self, session_id: str, outcome: str, cause: str | None = None) -> None:
         """Mark a session closed with its ``outcome`` (``resolved``, ``escalated``, ...) and cause.
@@ -585,7 +692,7 @@ class Journal:
             JournalError: no such session, or an event was damaged (altered by hand)
                 or written by a newer diagnose.
         """
-        self.session(session_id)
+        session_id = self.session(session_id).id
         return [self._decode(session_id, row)[0] for row in self._event_rows(session_id)]
 
     def _event_rows(self, session_id: str) -> list[tuple[Any, ...]]:
@@ -603,6 +710,7 @@ class Journal:
         Raises:
             JournalError: an event was damaged (altered by hand).
         """
+        session_id = self.resolve(session_id)
         return [self._decode(session_id, row)[1] for row in self._event_rows(session_id)]
 
     def verify_events(self, session_id: str | None = None) -> None:
@@ -618,6 +726,7 @@ class Journal:
         """
         select = f"SELECT session_id, seq, kind, data, time, ranking, {self._format} FROM event"
         if session_id is not None:
+            session_id = self.resolve(session_id)
             rows = self._read(f"{select} WHERE session_id = ? ORDER BY seq", (session_id,))
         else:
             try:
@@ -634,32 +743,76 @@ class Journal:
 
     def _decode(self, session_id: str, row: tuple[Any, ...]) -> tuple[Event, Any]:
         """The event and ranking of a stored row ``(seq, kind, data, time, ranking, format)``."""
-        seq, kind, text, when, ranked, fmt = row
-        try:
-            data = json.loads(text) if isinstance(text, (str, bytes)) else None
-            ranking = None if ranked is None else json.loads(ranked)
-        except ValueError as exc:
-            raise _damaged_event(self.path, session_id, seq, f"not JSON: {exc}") from None
-        why = _ranking_problem(ranking)
-        if why:
-            raise _damaged_event(self.path, session_id, seq, why)
-        try:
-            return decode(Row(kind, data, when, fmt)), ranking
-        except EventError as exc:
-            raise _damaged_event(self.path, session_id, seq, str(exc)) from None
+        return decode_row(self.path, session_id, row)
 
     def session(self, session_id: str) -> SessionInfo:
-        """One session's metadata.
+        """One session's metadata, by its short id, its UUID or a unique prefix of the UUID.
 
         Raises:
-            JournalError: no such session (the message names the latest ones).
+            JournalError: no such session (the message names the latest ones), or the
+                prefix fits several.
         """
         found = self._sessions("WHERE s.id = ?", (session_id,))
         if not found:
-            latest = [s.id for s in self._sessions("", ())[:3]]
-            hint = f"; latest: {', '.join(latest)}" if latest else ""
-            raise JournalError(f"no session {session_id} in the journal {self.path}{hint}")
+            found = self._sessions("WHERE s.id = ?", (self.resolve(session_id),))
         return found[0]
+
+    def resolve(self, ref: str, conn: sqlite3.Connection | None = None) -> str:
+        """The short id of the session ``ref`` names: its short id, UUID or UUID prefix.
+
+        Raises:
+            JournalError: no such session, or the prefix fits several.
+        """
+        return self._resolve(ref, conn)
+
+    def _resolve(self, ref: str, conn: sqlite3.Connection | None = None) -> str:
+        def rows(sql: str, params: tuple[Any, ...]) -> list[tuple[Any, ...]]:
+            return (conn.execute(sql, params).fetchall() if conn is not None
+                    else self._read(sql, params))
+
+        ref = str(ref).strip()
+        if rows("SELECT id FROM session WHERE id = ?", (ref,)):
+            return ref
+        prefix = uid_prefix(ref)
+        found: list[tuple[Any, ...]] = []
+        if prefix and "uid" in self._columns("session"):
+            found = rows("SELECT id FROM session WHERE replace(uid, '-', '') LIKE ? "
+                         "ORDER BY id LIMIT 3", (prefix + "%",))
+        if len(found) == 1:
+            return str(found[0][0])
+        if found:
+            raise JournalError(ambiguous(ref, [str(r[0]) for r in found]))
+        latest = [s.id for s in self._sessions("", ())[:3]]
+        hint = f"; latest: {', '.join(latest)}" if latest else ""
+        raise JournalError(f"no session {ref} in the journal {self.path}{hint}")
+
+    def verify_chain(self, session_id: str | None = None) -> Verified:
+        """Check the hash chain of one session's events, or of every session's.
+
+        Returns what was checked and the first break (None when every chain holds);
+        see :mod:`diagnose.journal.chain`.
+
+        Raises:
+            JournalError: no such session, or a journal from before the chains.
+        """
+        if "hash" not in self._columns("event"):
+            raise JournalError(f"the journal {self.path} is of schema {self.schema_version}, "
+                               "from before the hash chains; open it once for writing (any "
+                               "command that records) to upgrade it")
+        if session_id is not None:
+            sessions = [(self.resolve(session_id),)]
+        else:
+            sessions = self._read("SELECT id FROM session ORDER BY started, rowid")
+        events = 0
+        for (sid,) in sessions:
+            uid = self._read("SELECT uid FROM session WHERE id = ?", (sid,))[0][0]
+            rows = self._read("SELECT seq, kind, format, time, data, prev_hash, hash FROM event "
+                              "WHERE session_id = ? ORDER BY seq", (sid,))
+            broken = check_chain(sid, uid, rows)
+            if broken is not None:
+                return Verified(len(sessions), events, broken, session_id and sid)
+            events += len(rows)
+        return Verified(len(sessions), events, None, session_id and sessions[0][0])
 
     def sessions(self, status: str | None = None, pack_id: str | None = None,
                  **unit: str | None) -> list[SessionInfo]:
@@ -694,7 +847,8 @@ class Journal:
 
     def _sessions(self, clause: str, params: tuple[Any, ...]) -> list[SessionInfo]:
         have = self._columns("session")
-        unit = ", ".join(f"s.{k}" if k in have else "NULL" for k in (*UNIT_FIELDS, "origin"))
+        unit = ", ".join(f"s.{k}" if k in have else "NULL"
+                         for k in (*UNIT_FIELDS, "origin", "uid"))
         rows = self._read(
             "SELECT s.id, s.pack_id, s.pack_version, s.content_hash, s.mode, s.who, s.started, "
             "s.updated, s.status, s.outcome, s.cause, s.learned, "
@@ -831,8 +985,115 @@ def _fill_unit_fields(conn: sqlite3.Connection) -> None:
                          "WHERE id = ?", (*unit.values(), sid))
 
 
-def _end_fields(data: Mapping[str, Any]) -> tuple[str | None, str | None]:
+def end_fields(data: Mapping[str, Any]) -> tuple[str | None, str | None]:
+    """The outcome and cause an ``end`` event's data gives its session's row."""
     outcome = data.get("result", data.get("outcome"))
     cause = data.get("cause")
     return (str(outcome) if outcome is not None else None,
             str(cause) if cause is not None else None)
+
+
+def new_uid() -> str:
+    """A new UUID (version 4, RFC 9562) as text: lower case, with hyphens."""
+    return str(uuid.uuid4())
+
+
+def normal_uid(text: str) -> str:
+    """``text`` as a UUID in the journal's form (lower case, with hyphens).
+
+    Raises:
+        JournalError: it is not a UUID.
+
+    >>> normal_uid("0B7D4F0E7A0F4C399D1F5B2B2F0C1A10")
+    '0b7d4f0e-7a0f-4c39-9d1f-5b2b2f0c1a10'
+    """
+    try:
+        return str(uuid.UUID(str(text)))
+    except ValueError:
+        raise JournalError(f"{text!r} is not a UUID") from None
+
+
+#: The fewest hex digits of a UUID that a command takes for a session.
+MIN_PREFIX = 8
+
+
+def uid_prefix(ref: str) -> str:
+    """The hex digits of ``ref`` when it may be (the start of) a UUID, else "".
+
+    >>> uid_prefix("0b7d4f0e-7a0f"), uid_prefix("250114-1"), uid_prefix("0b7d4f0")
+    ('0b7d4f0e7a0f', '', '')
+    """
+    text = str(ref).strip().lower()
+    if not re.fullmatch(r"[0-9a-f-]+", text):
+        return ""
+    digits = text.replace("-", "")
+    return digits if MIN_PREFIX <= len(digits) <= 32 else ""
+
+
+def ambiguous(ref: str, ids: list[str]) -> str:
+    """The message for a UUID prefix that fits several sessions."""
+    more = ", ..." if len(ids) > 2 else ""
+    return (f"the id {ref} fits several sessions ({', '.join(ids[:2])}{more}); "
+            "give more of its UUID, or the short id")
+
+
+def decode_row(where: Any, session_id: str, row: tuple[Any, ...]) -> tuple[Event, Any]:
+    """The event and ranking of a stored row ``(seq, kind, data, time, ranking, format)``.
+
+    Raises:
+        JournalError: the row is damaged (named by session and event number in the
+            journal ``where``) or of a newer format.
+    """
+    seq, kind, text, when, ranked, fmt = row
+    try:
+        data = json.loads(text) if isinstance(text, (str, bytes)) else None
+        ranking = None if ranked is None else json.loads(ranked)
+    except ValueError as exc:
+        raise _damaged_event(where, session_id, seq, f"not JSON: {exc}") from None
+    why = _ranking_problem(ranking)
+    if why:
+        raise _damaged_event(where, session_id, seq, why)
+    try:
+        return decode(Row(kind, data, when, fmt)), ranking
+    except EventError as exc:
+        raise _damaged_event(where, session_id, seq, str(exc)) from None
+
+
+def _fill_session_uids(conn: sqlite3.Connection) -> None:
+    """Give every session of a migrated journal a UUID (schema 4)."""
+    for (sid,) in conn.execute("SELECT id FROM session WHERE uid IS NULL").fetchall():
+        conn.execute("UPDATE session SET uid = ? WHERE id = ?", (new_uid(), sid))
+
+
+def chained_rows(rows: list[tuple[Any, ...]], uids: Mapping[str, str]) -> list[tuple[Any, ...]]:
+    """The events of a journal before schema 4 with a UUID and their chain (for a migration).
+
+    ``rows`` are ``(session_id, seq, kind, time, data, ranking, format)`` ordered by
+    session and seq; ``uids`` the sessions' UUIDs. Returns ``(session_id, seq, uid,
+    kind, time, data, ranking, format, prev_hash, hash)``. Data that is not JSON (a
+    row damaged before) is hashed as its text, and so is named by ``verify``.
+    """
+    out: list[tuple[Any, ...]] = []
+    prev: dict[str, str] = {}
+    for sid, seq, kind, when, text, ranked, fmt in rows:
+        try:
+            data = json.loads(text)
+        except (TypeError, ValueError):
+            data = str(text)
+        fmt = int(fmt) if isinstance(fmt, int) else 1
+        before = prev.get(sid)
+        digest = event_hash(uids.get(sid) or "", seq, str(kind), fmt=fmt, time=str(when),
+                            data=data, prev=before)
+        out.append((sid, seq, new_uid(), kind, when, text, ranked, fmt, before, digest))
+        prev[sid] = digest
+    return out
+
+
+def _copy_chained(conn: sqlite3.Connection) -> None:
+    """Copy the events into the schema 4 table with their UUIDs and chain."""
+    uids = dict(conn.execute("SELECT id, uid FROM session").fetchall())
+    rows = conn.execute("SELECT session_id, seq, kind, time, data, ranking, format FROM event "
+                        "ORDER BY session_id, seq").fetchall()
+    conn.executemany("INSERT INTO event4 (session_id, seq, uid, kind, time, data, ranking, "
+                     "format, prev_hash, hash) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                     chained_rows(rows, uids))

@@ -57,7 +57,8 @@ def export_session(journal: Any, session_id: str) -> dict[str, Any]:
     """
     from diagnose.journal.attachments import read
 
-    info = journal.session(session_id)
+    info = journal.session(session_id)  # the short id, the UUID or a prefix of it
+    session_id = info.id
     events = journal.load_events(session_id)
     rankings = journal.load_rankings(session_id)
     files = {}
@@ -145,11 +146,22 @@ def import_session(journal: Any, data: dict[str, Any]) -> Imported:
     if here is None:
         sid = journal.new_session(info["pack_id"], info["pack_version"], info["content_hash"],
                                   info["mode"], info.get("who"), started=info["started"],
-                                  learned=info.get("learned"), wanted=info["id"], origin=origin)
+                                  learned=info.get("learned"), wanted=info["id"], origin=origin,
+                                  uid=_uid(info.get("uid")))
         return _append(journal, sid, rows, [], renamed_from=None if sid == info["id"]
                        else info["id"])
     local = [encode(e) for e in journal.load_events(here.id)]
     return _append(journal, here.id, rows, local, renamed_from=None)
+
+
+def _uid(value: Any) -> str | None:
+    """The session's UUID from the file, kept across journals (None: a file without one)."""
+    from diagnose.journal.store import normal_uid
+
+    try:
+        return normal_uid(value) if value else None
+    except JournalError:
+        return None
 
 
 def _find(journal: Any, origin: str) -> Any:

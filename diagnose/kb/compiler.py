@@ -12,6 +12,7 @@ import hashlib
 import os
 from contextlib import contextmanager
 from dataclasses import dataclass, field
+from functools import lru_cache
 from typing import Any, Iterable, Iterator, Mapping
 
 from diagnose.errors import InputError, Problem, Source
@@ -28,6 +29,7 @@ from diagnose.kb.model import (
     Measurement,
     Model,
     Parameter,
+    Reading,
     Repair,
     StateVar,
     Step,
@@ -124,13 +126,34 @@ class _Ctx:
 # schema
 
 
-def _schema_problems(doc: Document, is_manifest: bool, ctx: _Ctx) -> set[Path]:
-    """Validate one document against the JSON Schema; return the paths of invalid items."""
+@lru_cache(maxsize=1)
+def _schema_check() -> Any:
+    """The pack schema compiled for the fast yes/no (:mod:`diagnose.kb.schemacheck`), once."""
+    from diagnose.kb.schemacheck import compile_schema
+
+    return compile_schema(pack_schema())
+
+
+@lru_cache(maxsize=1)
+def _schema_validator() -> Any:
+    """jsonschema's validator of the pack schema, made once: it words every schema message."""
     import jsonschema
 
-    validator = jsonschema.Draft202012Validator(pack_schema())
+    return jsonschema.Draft202012Validator(pack_schema())
+
+
+def _schema_problems(doc: Document, is_manifest: bool, ctx: _Ctx) -> set[Path]:
+    """Validate one document against the JSON Schema; return the paths of invalid items.
+
+    A document the fast check finds valid is valid; any other is validated by
+    jsonschema, whose errors are the messages.
+    """
+    from diagnose.kb.schemacheck import is_valid
+
+    valid = is_valid(_schema_check(), doc.data)
+    errors = [] if valid else _schema_validator().iter_errors(doc.data)
     bad: set[Path] = set()
-    for err in sorted(validator.iter_errors(doc.data), key=lambda e: list(map(str, e.path))):
+    for err in sorted(errors, key=lambda e: list(map(str, e.path))):
         path = tuple(err.absolute_path)
         if len(path) >= 2 and (path[0] in SECTIONS or path[0] == "extend_checks"):
             bad.add(path[:2])
@@ -251,6 +274,8 @@ def _device_pack(manifest: Mapping[str, Any], top: Any, ctx: _Ctx) -> dict[str, 
             ctx.ref(o.id, tuple(SECTIONS), o.at("id"), "override")
             continue
         changes = {k: v for k, v in o.data.items() if k in OVERRIDABLE}
+        if "values" in changes:  # a state's value titles: merged into its values
+            changes["values"] = _value_titles(o, target, changes["values"], ctx)
         if all(target.data.get(k) == v for k, v in changes.items()):
             ctx.warn(f"override of {o.id!r} changes nothing", o.at("id"), "override-no-change")
         target.data = {**target.data, **changes}
@@ -269,6 +294,28 @@ def _device_pack(manifest: Mapping[str, Any], top: Any, ctx: _Ctx) -> dict[str, 
             else:
                 x.data = filled
     return terms
+
+
+def _value_titles(o: Any, target: Any, given: Any, ctx: _Ctx) -> Any:
+    """A state's ``values`` with the override's new titles: only titles change.
+
+    A value the state does not have, or an override of ``values`` on anything
+    but a state, is an error at its line.
+    """
+    have = target.data.get("values")
+    if not isinstance(have, Mapping) or not isinstance(given, Mapping):
+        ctx.error(f"override of {o.id!r}: `values` renames a state's values; {o.id!r} has none",
+                  o.at("values"), "override")
+        return have
+    out = {k: dict(v) if isinstance(v, Mapping) else v for k, v in have.items()}
+    for value, new in given.items():
+        if value not in out or not isinstance(out[value], Mapping):
+            ctx.error(f"override of {o.id!r}: the state has no value {value!r}; values: "
+                      f"{', '.join(map(str, out))}", o.at("values", value), "override")
+            continue
+        if isinstance(new, Mapping) and "title" in new:
+            out[value]["title"] = new["title"]
+    return out
 
 
 def _manifest_filled(top: Any, terms: Mapping[str, str], ctx: _Ctx) -> dict[str, Any]:
@@ -317,6 +364,8 @@ def _control_characters(doc: Any, ctx: _Ctx) -> None:
     """
     from diagnose.text import unsafe
 
+    if getattr(doc, "plain", False):  # read from a text with no control character, no escape
+        return
     stack: list[tuple[tuple[Any, ...], Any]] = [((), doc.data)]
     while stack:
         path, value = stack.pop()
@@ -584,6 +633,10 @@ def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple
         except InputError as exc:
             ctx.error(f"check {it.id!r}: {exc.message}", it.at("measure", "unit"), "unit")
     inputs = _map(m.get("inputs"))
+    errors = len(ctx.problems)
+    also = _also_readings(it, m, spec, str(reading), inputs, ctx)
+    if len(ctx.problems) > errors:  # what the card reads is not known: no knock-on errors
+        ctx.unresolved[it.id] = errors
     for key, value in inputs.items():
         src = it.at("measure", "inputs", key)
         ispec = spec.input(key)
@@ -600,13 +653,53 @@ def _measurement(it: _Item, ctx: _Ctx, params: Mapping[str, Parameter]) -> tuple
         _check_input_value(it, key, value, ispec, params, ctx)
     for ispec in spec.inputs:
         if ispec.required and ispec.name != reading and ispec.default is None \
-                and ispec.name not in inputs:
+                and ispec.name not in inputs and all(r.name != ispec.name for r in also) \
+                and it.id not in ctx.unresolved:
             ctx.error(f"check {it.id!r}: evaluator {name!r} needs input {ispec.name!r} "
                       f"({ispec.help})", it.at("measure"), "evaluator")
     accuracy = _num(m.get("accuracy"), 0.0)
     at = m.get("at")
     return Measurement(str(name), str(reading), unit, inputs, accuracy, rspec.many,
-                       str(at) if isinstance(at, str) else ""), spec
+                       str(at) if isinstance(at, str) else "", also), spec
+
+
+def _also_readings(it: _Item, m: Mapping[str, Any], spec: Any, reading: str,
+                   inputs: Mapping[str, Any], ctx: _Ctx) -> tuple[Reading, ...]:
+    """The further named readings of a measurement (``also``), each checked at its line.
+
+    Each names an input of the evaluator that is neither the main reading nor
+    given in ``inputs``, takes one value (not a list), and has a unit that fits it.
+    """
+    out: list[Reading] = []
+    for key, given in _map(m.get("also")).items():
+        src = it.at("measure", "also", key)
+        ispec = spec.input(key)
+        if ispec is None or ispec.kind != "quantity":
+            names = [i.name for i in spec.inputs if i.kind == "quantity"]
+            close = difflib.get_close_matches(str(key), names, n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            ctx.error(f"check {it.id!r}: evaluator {spec.name!r} has no quantity {key!r} to "
+                      f"read{hint}", src, "evaluator")
+            continue
+        if key == reading or key in inputs:
+            ctx.error(f"check {it.id!r}: {key!r} is read twice (also the "
+                      f"{'main reading' if key == reading else 'value of an input'})", src,
+                      "evaluator")
+            continue
+        if ispec.many:
+            ctx.error(f"check {it.id!r}: {key!r} takes several readings; make it the main "
+                      "`reading` of the card", src, "evaluator")
+            continue
+        unit = str(given.get("unit", "") if isinstance(given, Mapping) else given)
+        try:
+            if not _fits(unit, ispec.unit):
+                ctx.error(f"check {it.id!r}: unit {unit!r} does not fit the reading {key!r} "
+                          f"(expects {ispec.unit or 'a plain number'})", src, "unit")
+        except InputError as exc:
+            ctx.error(f"check {it.id!r}: {exc.message}", src, "unit")
+        ask = str(given.get("ask", "")) if isinstance(given, Mapping) else ""
+        out.append(Reading(str(key), unit, ask or ispec.help))
+    return tuple(out)
 
 
 def _check_input_value(it: _Item, key: str, value: Any, ispec: Any,
@@ -1056,8 +1149,11 @@ def _step_answer(it: _Item, j: int, cid: str, chk: Check | None, ctx: _Ctx) -> N
                       it.at("steps", j, "answer"), "unknown-ref")
         why = _reading_problem(chk, ans) if chk.measurement is not None else ""
         if why:
+            m = chk.measurement
+            wanted = ", ".join(f"{r.name} ({r.unit or 'a plain number'})" for r in m.readings)
             ctx.error(f"test {it.id!r}: reading {ans!r} of check {cid!r} does not fit its "
-                      f"unit {chk.measurement.unit or 'a plain number'!r}: {why}",
+                      + (f"readings {wanted}" if m.also else
+                         f"unit {m.unit or 'a plain number'!r}") + f": {why}",
                       it.at("steps", j, "answer"), "unit")
 
 
@@ -1071,8 +1167,19 @@ def _reading_problem(chk: Check, ans: Any) -> str:
     text = ("yes" if ans else "no") if isinstance(ans, bool) else ans
     if isinstance(text, str) and _squash(text) in {_squash(o) for o in (*chk.outcomes, "unsure")}:
         return ""
-    if isinstance(ans, Mapping):
-        return ""  # named readings: the evaluator's to judge
+    if m.also or isinstance(ans, Mapping):  # named readings: each in its own unit
+        from diagnose.physics.inputs import named_readings
+
+        try:
+            got = named_readings(ans, {r.name: r.unit for r in m.readings}, m.reading)
+            for r in m.readings:
+                if not units.is_open(got[r.name]):
+                    units.parse_quantity(got[r.name], r.unit, r.name, negative=True)
+        except InputError as exc:
+            return exc.message
+        except ValueError:
+            return ""
+        return ""
     if isinstance(ans, (list, tuple)) and not m.many:
         return "expected one reading, got a list"
     try:

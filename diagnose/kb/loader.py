@@ -92,8 +92,8 @@ def read_pack(folder: Path) -> tuple[PackSource, list[Problem]]:
     if isinstance(pid, str) and pid:
         source.id = pid
     elif source.documents:
-        problems.append(Problem("error", "pack.yaml needs `pack: <id>`", source.documents[0].where(()),
-                                "manifest"))
+        problems.append(Problem("error", "pack.yaml needs `pack: <id>`",
+                                source.documents[0].where(()), "manifest"))
     return source, problems
 
 
@@ -228,12 +228,20 @@ def _compiled(ref: str, search: list[str] | None, learned: dict[str, float] | No
         found = pack_cache.lookup(ref, search, learned)
         if found.hit:
             return found.model, list(found.problems or ())
+    import gc
+
     from diagnose.kb.compiler import compile_sources
 
-    sources, problems = read_chain(ref, search)
-    if any(p.level == "error" and p.code in ("yaml", "io", "manifest") for p in problems):
-        return None, problems
-    model, more = compile_sources(sources, learned=learned)
+    paused = gc.isenabled()
+    gc.disable()  # a large pack is many objects and few cycles: the collector would only
+    try:          # walk them again and again (a tenth of the time of 10,000 causes)
+        sources, problems = read_chain(ref, search)
+        if any(p.level == "error" and p.code in ("yaml", "io", "manifest") for p in problems):
+            return None, problems
+        model, more = compile_sources(sources, learned=learned)
+    finally:
+        if paused:
+            gc.enable()
     problems = problems + _not_again(more, problems)
     if found is not None and model is not None:
         pack_cache.store(found, sources, model, problems, search=search, learned=learned)
@@ -241,7 +249,7 @@ def _compiled(ref: str, search: list[str] | None, learned: dict[str, float] | No
 
 
 def _not_again(more: list[Problem], found: list[Problem]) -> list[Problem]:
-    """``more`` without the schema's findings on ``builds_on`` entries already reported in ``found``.
+    """``more`` without the schema's findings on ``builds_on`` entries reported in ``found``.
 
     An entry written as a path or listed twice is reported once, by
     :func:`read_chain`, at its place; the schema would say it again (a pattern
@@ -271,6 +279,7 @@ def load_model(ref: str, *, search: list[str] | None = None,
     errors = [p for p in problems if p.level == "error"]
     if errors or model is None:
         raise KnowledgeError(errors or problems,
-                             f"pack {ref} has {len(errors)} error(s); run `diagnose kb lint {ref}`: "
+                             f"pack {ref} has {len(errors)} error(s); run "
+                             f"`diagnose kb lint {ref}`: "
                              f"{errors[0] if errors else 'cannot be read'}")
     return model

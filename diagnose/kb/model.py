@@ -146,6 +146,15 @@ class Complaint:
 
 
 @dataclass(frozen=True)
+class Reading:
+    """One named reading of a measurement: the evaluator input it fills, its unit, the ask."""
+
+    name: str
+    unit: str
+    ask: str = ""
+
+
+@dataclass(frozen=True)
 class Measurement:
     """How a numeric reading becomes an outcome: a registered evaluator and its inputs.
 
@@ -160,6 +169,12 @@ class Measurement:
     accuracy: float = 0.0  # relative meter accuracy, for soft evidence at band edges
     many: bool = False
     at: str = ""  # where the reading is taken; one quantity at one place is one reading
+    also: tuple[Reading, ...] = ()  # further named readings taken on the same card
+
+    @property
+    def readings(self) -> tuple[Reading, ...]:
+        """Every reading the card takes, the main one first."""
+        return (Reading(self.reading, self.unit), *self.also)
 
 
 @dataclass(frozen=True)

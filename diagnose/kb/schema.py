@@ -111,6 +111,18 @@ MEASURE = {
                      "description": "meter accuracy as a fraction of the reading"},
         "inputs": {"type": "object", "additionalProperties": SCALAR,
                    "description": "evaluator input -> constant or $parameter"},
+        "also": {
+            "type": "object", "propertyNames": ID, "maxProperties": 4,
+            "description": "further readings taken on the same card: evaluator input -> "
+                           "its unit, or {unit, ask}",
+            "additionalProperties": {
+                "oneOf": [
+                    {"type": "string"},
+                    {"type": "object", "additionalProperties": False, "required": ["unit"],
+                     "properties": {"unit": {"type": "string"}, "ask": TEXT}},
+                ],
+            },
+        },
         "at": {**ID, "description": "where the reading is taken (coil_terminals, ...): two "
                                     "checks reading the same quantity at the same place are "
                                     "one reading"},
@@ -202,7 +214,7 @@ EXTENSION = {
 
 #: The wording a device pack may override on an entity of a pack it builds on.
 OVERRIDABLE = ("title", "ask", "caller", "cautions", "unit", "default", "min", "max",
-               "description", "text", "prompt")
+               "description", "text", "prompt", "words", "values")
 
 DEVICE = {
     "type": "object",
@@ -224,7 +236,14 @@ OVERRIDE = {
     "required": ["id"],
     "additionalProperties": False,
     "description": "new wording for an entity of a pack this one builds on",
-    "properties": {"id": ID, **{k: {} for k in OVERRIDABLE}},
+    "properties": {
+        "id": ID,
+        **{k: {} for k in OVERRIDABLE if k != "values"},
+        "values": {"type": "object", "propertyNames": ID,
+                   "additionalProperties": {"type": "object", "additionalProperties": False,
+                                            "required": ["title"], "properties": {"title": TEXT}},
+                   "description": "a state's value titles: value -> {title: ...}"},
+    },
 }
 
 STATE = {
@@ -300,7 +319,9 @@ STEP = {
     "additionalProperties": False,
     "properties": {
         "check": ID,
-        "answer": {"type": ["string", "number", "array", "boolean"]},
+        "answer": {"type": ["string", "number", "array", "boolean", "object"],
+                   "additionalProperties": {"type": ["string", "number"]},
+                   "description": "an outcome, a reading, or named readings {name: value}"},
         "skip": {"type": "boolean"},
         "repair": ID,
         "cured": {"type": "boolean"},

@@ -35,6 +35,7 @@ from typing import Any
 import yaml
 
 from diagnose.errors import Problem, Source
+from diagnose.text import unsafe
 
 Path = tuple[Any, ...]
 
@@ -101,6 +102,9 @@ class Document:
     path: str
     data: Any
     positions: dict[Path, tuple[int, int]] = field(default_factory=dict)
+    #: The text held no control character and no backslash: no text in it can hold one
+    #: (only an escape in double quotes could make one), so no text need be looked at.
+    plain: bool = False
 
     def where(self, path: Path) -> Source:
         """The position of ``path`` or of its closest recorded ancestor."""
@@ -154,9 +158,11 @@ def read_yaml(text: str, path: str) -> tuple[Document | None, list[Problem]]:
     """
     if len(text) > PACK_FILE_BYTES:
         return None, [Problem("error", _too_large(len(text), PACK_FILE_BYTES), Source(path), "io")]
+    plain = "\\" not in text and unsafe(text) is None
     if FAST and not _MAY_ALIAS.search(text):
         doc = _read_clean(text, path)
         if doc is not None:
+            doc.plain = plain
             return doc, []
     problems: list[Problem] = []
     loader = _Loader(text)
@@ -166,7 +172,7 @@ def read_yaml(text: str, path: str) -> tuple[Document | None, list[Problem]]:
             return None, [refused]
         node = loader.get_single_node()
         data = loader.construct_document(node) if node is not None else None
-        doc = Document(path, {} if data is None else data)
+        doc = Document(path, {} if data is None else data, plain=plain)
         if node is not None:
             _walk(node, (), doc, problems, path, loader)
         return doc, problems
@@ -208,62 +214,96 @@ def _read_clean(text: str, path: str) -> Document | None:
         node = loader.get_single_node()
         if node is None:
             return Document(path, {})
-        data = loader.construct_document(node)
-        positions = _clean_positions(node, loader)
+        built = _Builder(loader).document(node)
     except Exception:  # noqa: BLE001 (whatever it is, the exact reader says it at its place)
         return None
     finally:
         loader.dispose()
         if paused:
             gc.enable()
-    if positions is None:
+    if built is None:
         return None
+    data, positions = built
     return Document(path, {} if data is None else data, positions)
 
 
-_STR = _TAG + "str"
+_MAP = _TAG + "map"
+_SEQ = _TAG + "seq"
+#: Scalar types built once per distinct text ("0.1", "true", "~"): the same value every time.
+_SHARED = frozenset(_TAG + kind for kind in ("int", "float", "bool", "null"))
 
 
-def _clean_positions(root: yaml.Node, loader: Any) -> dict[Path, tuple[int, int]] | None:
-    """The positions :func:`_walk` records for ``root``, or None when a check fails.
+class _Refused(Exception):
+    """Something the one pass does not read: the exact reader reads the text again."""
 
-    The checks are those of :func:`_scan` that building the data does not
-    already make (depth, number of values, long scalars) and the duplicate
-    keys of :func:`_walk`. Walks iteratively, in the order of the text.
+
+class _Builder:
+    """The data and the positions of a clean document in one walk over libyaml's nodes.
+
+    Builds what ``construct_document`` builds for plain mappings, sequences and
+    the scalar types of :data:`_CHECKED` and text, and records what
+    :func:`_walk` records; refuses (:class:`_Refused`) the rest: other tags
+    (merge keys, sets, binary, local tags), a key twice, a key that is not a
+    scalar, too many values, nesting too deep, a scalar :func:`_long_scalar`
+    refuses.
     """
-    positions: dict[Path, tuple[int, int]] = {}
-    stack: list[tuple[yaml.Node, Path, int, Any]] = [(root, (), 0, None)]
-    count = 0
-    while stack:
-        node, at, level, mark = stack.pop()
-        count += 1
-        mark = mark or node.start_mark
-        positions[at] = (mark.line + 1, mark.column + 1)
-        if isinstance(node, yaml.ScalarNode):
-            if node.tag != _STR and _long_scalar(node):
-                return None
-            continue
+
+    def __init__(self, loader: Any) -> None:
+        self.loader = loader
+        self.positions: dict[Path, tuple[int, int]] = {}
+        self.count = 0
+        self.scalars: dict[tuple[str, str], Any] = {}
+
+    def document(self, root: yaml.Node) -> tuple[Any, dict[Path, tuple[int, int]]] | None:
+        try:
+            data = self.value(root, (), 0, root.start_mark)
+        except _Refused:
+            return None
+        return data, self.positions
+
+    def scalar(self, node: yaml.Node) -> Any:
+        if node.__class__ is not yaml.ScalarNode:
+            raise _Refused
+        tag = node.tag
+        if tag == _STR:
+            return node.value
+        if tag not in _CHECKED or _long_scalar(node):
+            raise _Refused
+        if tag not in _SHARED:  # a timestamp: a new object each time, as the constructor makes
+            return self.loader.construct_object(node)
+        key = (tag, node.value)
+        found = self.scalars.get(key, self)
+        if found is self:
+            found = self.scalars[key] = self.loader.yaml_constructors[tag](self.loader, node)
+        return found
+
+    def value(self, node: yaml.Node, at: Path, level: int, mark: Any) -> Any:
+        self.count += 1
+        if self.count > MAX_NODES:
+            raise _Refused
+        self.positions[at] = (mark.line + 1, mark.column + 1)
+        cls = node.__class__
+        if cls is yaml.ScalarNode:
+            return self.scalar(node)
         level += 1
         if level > MAX_DEPTH:
-            return None
-        items: list[tuple[yaml.Node, Path, int, Any]] = []
-        if isinstance(node, yaml.MappingNode):
-            seen: set[Any] = set()
+            raise _Refused
+        if cls is yaml.MappingNode and node.tag == _MAP:
+            out: dict[Any, Any] = {}
             for key_node, value_node in node.value:
-                if not isinstance(key_node, yaml.ScalarNode) or _long_scalar(key_node):
-                    return None
-                key = key_node.value if key_node.tag == _STR else _scalar_key(key_node, loader)
-                if key in seen:
-                    return None
-                seen.add(key)
-                items.append((value_node, at + (key,), level, key_node.start_mark))
-            count += len(items)  # the keys
-        else:
-            items = [(item, at + (i,), level, None) for i, item in enumerate(node.value)]
-        if count + len(items) > MAX_NODES:
-            return None
-        stack.extend(reversed(items))
-    return positions if count <= MAX_NODES else None
+                key = self.scalar(key_node)
+                if key in out:
+                    raise _Refused
+                self.count += 1  # the key
+                out[key] = self.value(value_node, at + (key,), level, key_node.start_mark)
+            return out
+        if cls is yaml.SequenceNode and node.tag == _SEQ:
+            return [self.value(item, at + (i,), level, item.start_mark)
+                    for i, item in enumerate(node.value)]
+        raise _Refused
+
+
+_STR = _TAG + "str"
 
 
 def _long_scalar(node: yaml.ScalarNode) -> bool:

@@ -146,6 +146,57 @@ def split_readings(raw: Any, field: str = "readings") -> list[Any]:
     return out
 
 
+_NAMED = re.compile(r"(?<![\w.])([a-z][a-z0-9_]*)\s*=\s*", re.IGNORECASE)
+
+
+def named_readings(raw: Any, wanted: Mapping[str, str], field: str = "readings"
+                   ) -> dict[str, str]:
+    """Several named readings of one card, as ``{name: text}`` in ``wanted``'s order.
+
+    ``raw`` is a mapping, or text (or a list of texts) of ``name=value`` pairs;
+    ``wanted`` maps each name to its unit, for the messages.
+
+    >>> named_readings("volts=23.4 V, gap=0.61 mm", {"gap": "mm", "volts": "V"})
+    {'gap': '0.61 mm', 'volts': '23.4 V'}
+    >>> named_readings({"gap": 0.6, "volts": "23 V"}, {"gap": "mm", "volts": "V"})
+    {'gap': '0.6', 'volts': '23 V'}
+
+    Raises:
+        InputError: text too long, a name that is not read here, a name given
+            twice, or a reading missing (each named with its unit).
+    """
+    if isinstance(raw, (list, tuple)):
+        raw = " ".join(str(x) for x in raw)
+    given: dict[str, str] = {}
+    if isinstance(raw, Mapping):
+        given = {str(k).strip().lower(): _plain(v).strip() for k, v in raw.items()}
+    elif isinstance(raw, str):
+        if len(raw) > MAX_READINGS_TEXT:
+            raise InputError(field, f"too long: {units.excerpt(raw)}; at most "
+                                    f"{MAX_READINGS_TEXT} characters of readings are read")
+        marks = list(_NAMED.finditer(raw))
+        if not marks or raw[:marks[0].start()].strip(" ,;"):
+            raise InputError(field, "expected named readings, such as "
+                             + " ".join(f"{n}=… {u}".rstrip() for n, u in wanted.items()))
+        for here, after in zip(marks, [*marks[1:], None]):
+            name = here.group(1).lower()
+            if name in given:
+                raise InputError(field, f"{name} is given twice")
+            end = after.start() if after is not None else len(raw)
+            given[name] = raw[here.end():end].strip(" ,;")
+    else:
+        raise InputError(field, f"expected named readings, got {units.excerpt(raw)}")
+    extra = [n for n in given if n not in wanted]
+    if extra:
+        raise InputError(field, f"{units.excerpt(extra[0])} is not read here; the readings: "
+                                f"{', '.join(wanted)}")
+    missing = [f"{n} ({u})" if u else n for n, u in wanted.items() if not given.get(n)]
+    if missing:
+        raise InputError(field, f"needs the reading{'s' if len(missing) > 1 else ''} "
+                                f"{', '.join(missing)} too")
+    return {n: given[n] for n in wanted}
+
+
 def read_choice(raw: Any, choices: tuple[str, ...], field: str) -> str:
     """One of ``choices``; case, spaces, hyphens and underscores do not matter.
 

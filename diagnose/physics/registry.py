@@ -171,8 +171,9 @@ _SPECS = (
             _q("window_high", "", "highest allowed fraction of rated (pack-defined window)",
                required=False),
             _flag("polarity_known", "the meter's + lead is on the coil's + terminal"),
-            _q("supply_voltage", "V", "nominal voltage the machine's brake supply delivers "
-               "(circuit diagram), when it may differ from the coil's label", required=False),
+            _q("supply_voltage", "V", "nominal voltage the machine's supply delivers to "
+               "the coil (circuit diagram), when it may differ from the coil's label",
+               required=False),
             _q("ac_volts", "V", "AC volts rms at the rectifier input, for a rectified supply",
                required=False),
             _choice("rectifier_type", ("half-wave", "bridge"),
@@ -232,7 +233,7 @@ _SPECS = (
         "gap", "Air gap at three or more points",
         (
             _q("readings", "mm", "feeler-gauge readings around the circumference", many=True),
-            _q("nominal", "mm", "nominal air gap of a new brake"),
+            _q("nominal", "mm", "nominal air gap when new"),
             _q("min", "mm", "smallest allowed gap", required=False),
             _q("max", "mm", "largest allowed gap (wear limit)"),
             _q("spread", "mm", "largest allowed difference between readings", required=False,

@@ -1,9 +1,16 @@
 """Quantities as people type them: "24V", "0.006 in", "40 degC", "0.5mm2", "OL".
 
-pint does the unit arithmetic. It is imported on first use, and one
-``UnitRegistry`` is shared from then on, so importing :mod:`diagnose.physics`
-stays cheap. Every unusable value raises :class:`~diagnose.errors.InputError`
-naming the field and what was expected.
+The units the packs, the calculators and technicians commonly use (volts,
+ohms, millimetres, inches, degrees Celsius, ...: :data:`_TABLE`) are
+converted with a small table of factors to SI and powers of the base
+dimensions, so that a calculation or a pack's compilation needs no unit
+library. Anything else goes to pint, imported on first use, with one
+``UnitRegistry`` shared from then on; pint also writes every message about a
+value it cannot use (the table answers only what succeeds), and it is the
+reference the tests hold the table to (the same dimension and, to 1e-14
+relative, the same conversion for every unit in the table). Every unusable
+value raises :class:`~diagnose.errors.InputError` naming the field and what
+was expected.
 
 Temperatures in degC or degF are offset units: they are built with
 ``Quantity(value, "degC")`` and converted with ``.to()``, never multiplied,
@@ -25,6 +32,7 @@ from __future__ import annotations
 
 import math
 import re
+from dataclasses import dataclass
 from functools import lru_cache
 from typing import Any
 
@@ -93,6 +101,130 @@ _KINDS: tuple[tuple[str, str, str], ...] = (
     ("J/(kg*K)", "specific heat", "460 J/(kg*K)"),
     ("", "plain number", "0.1"),
 )
+
+
+# --- the table: the units in everyday use, without pint ----------------------------------------
+
+#: Powers of (length, mass, time, current, temperature), pint's base dimensions.
+_Dims = tuple[int, int, int, int, int]
+_PLAIN: _Dims = (0, 0, 0, 0, 0)
+_LENGTH: _Dims = (1, 0, 0, 0, 0)
+_VOLT: _Dims = (2, 1, -3, -1, 0)
+_OHM: _Dims = (2, 1, -3, -2, 0)
+_WATT: _Dims = (2, 1, -3, 0, 0)
+
+#: Unit name (as :func:`parse_unit` rebuilds it) -> (SI units in one of it, dimension).
+#: Sources: NIST SP 811 (2008) appendix B (1 in = 25.4 mm, 1 ft = 0.3048 m, rpm, degree);
+#: the SI prefixes; pint's default definitions for the names (thou = 0.001 in, "revolution"
+#: = 2 pi rad, "percent" = 0.01, radian and degree dimensionless as pint has them).
+_TABLE: dict[str, tuple[float, _Dims]] = {
+    **{name: (1.0, _LENGTH) for name in ("m", "meter")},
+    "mm": (1e-3, _LENGTH), "cm": (1e-2, _LENGTH), "km": (1e3, _LENGTH),
+    **{name: (1e-6, _LENGTH) for name in ("um", "\u00b5m", "\u03bcm")},
+    "in": (0.0254, _LENGTH), "inch": (0.0254, _LENGTH), "thou": (2.54e-5, _LENGTH),
+    "ft": (0.3048, _LENGTH),
+    "V": (1.0, _VOLT), "volt": (1.0, _VOLT), "mV": (1e-3, _VOLT), "kV": (1e3, _VOLT),
+    "A": (1.0, (0, 0, 0, 1, 0)), "mA": (1e-3, (0, 0, 0, 1, 0)),
+    "W": (1.0, _WATT), "mW": (1e-3, _WATT), "kW": (1e3, _WATT),
+    **{name: (1.0, _OHM) for name in ("ohm", "ohms", "\u03a9")},
+    **{name: (1e-3, _OHM) for name in ("mohm", "m\u03a9")},
+    **{name: (1e3, _OHM) for name in ("kohm", "k\u03a9")},
+    **{name: (1e6, _OHM) for name in ("Mohm", "megaohm", "M\u03a9")},
+    "K": (1.0, (0, 0, 0, 0, 1)), "kelvin": (1.0, (0, 0, 0, 0, 1)),
+    "kg": (1.0, (0, 1, 0, 0, 0)), "g": (1e-3, (0, 1, 0, 0, 0)),
+    "s": (1.0, (0, 0, 1, 0, 0)), "ms": (1e-3, (0, 0, 1, 0, 0)),
+    "min": (60.0, (0, 0, 1, 0, 0)), "h": (3600.0, (0, 0, 1, 0, 0)),
+    "rpm": (2 * math.pi / 60, (0, 0, -1, 0, 0)), "Hz": (1.0, (0, 0, -1, 0, 0)),
+    "revolution": (2 * math.pi, _PLAIN), "rad": (1.0, _PLAIN),
+    "degree": (math.pi / 180, _PLAIN), "percent": (0.01, _PLAIN),
+    "N": (1.0, (1, 1, -2, 0, 0)),
+    "J": (1.0, (2, 1, -2, 0, 0)), "kJ": (1e3, (2, 1, -2, 0, 0)),
+}
+#: Offset temperatures, only alone: name -> (kelvin per degree, kelvin at zero of the scale).
+#: NIST SP 811 (2008) B.9: t/degC = T/K - 273.15, t/degF = 1.8 t/degC + 32.
+_OFFSET: dict[str, tuple[float, float]] = {"degC": (1.0, 273.15),
+                                           "degF": (5 / 9, 273.15 - 32 * 5 / 9)}
+#: The metric lengths of the table (pint names them "...meter").
+_METRIC = frozenset({"m", "meter", "mm", "cm", "km", "um", "\u00b5m", "\u03bcm"})
+
+
+_TEMPERATURE: _Dims = (0, 0, 0, 0, 1)
+
+
+class _Unknown(Exception):
+    """A name outside the table: pint decides."""
+
+
+@dataclass(frozen=True)
+class _Scale:
+    """A unit as the table knows it: ``value * factor + offset`` is the value in SI units."""
+
+    factor: float
+    dims: _Dims
+    offset: float = 0.0
+    name: str = ""  # the text when it is one name of the table
+
+    def to(self, value: float, other: _Scale) -> float:
+        """``value`` in this unit expressed in ``other`` (the same dimension)."""
+        if self == other:
+            return value
+        if self.offset or other.offset:
+            return (value * self.factor + self.offset - other.offset) / other.factor
+        return value * (self.factor / other.factor)
+
+
+@lru_cache(maxsize=256)
+def _known(text: str) -> _Scale | None:
+    """The table's reading of a unit text, or None when pint must read it (or nobody can)."""
+    try:
+        rebuilt = parse_unit(text)
+    except ValueError:
+        return None
+    if not rebuilt:
+        return _Scale(1.0, _PLAIN)
+    if rebuilt in _OFFSET:
+        scale, offset = _OFFSET[rebuilt]
+        return _Scale(scale, _TEMPERATURE, offset, rebuilt)
+    try:
+        factor, dims, _ = _product(_tokens(rebuilt), 0)
+    except _Unknown:
+        return None
+    return _Scale(factor, dims, 0.0, rebuilt if rebuilt in _TABLE else "")
+
+
+_KELVIN = _Scale(1.0, _TEMPERATURE, 0.0, "K")
+
+
+def _product(tokens: list[tuple[str, str]], at: int) -> tuple[float, _Dims, int]:
+    """Factor and dimension of ``unit`` (the grammar of :func:`parse_unit`) from ``tokens[at]``."""
+    factor, dims, at = _power_of(tokens, at)
+    while at < len(tokens) and tokens[at][0] == "op":
+        sign = 1 if tokens[at][1] == "*" else -1
+        f, d, at = _power_of(tokens, at + 1)
+        factor = factor * f if sign > 0 else factor / f
+        dims = tuple(a + sign * b for a, b in zip(dims, d))  # type: ignore[assignment]
+    return factor, dims, at
+
+
+def _power_of(tokens: list[tuple[str, str]], at: int) -> tuple[float, _Dims, int]:
+    kind, value = tokens[at]
+    if kind == "name":
+        if value not in _TABLE:
+            raise _Unknown(value)
+        factor, dims = _TABLE[value]
+        at += 1
+    elif kind == "int":  # "1", as in "1 / s"
+        factor, dims, at = 1.0, _PLAIN, at + 1
+    else:  # "(" unit ")"
+        factor, dims, at = _product(tokens, at + 1)
+        at += 1
+    if at < len(tokens) and tokens[at][0] == "power":
+        at += 1
+        sign = -1 if tokens[at][0] == "sign" and tokens[at][1] == "-" else 1
+        at += tokens[at][0] == "sign"
+        power = sign * int(tokens[at][1])
+        factor, dims, at = factor ** power, tuple(d * power for d in dims), at + 1  # type: ignore
+    return factor, dims, at
 
 
 #: The sub-folder of the user's cache folder where pint keeps its parsed definitions.
@@ -357,6 +489,9 @@ def fits(unit_text: str, input_unit: str) -> bool:
     """
     if not isinstance(unit_text, str) or not isinstance(input_unit, str):
         return False
+    mine, wanted = _known(unit_text), _known(input_unit)
+    if mine is not None and wanted is not None:
+        return mine.dims == wanted.dims
     try:
         return bool(_units(unit_text).dimensionality == _units(input_unit).dimensionality)
     except ValueError:
@@ -384,6 +519,8 @@ def is_unit(text: str) -> bool:
     """Whether ``text`` is a unit alone, with no number ("mm", "in")."""
     if not isinstance(text, str) or len(text) > MAX_TEXT or not text.strip() or _NUMBER.match(text):
         return False
+    if _known(text) is not None:
+        return True
     try:
         _units(text)
     except ValueError:
@@ -432,6 +569,9 @@ def parse_quantity(
     if isinstance(value, str) and len(value) > MAX_TEXT:
         raise InputError(field, f"too long: {excerpt(value)}; a value has at most "
                                 f"{MAX_TEXT} characters")
+    quick = _table_quantity(value, default_unit, negative)
+    if quick is not None:
+        return quick
     if isinstance(value, bool) or value is None:
         raise InputError(field, f"expected {_expected(default_unit)}, got {value!r}")
     if is_open(value):
@@ -458,6 +598,45 @@ def parse_quantity(
 
 def _show(value: Any) -> str:
     return excerpt(value)
+
+
+def _table_quantity(value: Any, default_unit: str, negative: bool) -> float | None:
+    """:func:`parse_quantity` by the table for a usable value in units it knows, else None.
+
+    None is no verdict: pint reads the value again and says what is wrong with it.
+    """
+    target = _known(default_unit)
+    if target is None or isinstance(value, bool):
+        return None
+    if isinstance(value, (int, float)):
+        try:
+            number, unit = float(value), target
+        except OverflowError:
+            return None
+    elif isinstance(value, str) and not is_open(value):
+        match = _NUMBER.match(value)
+        if match is None or _LONG_EXPONENT.match(match.group(2)):
+            return None
+        number, unit_text = float(match.group(1)), match.group(2)
+        if unit_text in ("C", "F") and target.dims == _TEMPERATURE:
+            unit_text = "deg" + unit_text  # as _to_quantity reads it
+        found = _known(unit_text) if unit_text else target
+        if found is None:
+            return None
+        unit = found
+    else:
+        return None
+    if unit.dims != target.dims or not math.isfinite(number):
+        return None
+    magnitude = unit.to(number, target)
+    if not math.isfinite(magnitude):
+        return None
+    if target.dims == _TEMPERATURE:
+        if unit.to(number, _KELVIN) < 0:
+            return None
+    elif magnitude < 0 and not negative:
+        return None
+    return magnitude
 
 
 def _to_quantity(value: Any, target: Any, field: str, default_unit: str) -> Any:
@@ -505,6 +684,9 @@ def convert(value: float, from_unit: str, to_unit: str) -> float:
     >>> round(convert(0.007, "in", "mm"), 4)
     0.1778
     """
+    mine, wanted = _known(from_unit), _known(to_unit)
+    if mine is not None and wanted is not None and mine.dims == wanted.dims:
+        return float(mine.to(value, wanted))
     return float(registry().Quantity(value, _units(from_unit)).to(_units(to_unit)).magnitude)
 
 
@@ -588,7 +770,11 @@ def _small_length(pack_unit: str) -> bool:
     """Whether ``pack_unit`` is a metric length of at most an inch (mm, µm, cm)."""
     if not isinstance(pack_unit, str) or not fits(pack_unit, "mm"):
         return False
-    metric = str(_units(pack_unit)).endswith("meter")  # not in, thou: those are inches already
+    known = _known(pack_unit)
+    if known is not None and known.name:
+        metric = known.name in _METRIC
+    else:
+        metric = str(_units(pack_unit)).endswith("meter")  # not in, thou: those are inches already
     return metric and convert(1.0, pack_unit, "mm") <= _SMALL_LENGTH_MM * (1 + ROUNDING)
 
 

@@ -159,6 +159,13 @@ class Plan:
     supported: bool = True  # some answer points at a known cause
     fill_eco: Callable[[], None] | None = field(default=None, repr=False)
 
+    def with_action(self, action: Action) -> Plan:
+        """This plan with ``action`` (the same scores, shared; as ``dataclasses.replace``,
+        without its cost per field)."""
+        out = object.__new__(Plan)
+        out.__dict__.update(self.__dict__, action=action)
+        return out
+
     def ecos(self) -> np.ndarray:
         """The ECO of every check that can be proposed now (NaN for the others)."""
         if self.fill_eco is not None:

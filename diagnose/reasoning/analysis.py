@@ -24,7 +24,7 @@ each figure means.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import asdict, dataclass, field, replace
 from typing import Any
 
@@ -182,12 +182,16 @@ def analyze(
     effort: bool = True,
     runs: int | None = None,
     unknown_rate: float = UNKNOWN_RATE,
+    progress: Callable[[int, int], None] | None = None,
 ) -> PackAnalysis:
     """The knowledge analysis of ``model``: every complaint, or only ``complaint``.
 
     ``effort=False`` leaves out the simulator (the entropy bound is still
     given); ``runs`` is passed on to the simulator when it takes a number of runs;
     ``unknown_rate`` is the share of simulated calls with a cause outside the pack.
+    ``progress(done, total)`` is called as the work goes: after each simulated
+    call (``total``: complaints × runs × the two policies), or, without the
+    simulator, after each complaint.
 
     Raises:
         InputError: unknown complaint, ``unknown_rate`` outside [0, 1).
@@ -205,10 +209,13 @@ def analyze(
             note += f", {100 * unknown_rate:.0f}% of them with a cause outside the pack"
     else:
         note = NO_SIMULATOR if effort else "effort not asked for"
+    per = (runs or RUNS) * len(_POLICIES) if simulator is not None else 1
     parts = tuple(
         analyze_complaint(model, cid, threshold=threshold, simulator=simulator, note=note,
-                          runs=runs, unknown_rate=unknown_rate)
-        for cid in ids
+                          runs=runs, unknown_rate=unknown_rate,
+                          progress=None if progress is None
+                          else _offset(progress, n * per, len(ids) * per))
+        for n, cid in enumerate(ids)
     )
     causes = tuple(dict.fromkeys(c for cid in ids for c in model.tree_causes(cid)))
     isolated = {
@@ -242,15 +249,23 @@ def analyze_complaint(
     note: str = NO_SIMULATOR,
     runs: int | None = None,
     unknown_rate: float = UNKNOWN_RATE,
+    progress: Callable[[int, int], None] | None = None,
 ) -> ComplaintAnalysis:
-    """Fault tree, testability and effort of one complaint (see ``analyze``)."""
+    """Fault tree, testability and effort of one complaint (see ``analyze``).
+
+    ``progress(done, total)``: after each simulated call, or once at the end
+    without the simulator.
+    """
     sets = minimal_cut_sets(model, complaint)
     q = cause_probabilities(model)
     causes = model.tree_causes(complaint)
     bound = entropy_bound(model, complaint)
     eff = Effort(available=False, note=note, **bound)
     if simulator is not None:
-        eff = simulator(model, complaint, bound, runs, unknown_rate)
+        eff = simulator(model, complaint, bound, runs, unknown_rate) if progress is None \
+            else simulator(model, complaint, bound, runs, unknown_rate, progress=progress)
+    elif progress is not None:
+        progress(1, 1)
     return ComplaintAnalysis(
         complaint=complaint,
         title=model.complaints[complaint].title,
@@ -328,16 +343,26 @@ def complaint_model(model: Model, complaint: str) -> Model:
     )
 
 
+_POLICIES = ("planner", "chart")  # the policies the simulator compares
+
+
+def _offset(progress: Callable[[int, int], None], before: int, total: int,
+            ) -> Callable[[int, int], None]:
+    """``progress`` for one complaint's share of the work, after ``before`` units."""
+    return lambda done, _: progress(before + done, total)
+
+
 def _simulator() -> Any:
-    """A function (model, complaint, bound, runs, unknown_rate) -> Effort."""
+    """A function (model, complaint, bound, runs, unknown_rate, progress=None) -> Effort."""
     from diagnose.reasoning.simulate import simulate
 
     def run(model: Model, complaint: str, bound: dict[str, Any], runs: int | None,
-            unknown_rate: float = UNKNOWN_RATE) -> Effort:
+            unknown_rate: float = UNKNOWN_RATE,
+            progress: Callable[[int, int], None] | None = None) -> Effort:
         n = runs or RUNS
         try:
             report = simulate(complaint_model(model, complaint), runs=n, seed=SEED,
-                              policies=("planner", "chart"), unknown_rate=unknown_rate)
+                              policies=_POLICIES, unknown_rate=unknown_rate, progress=progress)
         except DiagnoseError as exc:
             return Effort(available=False, note=f"simulator failed: {exc}", **bound)
         planner, chart = report.policies["planner"], report.policies["chart"]

@@ -187,7 +187,7 @@ def standing_key(model: Model, evidence: Evidence, prerequisites: frozenset[str]
     ``needs``) are done or skipped.
     """
     state = unit_state(model, evidence) if state is None else state
-    done = frozenset(c for c in prerequisites if c in evidence.findings or c in evidence.unsure)
+    done = prerequisites.intersection(evidence.findings) | (prerequisites & evidence.unsure)
     return (evidence.mode, tuple(sorted(evidence.nameplate.items())), tuple(state.items()),
             done, prerequisites & evidence.skipped)
 
@@ -230,7 +230,7 @@ def mark_repairs(code: np.ndarray, evidence: Evidence, tables: Tables, p_fix: np
     for rid in evidence.repairs_skipped:
         if rid in tables.repair_index:
             code[tables.repair_index[rid]] = 5
-    for rid in evidence.repairs_done:
+    for rid, _ in evidence.repairs:  # the repairs done
         code[tables.repair_index[rid]] = 1
     return code
 

@@ -98,7 +98,7 @@ def explain_ranking(model: Model, evidence: Evidence, *, max_faults: int = 1,
     >>> x.cause, [f.label for f in x.factors][0]
     ('fuse_blown', 'fuse = blown')
     """
-    tables = tables_for(model, max_faults)
+    tables = tables_for(model, max_faults, evidence)  # the posterior's (pairs pruned or not)
     items = list(evidence_items(tables, evidence))
     with np.errstate(divide="ignore"):
         logs = [np.log(it.likelihood) for it in items]
@@ -200,7 +200,7 @@ def explain_check(model: Model, evidence: Evidence, check: str, *, max_faults: i
     pl = plan(model, evidence, max_faults=max_faults, settings=settings)
     row = next(r for r in pl.checks() if r.id == check)
     post = posterior(model, evidence, max_faults=max_faults)
-    tables = tables_for(model, max_faults)
+    tables = tables_for(model, max_faults, evidence)
     dense = tables.checks[check].dense(tables.n_hyp)
     effects = []
     for i, o in enumerate(chk.outcomes):

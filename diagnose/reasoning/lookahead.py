@@ -370,17 +370,16 @@ class Lookahead:
         checks = np.asarray(checks, dtype=np.int64)
         if len(checks) == 0:
             return np.zeros(0)
-        lay = self._lay
         if self._dense is not None:
-            groups, z, after = self._dense.ecr_after(checks)
-        else:
-            sel = np.zeros(lay.n_checks, dtype=bool)
-            sel[checks] = True
-            moved = _moved(lay, self._p, sel, self._split, self.order, assign=self._assign,
-                           success=self._success)
-            groups = np.flatnonzero(sel[lay.pair_check])
-            z = self._split.z[groups]
-            after = _ecr_after(lay, groups, self._split, moved, self.order, self._escalation)
+            return self._dense.eco(checks, check_cost, self._neutral)
+        lay = self._lay
+        sel = np.zeros(lay.n_checks, dtype=bool)
+        sel[checks] = True
+        moved = _moved(lay, self._p, sel, self._split, self.order, assign=self._assign,
+                       success=self._success)
+        groups = np.flatnonzero(sel[lay.pair_check])
+        z = self._split.z[groups]
+        after = _ecr_after(lay, groups, self._split, moved, self.order, self._escalation)
         if self._neutral is not None:
             after = np.where(self._neutral[groups], self._escalation, after)
         per_check = np.bincount(lay.pair_check[groups], weights=z * after,
@@ -407,7 +406,7 @@ def lookahead(tables: Tables, p: np.ndarray, cand: np.ndarray, check_cost: np.nd
     >>> none = np.full(t.n_hyp, -1)  # no repair serves any hypothesis
     >>> bits, eco, ecr = lookahead(t, p, np.array([0, 1]), t.check_minutes[[0, 1]], none,
     ...                            t.minutes, escalation=480.0)
-    >>> ecr, [float(x) for x in eco - t.check_minutes[[0, 1]]]  # an escalation, whatever is seen
+    >>> ecr, [round(float(x), 9) for x in eco - t.check_minutes[[0, 1]]]  # escalation anyway
     (480.0, [480.0, 480.0])
     """
     la = Lookahead(tables, p, cand, assign, repair_cost, escalation=escalation, method=method)

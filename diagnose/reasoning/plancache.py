@@ -11,12 +11,17 @@ cache lives beside it, one per :class:`~diagnose.reasoning.tables.Tables`
   are done or skipped (:func:`~diagnose.reasoning.eligibility.standing_key`);
   and, by that and the repairs that can be proposed, which repair serves
   each hypothesis;
+* the state of the unit (:func:`~diagnose.reasoning.unitstate.unit_state`)
+  by the steps done, each folded on from the state before its last step;
+* the indices of a set of causes (those the nameplate rules out), for the top
+  of the ranking;
 * the causes each answer points at (:func:`~diagnose.reasoning.openworld.supported_causes`,
   one finding at a time);
 * the outcomes that point at no cause still possible, per set of causes the
   nameplate rules out (one flag per (check, outcome) pair of the
   look-ahead's :class:`~diagnose.reasoning.lookahead.Layout`);
-* for the posterior (:meth:`PlanCache.posterior`): the causes the nameplate
+* for the posterior (:meth:`PlanCache.posterior`): the last one, for the same
+  evidence (the same object, an immutable value) asked again; the causes the nameplate
   rules out, by nameplate; the causes no available check observes, by
   nameplate, the checks skipped or answered "unsure" and the checks not for
   this unit answered all the same; the probabilities from the complaints
@@ -31,6 +36,8 @@ them.
 from __future__ import annotations
 
 import weakref
+from collections.abc import Mapping
+from types import MappingProxyType
 from typing import Any, NamedTuple
 
 import numpy as np
@@ -54,7 +61,7 @@ from diagnose.reasoning.openworld import (
 from diagnose.reasoning.posterior import Posterior, complaints_only, settle
 from diagnose.reasoning.repair_cost import assign_repairs
 from diagnose.reasoning.tables import Tables
-from diagnose.reasoning.unitstate import unit_state
+from diagnose.reasoning.unitstate import apply_step, unit_state
 
 __all__ = ["MEMO", "MEMO_NUMBERS", "PlanCache", "Standings", "plan_cache"]
 
@@ -104,11 +111,13 @@ class PlanCache:
         self._support: dict[Any, frozenset[str]] = {}
         self._neutral: dict[frozenset[str], np.ndarray] = {}
         self._assign: dict[Any, np.ndarray] = {}
-        self._states: dict[tuple[tuple[str, str], ...], dict[str, str]] = {}
+        self._states: dict[tuple[tuple[str, str], ...], Mapping[str, str]] = {}
         self._excluded: dict[Any, frozenset[str]] = {}
         self._hidden: dict[Any, frozenset[str]] = {}
         self._capped: dict[frozenset[str], np.ndarray] = {}
         self._baseline: dict[Any, np.ndarray] = {}
+        self._indices: dict[frozenset[str], np.ndarray] = {}
+        self._last: tuple[Evidence, Posterior] | None = None  # the last posterior and its evidence
 
     def posterior(self, model: Model, evidence: Evidence) -> Posterior:
         """The posterior, as :func:`~diagnose.reasoning.posterior.posterior` gives it.
@@ -117,9 +126,12 @@ class PlanCache:
         the open-world rule), with what depends only on the nameplate, the
         checks no longer available and the complaints taken from the memos.
         """
+        last = self._last
+        if last is not None and last[0] is evidence:  # asked again for the same value
+            return last[1]
         tables = self._tables()
         assert tables is not None
-        plate = tuple(sorted(evidence.nameplate.items()))
+        plate = tuple(sorted(evidence.nameplate.items())) if evidence.nameplate else ()
         excluded = self._excluded.get(plate)
         if excluded is None:
             excluded = _remember(self._excluded, plate, excluded_causes(model, evidence))
@@ -151,8 +163,10 @@ class PlanCache:
                 _remember(self._baseline, key, found, self._per_hyp)
             return found
 
-        return settle(tables, evidence, excluded, hidden=hidden, capped=capped,
+        post = settle(tables, evidence, excluded, hidden=hidden, capped=capped,
                       baseline=baseline)
+        self._last = (evidence, post)
+        return post
 
     def standings(self, model: Model, evidence: Evidence, p: np.ndarray) -> Standings:
         """The checks' and the repairs' standing now, P(fix) of each repair, and the repair
@@ -164,10 +178,7 @@ class PlanCache:
         """
         tables = self._tables()
         assert tables is not None
-        state = self._states.get(evidence.steps)
-        if state is None:
-            state = _remember(self._states, evidence.steps, unit_state(model, evidence))
-        key = standing_key(model, evidence, self.prerequisites, state)
+        key = standing_key(model, evidence, self.prerequisites, self.unit_state(model, evidence))
         checks = self._checks.get(key)
         if checks is None:
             checks = _remember(self._checks, key, _frozen(check_base(model, evidence, tables)))
@@ -187,6 +198,22 @@ class PlanCache:
         return Standings(checks, mark_answered(checks.code, evidence, tables), repairs, rcode,
                          p_fix, assign)
 
+    def unit_state(self, model: Model, evidence: Evidence) -> Mapping[str, str]:
+        """:func:`~diagnose.reasoning.unitstate.unit_state`, memoised by the steps done
+        (read only: the value is shared)."""
+        steps = evidence.steps
+        state = self._states.get(steps)
+        if state is None:
+            before = self._states.get(steps[:-1]) if steps else None
+            if before is None:
+                state = MappingProxyType(unit_state(model, evidence))
+            else:  # the fold, one step on from the state before the last step
+                after = dict(before)
+                apply_step(model, after, steps[-1])
+                state = before if after == before else MappingProxyType(after)
+            _remember(self._states, steps, state)
+        return state
+
     def any_support(self, model: Model, evidence: Evidence, excluded: frozenset[str]) -> bool:
         """Whether some answer points at a known cause the nameplate allows.
 
@@ -201,6 +228,18 @@ class PlanCache:
             if causes - excluded:
                 return True
         return False
+
+    def cause_indices(self, causes: frozenset[str]) -> np.ndarray:
+        """The indices of ``causes`` in the tables' causes (those it has)."""
+        out = self._indices.get(causes)
+        if out is None:
+            tables = self._tables()
+            assert tables is not None
+            out = np.array([tables.cause_index[c] for c in causes if c in tables.cause_index],
+                           dtype=np.int64)
+            out.flags.writeable = False
+            _remember(self._indices, causes, out)
+        return out
 
     def neutral(self, model: Model, excluded: frozenset[str]) -> np.ndarray:
         """For each (check, outcome) pair, check by check in the tables' order: True where

@@ -33,8 +33,6 @@ an outcome is an escalation.
 
 from __future__ import annotations
 
-from dataclasses import replace
-
 import numpy as np
 
 from diagnose.errors import InputError
@@ -51,7 +49,7 @@ from diagnose.reasoning.lookahead import Lookahead, lookahead
 from diagnose.reasoning.lookahead_reference import lookahead_reference
 from diagnose.reasoning.nameplate import nameplate_value, only_if_matches
 from diagnose.reasoning.openworld import SUPPORT_MARGIN, any_support
-from diagnose.reasoning.plancache import plan_cache
+from diagnose.reasoning.plancache import PlanCache, plan_cache
 from diagnose.reasoning.policy import DEFAULT, Settings, decide
 from diagnose.reasoning.posterior import Posterior, RankEntry, posterior
 from diagnose.reasoning.repair_cost import (
@@ -65,7 +63,7 @@ from diagnose.reasoning.tables import Tables, tables_for
 __all__ = ["DEFAULT", "Action", "CheckScore", "ChecksTable", "Plan", "RepairScore", "Settings",
            "assign_repairs", "check_status", "checks_table", "expected_cost_of_repair",
            "lookahead", "lookahead_reference", "missing_prerequisites", "nameplate_value",
-           "next_action", "only_if_matches", "plan", "repair_order", "sequence_cost"]
+           "next_action", "only_if_matches", "plan", "repair_order", "sequence_cost", "top_entry"]
 
 
 def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
@@ -89,17 +87,19 @@ def plan(model: Model, evidence: Evidence, *, max_faults: int = 1,
     """
     if evidence.mode not in MODES:
         raise InputError("mode", f"expected site or phone, got {evidence.mode!r}")
-    tables = tables_for(model, max_faults)
-    if post is None:
-        post = posterior(model, evidence, max_faults=max_faults) if reference \
-            else plan_cache(tables).posterior(model, evidence)
-    weigh = _weigh_reference if reference else _weigh
-    result = weigh(model, evidence, tables, post, settings)
-    return replace(result, action=decide(model, evidence, post, settings, result))
+    tables = tables_for(model, max_faults, evidence)  # pairs pruned at scale
+    if reference:
+        post = posterior(model, evidence, max_faults=max_faults) if post is None else post
+        result = _weigh_reference(model, evidence, tables, post, settings)
+    else:
+        cache = plan_cache(tables)
+        post = cache.posterior(model, evidence) if post is None else post
+        result = _weigh(model, evidence, tables, post, settings, cache=cache)
+    return result.with_action(decide(model, evidence, post, settings, result))
 
 
 def _weigh(model: Model, evidence: Evidence, tables: Tables, post: Posterior,
-           settings: Settings) -> Plan:
+           settings: Settings, *, cache: PlanCache) -> Plan:
     """The scores of a plan, fast: memos per model, the ECO only of checks that can be chosen.
 
     A check can be chosen when it is available and informative (expected
@@ -107,45 +107,50 @@ def _weigh(model: Model, evidence: Evidence, tables: Tables, post: Posterior,
     available checks is computed when the plan's :meth:`~Plan.ecos` is asked.
     """
     p = post.p
-    cache = plan_cache(tables)
     st = cache.standings(model, evidence, p)
     checks, repairs, p_fix, assign = st.checks, st.repairs, st.p_fix, st.assign
     code, cmin, rmin = st.check_code, checks.minutes, repairs.minutes
-    cand = np.flatnonzero(code == 0)
+    cand = (code == 0).nonzero()[0]
     supported = cache.any_support(model, evidence, post.excluded)
     escalation = settings.escalation_minutes
     la = Lookahead(tables, p, cand, assign, rmin, escalation=escalation,
                    neutral=None if supported else cache.neutral(model, post.excluded))
     bits = np.zeros(len(code))
-    eco = np.full(len(code), np.nan)
+    eco = np.empty(len(code))
+    eco.fill(np.nan)
     bits[cand] = la.bits
     chosen = la.bits >= settings.min_bits
-    now, later = cand[chosen], cand[~chosen]
+    now = cand[chosen]
     eco[now] = la.eco(now, cmin[now])
 
     def fill() -> None:
+        later = cand[~chosen]
         if len(later) and np.isnan(eco[later[0]]):
             eco[later] = la.eco(later, cmin[later])
 
-    return Plan(Action("done"), top_entry(post), la.ecr_now, model, tables.check_ids,
+    top = top_entry(post, cache if post.tables is tables else None)
+    return Plan(Action("done"), top, la.ecr_now, model, tables.check_ids,
                 cmin, bits, eco, code, checks.needs, checks.blocked, tables.repair_ids, rmin,
                 p_fix, tables.success * p_fix, st.repair_code, repairs.needs, repairs.blocked,
                 supported, fill_eco=fill)
 
 
-def top_entry(post: Posterior) -> RankEntry:
+def top_entry(post: Posterior, cache: PlanCache | None = None) -> RankEntry:
     """The top of the posterior's ranking, ``post.ranking(limit=1).top``, without the ranking.
 
     When the top value is shared (an exact tie), the ranking itself decides.
+    ``cache``: the plan cache of ``post.tables``, when the caller has it.
     """
     t = post.tables
     # one fault: hypothesis i is cause i, and "unknown" comes last, as in the ranking
-    values = post.p.copy() if t.max_faults == 1 else \
+    values = post.p if t.max_faults == 1 else \
         np.concatenate([post.causes(), [post.unknown]])
     if post.excluded:
-        gone = [t.cause_index[c] for c in post.excluded if c in t.cause_index]
-        values[gone] = -np.inf
-    i = int(np.argmax(values))
+        gone = (cache or plan_cache(t)).cause_indices(post.excluded)
+        if len(gone):
+            values = values.copy()
+            values[gone] = -np.inf
+    i = int(values.argmax())
     if np.count_nonzero(values == values[i]) > 1:
         return post.ranking(limit=1).top
     model = t.model

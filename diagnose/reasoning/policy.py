@@ -109,8 +109,10 @@ def decide(model: Model, evidence: Evidence, post: Posterior, settings: Settings
             return _visit(model, evidence, post, f"{_title(model, top.cause)} is likely "
                           f"({percent(top.p)}); it is repaired on site")
     informative = (pl.check_code == 0) & (pl.check_bits >= settings.min_bits)
-    if informative.any():
-        best_c = _best(pl, informative)
+    choosable = informative.nonzero()[0]
+    if len(choosable):
+        best_c = best_check(choosable, pl.check_eco, pl.check_bits, pl.check_minutes,
+                            pl.check_ids)
         if cheaper(pl.check_eco[best_c], pl.ecr):
             return _check_action(pl, best_c, _phone_question(model, post, pl.check_ids[best_c])
                                  if phone else "observing first saves minutes")
@@ -189,7 +191,7 @@ def _unsupported(model: Model, evidence: Evidence, post: Posterior, settings: Se
 
 def _best(pl: Plan, among: np.ndarray) -> int:
     """The check of ``among`` (a mask) with the least ECO; ties go by the rule of ``ties``."""
-    return best_check(np.flatnonzero(among), pl.check_eco, pl.check_bits, pl.check_minutes,
+    return best_check(among.nonzero()[0], pl.check_eco, pl.check_bits, pl.check_minutes,
                       pl.check_ids)
 
 

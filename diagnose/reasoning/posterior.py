@@ -213,19 +213,22 @@ class Posterior:
             entries.append(RankEntry(cid, title, float(values[i])))
         hyps: tuple[RankEntry, ...] = ()
         if t.max_faults > 1:
-            horder = np.argsort(-self.p, kind="stable")[: (limit or 10)]
-            hyps = tuple(RankEntry(t.label(h), t.label(h).replace("+", " and "), float(self.p[h]))
-                         for h in horder)
+            hyps = tuple(RankEntry(label, label.replace("+", " and "), q)
+                         for label, q in t.top_hypotheses(self.p, limit or 10))
         return Ranking(tuple(entries), hyps, t.max_faults, self.contradiction, model.id)
 
 
 def posterior(model: Model, evidence: Evidence, *, max_faults: int = 1,
-              open_world: bool = True) -> Posterior:
+              open_world: bool = True, prune: bool | None = None) -> Posterior:
     """The posterior of the model given ``evidence``: Bayes' rule, then the open-world rule.
 
     With ``open_world=False`` it is the exact Bayesian posterior of the model
     (what the reference tests compare with brute force and pgmpy); the
     nameplate's exclusions are part of it (a prior of 0).
+
+    With two faults, a large pack's pairs are pruned to those the evidence
+    touches (``diagnose.reasoning.tables``, "Pruned pairs"; ``prune`` True
+    or False forces it either way): the same posterior, to rounding.
 
     Raises:
         InputError: unknown ids in the evidence, or a bad ``max_faults``.
@@ -237,7 +240,7 @@ def posterior(model: Model, evidence: Evidence, *, max_faults: int = 1,
     >>> posterior(m, e).top()[0]
     'fuse_blown'
     """
-    tables = tables_for(model, max_faults)
+    tables = tables_for(model, max_faults, evidence, prune=prune)
     excluded = excluded_causes(model, evidence)
     return settle(tables, evidence, excluded,
                   hidden=lambda: unobservable_causes(model, evidence) if open_world

@@ -24,6 +24,12 @@ Which runs are unknown, and their complaints, come from a second stream
 (``[seed, 7]``): with ``unknown_rate=0`` every draw and figure is the same as
 without unknown runs, and with a higher rate the known runs keep their draws.
 
+Each run depends on its own draws only, so the runs can be split into parts
+(:meth:`Draws.part`) and run apart, for example in several processes
+(``simulate(..., executor=...)``, ``diagnose simulate --jobs N``): the report
+is the same, figure for figure. A ``progress(done, total)`` callback, passed
+in by the command that draws a bar, is told as the runs are done.
+
 Policies:
 
 * ``planner``: :func:`diagnose.reasoning.planner.next_action` at every step;
@@ -71,8 +77,9 @@ from __future__ import annotations
 
 import bisect
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -80,21 +87,28 @@ from diagnose.errors import InputError
 from diagnose.kb.model import UNKNOWN_CAUSE, Model
 from diagnose.reasoning.evidence import Evidence
 from diagnose.reasoning.nameplate import excluded_causes
-from diagnose.reasoning.plancache import plan_cache
+from diagnose.reasoning.plancache import PlanCache, plan_cache
 from diagnose.reasoning.planner import (
     DEFAULT,
     Settings,
     missing_prerequisites,
     next_action,
     only_if_matches,
+    top_entry,
 )
 from diagnose.reasoning.tables import tables_for
-from diagnose.reasoning.unitstate import setup_minutes, unit_state
+from diagnose.reasoning.unitstate import setup_minutes
+
+if TYPE_CHECKING:
+    from concurrent.futures import Executor
 
 POLICIES = ("planner", "chart", "listing", "random")  # run when none are named
 ALL_POLICIES = (*POLICIES, "reference")
 PLANNERS = ("planner", "reference")
 _UNKNOWN_STREAM = 7  # the unknown runs come from np.random.default_rng([seed, 7])
+
+#: ``progress(done, total)``: called as runs are done (see :func:`simulate`).
+Progress = Callable[[int, int], None]
 
 
 @dataclass(frozen=True, eq=False)
@@ -115,6 +129,13 @@ class Draws:
     def is_unknown(self, i: int) -> bool:
         """Whether run ``i`` has a true cause outside the pack."""
         return bool(self.unknown) and self.unknown[i]
+
+    def part(self, start: int, stop: int) -> Draws:
+        """The draws of runs ``start`` to ``stop`` (not included): a run depends on its own
+        draws only, so it goes the same way in a part as in the whole."""
+        return Draws(self.causes[start:stop], self.complaints[start:stop],
+                     self.answer[start:stop], self.cure[start:stop], self.order[start:stop],
+                     self.unknown[start:stop])
 
 
 def draw_cases(model: Model, runs: int, seed: int, *, unknown_rate: float = 0.0) -> Draws:
@@ -261,7 +282,8 @@ class _Run:
 
     def __init__(self, model: Model, draws: Draws, i: int, noise: float,
                  check_pos: dict[str, int], repair_pos: dict[str, int], *,
-                 cum: dict[tuple[str, str | None], list[float]] | None = None) -> None:
+                 cum: dict[tuple[str, str | None], list[float]] | None = None,
+                 cache: PlanCache | None = None) -> None:
         self.model, self.draws, self.i, self.noise = model, draws, i, noise
         self.cause = draws.causes[i]
         self.unknown = draws.is_unknown(i)
@@ -276,6 +298,7 @@ class _Run:
         self.unknown_top = False  # "unknown" led the ranking when the first repair was chosen
         self.steps: list[str] = []
         self._cum = {} if cum is None else cum  # shared by the runs of a policy
+        self._cache = cache or plan_cache(tables_for(model))  # the state of the unit, memoised
 
     def answer(self, cid: str, free: bool = False) -> str:
         """Answer ``cid`` from the draws; it costs its minutes and any setup of the unit's state.
@@ -284,7 +307,8 @@ class _Run:
         """
         chk = self.model.checks[cid]
         if not free and chk.requires:
-            self.minutes += setup_minutes(self.model, unit_state(self.model, self.evidence),
+            self.minutes += setup_minutes(self.model,
+                                          self._cache.unit_state(self.model, self.evidence),
                                           chk.requires)
         u = self.draws.answer[self.i, self.check_pos[cid]]
         listed = not self.unknown and self.cause in chk.effects
@@ -359,8 +383,10 @@ def _planner(run: _Run, settings: Settings, max_faults: int, limit: int,
 
 
 def _top(model: Model, evidence: Evidence, max_faults: int) -> str:
-    """The top of the posterior ranking (the planner's memoised posterior: the same values)."""
-    return plan_cache(tables_for(model, max_faults)).posterior(model, evidence).top()[0]
+    """The top of the posterior ranking (the planner's memoised posterior and its top entry,
+    :func:`~diagnose.reasoning.planner.top_entry`: the same values)."""
+    tables = tables_for(model, max_faults, evidence)
+    return top_entry(plan_cache(tables).posterior(model, evidence)).cause
 
 
 def chart_order(model: Model, complaint: str, *, listing: bool = False) -> tuple[str, ...]:
@@ -443,34 +469,82 @@ def entropy_bound(model: Model) -> tuple[float, float]:
 
 def simulate(model: Model, *, runs: int, seed: int, noise: float = 0.0,
              policies: tuple[str, ...] = POLICIES, settings: Settings = DEFAULT,
-             max_faults: int = 1, unknown_rate: float = 0.0) -> SimulationReport:
+             max_faults: int = 1, unknown_rate: float = 0.0,
+             progress: Progress | None = None, executor: Executor | None = None,
+             chunk: int = 50) -> SimulationReport:
     """Run ``runs`` simulated calls with each policy on the same draws.
 
     ``unknown_rate`` is the share of calls whose true cause is outside the
     pack (see the module docstring); 0 gives exactly the figures of a run
     without unknown causes. ``policies`` may name any of ``ALL_POLICIES``.
 
+    ``progress(done, total)`` is called after each run (``total`` = runs ×
+    policies). With ``executor`` (a ``concurrent.futures`` executor, for
+    example a process pool) the runs of each policy go to it in parts of
+    ``chunk`` runs, and ``progress`` is called after each part. Every run
+    depends on its own draws only (all drawn from ``seed`` first), so the
+    report is the same however the runs are split.
+
     Raises:
-        InputError: unknown policy, ``noise`` or ``unknown_rate`` outside [0, 1), runs < 1.
+        InputError: unknown policy, ``noise`` or ``unknown_rate`` outside [0, 1), runs < 1,
+            ``chunk`` < 1.
     """
     bad = [p for p in policies if p not in ALL_POLICIES]
     if bad:
         raise InputError("policy", f"unknown policy {bad[0]!r}; known: {', '.join(ALL_POLICIES)}")
     if not 0.0 <= noise < 1.0:
         raise InputError("noise", f"expected a probability below 1, got {noise}")
+    if chunk < 1:
+        raise InputError("chunk", f"expected at least 1 run per part, got {chunk}")
     draws = draw_cases(model, runs, seed, unknown_rate=unknown_rate)
-    reports = {}
-    for policy in policies:
-        results = run_policy(model, draws, policy, noise=noise, settings=settings,
-                             max_faults=max_faults)
-        reports[policy] = policy_report(policy, results, unknown_rate)
+    options: dict[str, Any] = {"noise": noise, "settings": settings, "max_faults": max_faults}
+    if executor is None:
+        results = {}
+        for n, policy in enumerate(policies):
+            step = None if progress is None else _offset(progress, n * runs, len(policies) * runs)
+            results[policy] = run_policy(model, draws, policy, progress=step, **options)
+    else:
+        results = _run_parts(model, draws, policies, executor, chunk=chunk, progress=progress,
+                             options=options)
+    reports = {policy: policy_report(policy, results[policy], unknown_rate)
+               for policy in policies}
     bound, bits = entropy_bound(model)
     return SimulationReport(model.id, runs, seed, noise, bound, bits, reports, unknown_rate)
 
 
+def _offset(progress: Progress, before: int, total: int) -> Progress:
+    """``progress`` for one policy's runs: ``before`` runs were done before them."""
+    return lambda done, _: progress(before + done, total)
+
+
+def _run_parts(model: Model, draws: Draws, policies: tuple[str, ...], executor: Executor, *,
+               chunk: int, progress: Progress | None, options: dict[str, Any],
+               ) -> dict[str, list[RunResult]]:
+    """Every policy's runs, in parts of ``chunk`` runs on ``executor``, put back in order."""
+    from concurrent.futures import as_completed
+
+    runs = len(draws.causes)
+    parts = [(policy, start) for policy in policies for start in range(0, runs, chunk)]
+    futures = {executor.submit(run_policy, model, draws.part(start, start + chunk), policy,
+                               **options): (policy, start) for policy, start in parts}
+    done_parts: dict[tuple[str, int], list[RunResult]] = {}
+    total, done = runs * len(policies), 0
+    for fut in as_completed(futures):
+        key = futures[fut]
+        done_parts[key] = fut.result()
+        done += len(done_parts[key])
+        if progress is not None:
+            progress(done, total)
+    return {policy: [r for start in range(0, runs, chunk) for r in done_parts[policy, start]]
+            for policy in policies}
+
+
 def run_policy(model: Model, draws: Draws, policy: str, *, noise: float = 0.0,
-               settings: Settings = DEFAULT, max_faults: int = 1) -> list[RunResult]:
+               settings: Settings = DEFAULT, max_faults: int = 1,
+               progress: Progress | None = None) -> list[RunResult]:
     """Every run of ``draws`` under ``policy`` (one of ``ALL_POLICIES``), in order.
+
+    ``progress(done, total)`` is called after each run.
 
     Raises:
         InputError: unknown policy.
@@ -482,23 +556,27 @@ def run_policy(model: Model, draws: Draws, policy: str, *, noise: float = 0.0,
     limit = len(model.checks) + len(model.repairs) + 5
     charts: dict[str, tuple[str, ...]] = {}
     cum: dict[tuple[str, str | None], list[float]] = {}
+    cache = plan_cache(tables_for(model, max_faults if policy in PLANNERS else 1))
     results = []
-    for i in range(len(draws.causes)):
-        run = _Run(model, draws, i, noise, check_pos, repair_pos, cum=cum)
+    total = len(draws.causes)
+    for i in range(total):
+        run = _Run(model, draws, i, noise, check_pos, repair_pos, cum=cum, cache=cache)
         k = draws.complaints[i]
         if policy in PLANNERS:
             _planner(run, settings, max_faults, limit, reference=policy == "reference")
             results.append(run.result(settings.escalation_minutes, max_faults))
-            continue
-        if k not in charts:
-            charts[k] = chart_order(model, k, listing=policy == "listing")
-        if policy in ("chart", "listing"):
-            _chart(run, charts[k])
         else:
-            base = charts[k]
-            shuffle = np.argsort(draws.order[i, [check_pos[c] for c in base]])
-            _chart(run, tuple(base[j] for j in shuffle))
-        results.append(run.result(settings.escalation_minutes, 1))
+            if k not in charts:
+                charts[k] = chart_order(model, k, listing=policy == "listing")
+            if policy in ("chart", "listing"):
+                _chart(run, charts[k])
+            else:
+                base = charts[k]
+                shuffle = np.argsort(draws.order[i, [check_pos[c] for c in base]])
+                _chart(run, tuple(base[j] for j in shuffle))
+            results.append(run.result(settings.escalation_minutes, 1))
+        if progress is not None:
+            progress(i + 1, total)
     return results
 
 

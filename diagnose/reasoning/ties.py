@@ -37,7 +37,8 @@ BITS_ATOL = 1e-12  # bits this close are equal even near 0
 
 def cheaper(a: float | np.ndarray, b: float | np.ndarray) -> bool | np.ndarray:
     """Whether expected cost ``a`` is lower than ``b`` by more than the tolerance."""
-    if np.ndim(a) == 0 and np.ndim(b) == 0:
+    # (numpy's float64 is a float: the common case skips np.ndim)
+    if (isinstance(a, float) and isinstance(b, float)) or (np.ndim(a) == 0 and np.ndim(b) == 0):
         return float(b) - float(a) > TIE_RTOL * abs(float(a))
     return np.asarray(b) - a > TIE_RTOL * np.abs(a)
 
@@ -52,23 +53,24 @@ def best_check(idx: np.ndarray, eco: np.ndarray, bits: np.ndarray, minutes: np.n
     """The check of ``idx`` that goes first: least ECO, then most bits, fewest minutes, id.
 
     ``eco``, ``bits`` and ``minutes`` are indexed by check, as ``ids``;
-    ``idx`` must not be empty.
+    ``idx`` must not be empty. (A few dozen checks at most: plain floats,
+    the same arithmetic as :func:`by_preference`.)
     """
     idx = np.asarray(idx)
-    e = eco[idx]
-    first = int(e.argmin())
-    least = float(e[first])
-    near = _same(least, e)
-    if np.count_nonzero(near) == 1:  # no tie: the least
-        return int(idx[first])
-    tie = idx[near]
+    e = eco[idx].tolist()
+    least = min(e)
+    within = TIE_RTOL * abs(least) + 0.0  # as _same(least, ...)
+    tie = [i for i, x in zip(idx.tolist(), e) if abs(x - least) <= within]
     if len(tie) > 1:
-        b = bits[tie]
-        tie = tie[_same(float(b.max()), b, BITS_ATOL)]
+        b = bits[tie].tolist()
+        most = max(b)
+        within = TIE_RTOL * abs(most) + BITS_ATOL
+        tie = [i for i, x in zip(tie, b) if abs(x - most) <= within]
     if len(tie) > 1:
-        m = minutes[tie]
-        tie = tie[m == m.min()]
-    return int(min(tie, key=lambda i: ids[i]))
+        m = minutes[tie].tolist()
+        fewest = min(m)
+        tie = [i for i, x in zip(tie, m) if x == fewest]
+    return min(tie, key=lambda i: ids[i])
 
 
 def by_preference(idx: np.ndarray, eco: np.ndarray, bits: np.ndarray, minutes: np.ndarray,

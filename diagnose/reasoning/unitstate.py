@@ -48,21 +48,27 @@ def unit_state(model: Model, evidence: Evidence) -> dict[str, str]:
     state = initial_state(model)
     if not state:
         return state
-    for kind, ident in evidence.steps:
-        if kind == "check":
-            chk = model.checks.get(ident)
-            if chk is not None:
-                _update(state, chk.requires, model)
-                _update(state, chk.leaves, model)
-        elif kind == "repair":
-            rep = model.repairs.get(ident)
-            if rep is not None:
-                _update(state, rep.requires, model)
-                _update(state, rep.leaves or initial_state(model), model)
-        elif kind == "state" and "=" in ident:
-            var, value = ident.split("=", 1)
-            _update(state, {var: value}, model)
+    for step in evidence.steps:
+        apply_step(model, state, step)
     return state
+
+
+def apply_step(model: Model, state: dict[str, str], step: tuple[str, str]) -> None:
+    """Fold one step of ``Evidence.steps`` into ``state``, in place (see :func:`unit_state`)."""
+    kind, ident = step
+    if kind == "check":
+        chk = model.checks.get(ident)
+        if chk is not None:
+            _update(state, chk.requires, model)
+            _update(state, chk.leaves, model)
+    elif kind == "repair":
+        rep = model.repairs.get(ident)
+        if rep is not None:
+            _update(state, rep.requires, model)
+            _update(state, rep.leaves or initial_state(model), model)
+    elif kind == "state" and "=" in ident:
+        var, value = ident.split("=", 1)
+        _update(state, {var: value}, model)
 
 
 def _update(state: dict[str, str], new: Mapping[str, str], model: Model) -> None:

@@ -91,11 +91,11 @@ def history(journal_path: Any, identity: dict[str, str], model: Any, session: An
     diagnosis.
     """
     from diagnose.errors import DiagnoseError
-    from diagnose.journal.store import Journal
+    from diagnose.journal.stores import open_journal
 
     now = session.events[-1].time if session.events else ""
     try:
-        with Journal(journal_path, readonly=True) as journal:
+        with open_journal(journal_path, readonly=True) as journal:
             return jobs_on_unit(journal, identity, model, now=now, exclude=session.session_id)
     except DiagnoseError:
         return []

@@ -560,7 +560,8 @@ class Shell:
                          self.card_cautions(chk.id), why, instructions if shown else None,
                          outcomes, self._bare_unit_words(chk),
                          "Ask the caller" if phone else "Check",
-                         needs=() if phone else self.session.setup_for(chk.id), many=_many(chk))
+                         needs=() if phone else self.session.setup_for(chk.id), many=_many(chk),
+                         readings=self._reading_words(chk))
 
     def _bare_unit_words(self, chk: Check) -> str:
         """The unit a bare number of this check's reading is taken in, for its card ("" none)."""
@@ -570,6 +571,15 @@ class Shell:
 
         bare = bare_unit(chk.measurement.unit, self.units)
         return "inches" if bare == "in" and bare != chk.measurement.unit else unit_text(bare)
+
+    def _reading_words(self, chk: Check) -> tuple[tuple[str, str], ...]:
+        """The named readings of the check's card, each with the unit of a bare number."""
+        m = chk.measurement
+        if m is None or not m.also:
+            return ()
+        from diagnose.physics.units import bare_unit
+
+        return tuple((r.name, unit_text(bare_unit(r.unit, self.units))) for r in m.readings)
 
     def _why_check(self, chk: Check, action: Action | None) -> str:
         phone = self.session.mode == "phone"
@@ -697,6 +707,8 @@ class Shell:
             named = [o for o, _ in outcomes if o.lower() == low]
             if named:  # a verdict typed by name ("ok", "open")
                 return s.answer(check_id, named[0])
+            if chk.measurement.also and "=" in text:  # named readings, all at once
+                return s.answer(check_id, preferred_answer(chk, text, self.units))
             if not _READING.match(text):
                 raise InputError(check_id, f"{text!r} is not a reading (a number with its unit, "
                                  f"such as 3.2 {chk.measurement.unit}, or OL for open), nor a "
@@ -709,14 +721,64 @@ class Shell:
                 raise InputError(exc.field, f"{exc.message}{more} (or unsure, skip, help)"
                                  ) from None
 
-        finding = self.ask(msg, parse, answers=answers,
-                           empty="type the answer, unsure or skip (Tab completes; help "
-                           "lists the commands)")
+        if measured and chk.measurement.also:  # several named readings: one prompt each
+            finding = self._named_readings(chk, parse, answers)
+        else:
+            finding = self.ask(msg, parse, answers=answers,
+                               empty="type the answer, unsure or skip (Tab completes; help "
+                               "lists the commands)")
         self._current = None
         if finding is None:
             self.say(f"  skipped {check_id}: another check is proposed", style="dim")
             return
         self.show_finding(chk, finding)
+
+    def _named_readings(self, chk: Check, parse: Callable[[str], Any],
+                        answers: Sequence[Choice]) -> Any:
+        """Ask each named reading of ``chk`` in turn (volts, then the gap), then answer it.
+
+        The first prompt also takes them all at once (``gap=0.6 mm volts=23.5 V``),
+        an outcome by name, unsure or skip; a later one takes a reading, or
+        unsure or skip for the whole check.
+        """
+        from diagnose.physics import units as u
+        from diagnose.physics.units import bare_unit
+        from diagnose.service import preferred_answer
+
+        m = chk.measurement
+        assert m is not None
+        got: dict[str, str] = {}
+        done = object()
+
+        def one(name: str, unit: str, last: bool) -> Callable[[str], Any]:
+            def take(text: str) -> Any:
+                low = text.lower()
+                if low in ("skip", "unsure") or "=" in text or not _READING.match(text):
+                    if got and "=" in text:
+                        raise InputError(chk.id, f"type the {name} reading alone, or unsure "
+                                                 "or skip")
+                    return parse(text)
+                typed = u.preferred_reading(text, unit, self.units)
+                if not u.is_open(typed):
+                    u.parse_quantity(typed if u.unit_of(typed) else f"{typed} {unit}", unit,
+                                     name, negative=True)
+                got[name] = typed
+                if not last:
+                    return done
+                return self.session.answer(chk.id, preferred_answer(chk, dict(got), "metric"))
+            return take
+
+        for i, r in enumerate(m.readings):
+            bare = bare_unit(r.unit, self.units)
+            about = f" ({r.ask})" if r.ask else ""
+            msg = (f"Reading {i + 1} of {len(m.readings)}: {r.name}{about}, in "
+                   f"{unit_text(bare)} if no unit is given; unsure or skip: ")
+            result = self.ask(msg, one(r.name, r.unit, i == len(m.readings) - 1),
+                              answers=answers if i == 0 else answers[-2:],
+                              empty=f"type the {r.name} reading, unsure or skip")
+            if result is not done:
+                return result
+        return None
 
     def show_finding(self, chk: Check, finding: Any) -> None:
         from rich.text import Text
@@ -951,7 +1013,9 @@ class Shell:
         """Where the repair log is: the report command and the journal file."""
         sid = self.session.session_id
         if self.journal_path:
-            return f"diagnose report {sid} (journal {self.journal_path})"
+            from diagnose.paths import mask_url
+
+            return f"diagnose report {sid} (journal {mask_url(self.journal_path)})"
         return "none: no journal in use, the events were not stored"
 
     def _goodbye(self) -> None:

@@ -47,6 +47,11 @@ def register(sub: Any) -> None:
     p.add_argument("--who", metavar="NAME", type=storable,
                    help="the technician who takes up a phone diagnosis at the site visit, for "
                    "the repair log (default: the settings file's technician)")
+    p.add_argument("--take-over", action="store_true",
+                   help="take the session even while another holder holds it: in a team "
+                   "journal a session has one holder at a time (who, which machine, the time "
+                   "of the last write); another is refused while the holder wrote within the "
+                   "lease (10 minutes, DIAGNOSE_LEASE_MINUTES). The hand-off is recorded")
     p.set_defaults(handler=resume)
 
 

@@ -56,7 +56,7 @@ def main(args: argparse.Namespace, *, console: Any = None, reader: Any = None) -
         KnowledgeError: the pack is broken; JournalError: the journal cannot be written.
     """
     from diagnose.kb.locate import DEFAULT_PACK
-    from diagnose.service import Where, journal_path, open_journal, open_pack, preferences, start
+    from diagnose.service import Where, journal_target, open_journal, open_pack, preferences, start
 
     where = Where.of(args)
     prefs = preferences(args)
@@ -90,7 +90,7 @@ def main(args: argparse.Namespace, *, console: Any = None, reader: Any = None) -
         model = open_pack(ref, where)
     with open_journal(where) as journal:
         session = start(journal, model, where, mode=mode, who=who or None)
-        return _run(session, console, reader, str(journal_path(where)), resumed=False,
+        return _run(session, console, reader, journal_target(where), resumed=False,
                     holder=holder, notice_shown=notice is not None, units=prefs.units)
 
 
@@ -107,7 +107,7 @@ def resume(args: argparse.Namespace, session_id: str, *, console: Any = None,
         JournalError: no journal, no such session, or the session is closed;
         InputError: the pack cannot be found, or the session was recorded with another pack.
     """
-    from diagnose.service import Where, journal_path, need_journal, open_journal, preferences
+    from diagnose.service import Where, journal_target, need_journal, open_journal, preferences
     from diagnose.service import resume as resume_session
 
     where = Where.of(args)
@@ -117,8 +117,13 @@ def resume(args: argparse.Namespace, session_id: str, *, console: Any = None,
     with open_journal(where) as journal:
         who = getattr(args, "who", None) or preferences(args).technician or None
         resumed = resume_session(journal, session_id, where, getattr(args, "pack", None),
-                                 visit=True, who=who)
-        return _run(resumed.session, console, reader, str(journal_path(where)), resumed=True,
+                                 visit=True, who=who,
+                                 take_over=bool(getattr(args, "take_over", False)))
+        if resumed.handover is not None:
+            from diagnose.service.holding import handover_line
+
+            console.print(handover_line(resumed.info.id, resumed.handover), markup=False)
+        return _run(resumed.session, console, reader, journal_target(where), resumed=True,
                     units=units)
 
 

@@ -43,7 +43,13 @@ def manifest_notice(ref: str, search: list[str] | None = None) -> str | None:
         return None
     if not isinstance(head, dict):
         return None
-    return str(head.get("notice", "") or "").strip() or FALLBACK_NOTICE
+    from diagnose.kb.terms import fill, terms_of
+
+    text, unknown = fill(str(head.get("notice", "") or "").strip(),
+                         terms_of(head.get("device"))[0])
+    if unknown:
+        return None  # never raw braces: the loader reports the unknown term
+    return text or FALLBACK_NOTICE
 
 
 class Preload:
