@@ -11,8 +11,11 @@ causes; :func:`diagnose.reasoning.synthetic.synthetic_model`) it prints:
 
   - the reasoner's step: the answer added, the posterior, every check's
     expected information and ECO and every repair's p/c ranked, the choice;
-  - the shell-equivalent step: the same, then the ranking view drawn (what
-    the shell does after an answer);
+  - the shell-equivalent step: what the shell works out after an answer
+    (:func:`_shell_step`): the same with the ECO of every check, every check
+    and repair ordered (the full next-action ranking), the 30 rows of the
+    ``checks`` view, the ranking's leading entries and its view drawn, the
+    toolbar's leading cause;
 
   each with the fast planner and with its reference version
   (``plan(..., reference=True)``, ``--policy reference``) side by side, and
@@ -202,12 +205,25 @@ def _sessions(model: Model, sessions: int, steps: int, seed: int,
 
 def _shell_step(model: Model, ev: Evidence, cid: str, outcome: str, *, reference: bool,
                 max_faults: int = 1) -> Evidence:
-    """What the shell does after an answer: the update, the full next-action ranking (every
-    check with its ECO, every repair, the choice) and the ranking view drawn."""
+    """What the shell works out after an answer, as ``Session`` and ``Shell`` do it.
+
+    The answer added to the evidence; the posterior; the plan: every check's
+    expected information, the ECO of every check that can be proposed (all of
+    them, not only those the rule could choose), every repair's P(cure), the
+    choice, then every check ordered by the rule of ``diagnose.reasoning.ties``
+    and every repair by p/c (the full next-action ranking); the rows of the
+    ``checks`` view (the first ``ChecksTable.shown``, 30, made into rows, not
+    drawn); the ranking as the shell asks for it (the leading entries the view
+    needs, and "none of the known causes") and its view drawn on an 80-column
+    console; the toolbar's leading cause. Not in it: the recording of the event
+    (``Session.answer``, about 0.1 ms), the card of the next check and the
+    prompt's redraw, which do not depend on the size of the pack.
+    """
     import io
 
     from rich.console import Console
 
+    from diagnose.reasoning.actions import ChecksTable
     from diagnose.reasoning.planner import plan
     from diagnose.reasoning.posterior import posterior
     from diagnose.views import RankingView
@@ -215,10 +231,13 @@ def _shell_step(model: Model, ev: Evidence, cid: str, outcome: str, *, reference
     ev = ev.with_outcome(cid, outcome)
     post = posterior(model, ev, max_faults=max_faults)
     pl = plan(model, ev, max_faults=max_faults, post=post, reference=reference)
-    pl.checks()
-    pl.repairs()
+    pl.check_order()
+    pl.repair_order()
+    ChecksTable(pl.checks(ChecksTable.shown), pl.ecr, ev.mode, total=len(pl.check_ids))
     console = Console(file=io.StringIO(), width=80, color_system=None)
-    console.print(RankingView.of(post.ranking(), top=5))
+    view = RankingView.of(post.ranking(RankingView.entries_for(), unknown=True))
+    console.print(view)
+    post.ranking(1, unknown=True)  # the toolbar
     return ev
 
 
@@ -598,7 +617,9 @@ def table(rows: list[dict[str, Any]], sim: dict[str, Any] | None = None) -> str:
                      f"{r['step_peak_mb']:>7.1f}")
     lines.append("step: one answer added, the posterior, every check's ECO and every repair "
                  "ranked;")
-    lines.append("shell: the same, then the ranking view drawn; ref: the reference planner")
+    lines.append("shell: the same, every check and repair ordered, the checks view's rows, "
+                 "the ranking")
+    lines.append("view drawn; ref: the reference planner")
     lines.append("")
     head = (f"{'causes':>7} {'compile s':>9} {'schema s':>8} {'tables s':>8} "
             f"{'compile MB':>10}")

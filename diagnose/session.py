@@ -40,6 +40,7 @@ from diagnose.events import (
     Ended,
     Event,
     EventError,
+    HandedOver,
     HistoryNoted,
     IdentityGiven,
     LeftUnsure,
@@ -155,8 +156,10 @@ def apply(evidence: Evidence, event: Event) -> Evidence:
             return evidence.with_history(cause, factor)
         case Ended():
             return replace(evidence, end=event.data)
-        case Reopened(mode=mode):
-            return replace(evidence, end=None, mode=mode)
+        case Reopened(mode=mode):  # the site visit: whoever is there acknowledges afresh
+            return replace(evidence, end=None, mode=mode, acks=())
+        case HandedOver():  # another person goes on: their own acknowledgements count
+            return replace(evidence, acks=())
     return evidence
 
 
@@ -666,7 +669,7 @@ class Session:
             result = {"visit": "visit", "escalate": "escalated"}.get(action.kind, "abandoned")
             if action.kind == "visit" and not parts:
                 parts = list(action.parts)
-        top = self.ranking().top
+        top = self.ranking(limit=1).top
         cured = [r for r, c in self._evidence.repairs if c]
         return self._record(Ended, result=result, cause=top.cause, p=round(top.p, 6),
                             repair=cured[-1] if cured else None,
@@ -738,19 +741,31 @@ class Session:
                                        settings=self.settings, post=self.posterior())
         return self._cache["plan"]
 
-    def ranking(self) -> Ranking:
-        """All causes and "unknown", most likely first."""
-        return self.posterior().ranking()
+    def ranking(self, limit: int | None = None) -> Ranking:
+        """All causes and "unknown", most likely first (worked out once per state).
+
+        ``limit``: only the ``limit`` most likely, and "unknown" after them when
+        it is not among them (what a view of the leading causes needs; cheap with
+        thousands of causes).
+        """
+        key = f"ranking:{limit}"
+        if key not in self._cache:
+            self._cache[key] = self.posterior().ranking(limit, unknown=limit is not None)
+        return self._cache[key]
 
     def next_action(self) -> Action:
         return self.plan().action
 
-    def checks_table(self) -> ChecksTable:
-        """Every check with minutes, expected bits, ECO, and why it is not offered."""
+    def checks_table(self, limit: int | None = None) -> ChecksTable:
+        """Every check with minutes, expected bits, ECO, and why it is not offered.
+
+        ``limit``: rows for the first ``limit`` checks only (every check is still
+        ordered and counted in the table's ``total``).
+        """
         from diagnose.reasoning.actions import ChecksTable
 
         pl = self.plan()
-        return ChecksTable(pl.checks(), pl.ecr, self.mode)
+        return ChecksTable(pl.checks(limit), pl.ecr, self.mode, total=len(pl.check_ids))
 
     def explain_ranking(self, leading: int = 3) -> RankingExplanation:
         from diagnose.reasoning.explain import explain_ranking

@@ -94,7 +94,13 @@ class RankingView:
 
     @classmethod
     def of(cls, ranking: Any, top: int = TOP) -> RankingView:
-        """The view of a session's ranking (``Session.ranking()``): the one way it is shown."""
+        """The view of a session's ranking (``Session.ranking()``): the one way it is shown.
+
+        The ranking may be the leading entries only, with "none of the known
+        causes" among them or after them (``Session.ranking(limit)``): with
+        ``top + 1`` of them (:meth:`entries_for`) the view shows what it shows
+        of the whole ranking.
+        """
         from diagnose.kb.model import UNKNOWN_CAUSE
 
         rows: list[RankRow] = []
@@ -106,6 +112,14 @@ class RankingView:
             else:
                 rows.append(row)
         return cls(tuple(rows), unknown, top=top)
+
+    @staticmethod
+    def entries_for(top: int = TOP) -> int:
+        """How many leading entries of a ranking a view of ``top`` causes needs.
+
+        ``top`` known causes even when "none of the known causes" is among them.
+        """
+        return top + 1
 
     def shown(self) -> list[RankRow]:
         rows = list(self.rows[: self.top])

@@ -106,8 +106,8 @@ class ChecksTableView:
             t.add_row(r.id, f"{r.minutes:.0f}", f"{r.bits:.2f}", f"{r.bits_per_minute:.3f}",
                       "" if r.eco is None else f"{r.eco:.0f}", r.status or "")
         yield t
-        if len(ct.rows) > ct.shown:
-            yield f"  ... and {len(ct.rows) - ct.shown} more"
+        if ct.count > ct.shown:
+            yield f"  ... and {ct.count - ct.shown} more"
 
 
 # --- explanations ------------------------------------------------------------------------------

@@ -243,7 +243,8 @@ def test_the_fixture_is_a_device_pack_with_its_own_words(model):
     assert len(own) >= 4
     assert sum(1 for k in model.complaints if k not in HIDDEN) >= 3
     assert model.cases and all(c.source for c in model.cases.values())
-    assert model.checks["coil_voltage"].title == "DC volts at the coil terminals, clutch commanded on"
+    assert model.checks["coil_voltage"].title == \
+        "DC volts at the coil terminals, clutch commanded on"
     assert model.states["power"].title == "Power to the clutch circuit"
     assert model.complaints["coil_stays_energised"].caller_title == \
         "The clutch stays engaged after the machine stops"

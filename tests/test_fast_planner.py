@@ -79,6 +79,11 @@ def _same_plan(fast, ref, label=""):
     assert np.allclose(fast.check_bits, ref.check_bits, rtol=0, atol=1e-9), label
     _close(fast.ecos(), ref.ecos(), label)
     assert [r.id for r in fast.checks()] == [r.id for r in ref.checks()], label
+    for k in (0, 1, 3):  # rows made only for those asked for: the first of the whole order
+        assert fast.checks(k) == fast.checks()[:k] and fast.repairs(k) == fast.repairs()[:k], \
+            label
+    rows = fast.checks()
+    assert all(fast.check_score(r.id) == r for r in rows[:2] + rows[-2:]), label
 
 
 def _compare(model, evidence, max_faults, label=""):

@@ -23,8 +23,8 @@ from test_journal_store import FIXTURES, MINI, mini_model, play
 from diagnose.cli import main
 from diagnose.errors import InputError, JournalError
 from diagnose.journal import store as store_mod
-from diagnose.paths import writable_target
 from diagnose.journal.store import DISK_FULL, Journal
+from diagnose.paths import writable_target
 
 STEPS = [{"check": "listen_click", "answer": "silent"},
          {"check": "coil_resistance", "answer": "OL"},

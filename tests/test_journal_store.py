@@ -408,6 +408,40 @@ def test_two_writers_lose_nothing(journal_target):
         assert j.verify_chain().ok
 
 
+_SAME = """
+import sys
+from diagnose.journal.stores import open_journal
+path, sid, who, n = sys.argv[1], sys.argv[2], sys.argv[3], int(sys.argv[4])
+with open_journal(path) as j:
+    for i in range(n):
+        j.write(sid, {"kind": "note", "data": {"text": f"{who} {i}"},
+                      "time": "2025-01-14T09:00:00Z"})
+"""
+
+
+def test_two_writers_on_one_session_take_turns(journal_target):
+    """Two programs appending to one session at once: every event kept, in one chain."""
+    with open_journal(journal_target) as j:
+        sid = j.new_session("p", "1", "h", "site")
+    n = 100
+    procs = [subprocess.Popen([sys.executable, "-c", _SAME, journal_target, sid, who, str(n)],
+                              stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+             for who in ("ana", "ben")]
+    outs = [p.communicate(timeout=60) for p in procs]
+    assert [p.returncode for p in procs] == [0, 0], outs
+    with open_journal(journal_target) as j:
+        texts = [e.data["text"] for e in j.load_events(sid)]
+        for who in ("ana", "ben"):  # each writer's events all there, in its order
+            assert [t for t in texts if t.startswith(who)] == [f"{who} {i}" for i in range(n)]
+        assert len(texts) == 2 * n and j.verify_chain(sid).ok
+        # Two journals open on one session, writing in turn: each goes on after the other.
+        with open_journal(journal_target) as other:
+            for i in range(3):
+                assert j.write(sid, _event("note", text=f"j {i}")) == 2 * n + 2 * i + 1
+                assert other.write(sid, _event("note", text=f"o {i}")) == 2 * n + 2 * i + 2
+        assert j.verify_chain(sid).ok and j.session(sid).events == 2 * n + 6
+
+
 def test_events_are_json_text(journal_target):
     with open_journal(journal_target) as j:
         sid = j.new_session("p", "1", "h", "site")

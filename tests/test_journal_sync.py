@@ -292,12 +292,17 @@ def test_a_phone_session_is_handed_to_the_site(pg_url, tmp_path, capsys):
         assert f"session {sid} is held by Desk A@" in held.stderr
         assert "--take-over" in held.stderr
         assert _tell(desk, "caller will send a photo") == "ok"
+        code, listed, _ = _cli(capsys, "--journal", pg_url, "sessions")
+        assert code == 0 and "held by" in listed  # who writes it now (folded at 80 columns)
+        code, listed, _ = _cli(capsys, "--journal", pg_url, "sessions", "--json")
+        assert json.loads(listed)[0]["holder"].startswith("Desk A@")
     finally:
         _tell(desk, "leave")
         desk.wait(30)
     done = _site(pg_url, sid, tmp_path)
     assert done.returncode == 0, done.stderr
     assert f"session {sid} handed over from Desk A to R. Tester" in done.stdout
+    assert "held by" not in _cli(capsys, "--journal", pg_url, "sessions")[1]  # left
     with open_journal(pg_url, readonly=True) as j:
         kinds = [e.kind for e in j.load_events(sid)]
         assert j.session(sid).status == "closed" and j.holding(sid).held is None

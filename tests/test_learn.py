@@ -10,8 +10,8 @@ from test_journal_store import FIXTURES, mini_model, play
 from diagnose.cli import main
 from diagnose.errors import InputError, JournalError
 from diagnose.journal.learn import learn, learned_priors, overlay_for, read_overlay
-from diagnose.paths import overlay_path
 from diagnose.journal.store import Journal
+from diagnose.paths import overlay_path
 
 CABLE = [{"repair": "replace_cable", "cured": True}]
 

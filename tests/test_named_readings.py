@@ -234,3 +234,22 @@ def test_the_notice_shown_while_the_pack_loads_is_in_the_device_words(model):
     shown = manifest_notice(str(FIXTURE))
     assert "{" not in shown and "engages the clutch" in shown
     assert shown == model.notice  # the same text: not shown a second time once loaded
+
+
+# --- what was found, in words ---------------------------------------------------------------
+
+
+def test_a_finding_typed_in_words_is_kept_as_a_note_and_the_cause_still_asked(model):
+    s = session(model)
+    s.add_complaint("will_not_engage")
+    s.repair("reset_air_gap", True)
+    out = io.StringIO()
+    with create_pipe_input() as pipe:
+        reader = _Recording(PromptSession(input=pipe, output=DummyOutput()))
+        shell = Shell(s, Console(file=out, width=80, color_system=None), reader)
+        pipe.send_text("Shim lost from the hub, gap 0.8 mm\r1\r")
+        found = shell.ask_finding()
+    assert found == "air_gap_large"
+    assert [e.data["text"] for e in s.events if e.kind == "note"] == [
+        "Finding: Shim lost from the hub, gap 0.8 mm"]
+    assert sum(a.startswith("What did you find?") for a in reader.asked) == 2

@@ -334,6 +334,37 @@ def test_the_site_goes_on_and_a_newer_export_adds_only_what_is_missing(tmp_path,
     assert "went on differently" in capsys.readouterr().err
 
 
+def test_an_imported_session_keeps_its_uuids_and_its_chain(tmp_path, journal_target, capsys):
+    """The events carry their UUIDs: the copy has the same hashes, and verify holds there."""
+    from diagnose.journal.stores import open_journal
+
+    a = tmp_path / "a" / "j.sqlite3"
+    sid = _phone_session(a, mini_model())
+    file = tmp_path / "call.json"
+    assert main(["--journal", str(a), "export", sid, "-o", str(file)]) == 0
+    exported = json.loads(file.read_text(encoding="utf-8"))
+    assert all(e["uid"] for e in exported["events"])
+    assert main(["--journal", journal_target, "import", str(file)]) == 0
+    assert main(["--journal", journal_target, "import", str(file)]) == 0  # again: no change
+    capsys.readouterr()
+    assert main(["--journal", journal_target, "verify"]) == 0
+    assert "every chain is whole" in capsys.readouterr().out
+    with Journal(a, readonly=True) as ja, open_journal(journal_target, readonly=True) as jb:
+        (copy,) = jb.sessions()
+        assert copy.uid == ja.session(sid).uid
+        mine = [(r[1], r[7]) for r in ja.stored_events(sid)]  # (uid, hash) of every event
+        assert [(r[1], r[7]) for r in jb.stored_events(copy.id)] == mine
+    # An export of an older diagnose (no event UUIDs) still imports, with a chain of its own.
+    for event in exported["events"]:
+        del event["uid"]
+    exported["session"]["uid"] = None
+    exported["origin"] = "older-file"
+    file.write_text(json.dumps(exported), encoding="utf-8")
+    other = tmp_path / "c" / "j.sqlite3"
+    assert main(["--journal", str(other), "import", str(file)]) == 0
+    assert main(["--journal", str(other), "verify"]) == 0
+
+
 def test_a_damaged_export_is_refused_in_one_line(tmp_path, capsys):
     bad = tmp_path / "bad.json"
     for text in ("{", '{"format": "other"}', json.dumps({

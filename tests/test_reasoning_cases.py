@@ -9,8 +9,8 @@ from pathlib import Path
 from rich.console import Console
 
 from diagnose.kb.model import Case, Step
-from diagnose.service.cases import run_case, run_cases
 from diagnose.reasoning.synthetic import tiny_model
+from diagnose.service.cases import run_case, run_cases
 
 FIXTURES = Path(__file__).parent / "fixtures"
 

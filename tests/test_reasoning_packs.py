@@ -6,9 +6,9 @@ from pathlib import Path
 
 import pytest
 
-from diagnose.service.cases import run_cases
 from diagnose.reasoning.planner import next_action
 from diagnose.reasoning.posterior import posterior
+from diagnose.service.cases import run_cases
 from diagnose.session import play_case
 
 ROOT = Path(__file__).parent.parent / "knowledge"

@@ -270,3 +270,43 @@ def test_the_load_support_card_says_how_many_steps_wait_for_it():
     assert "rotate_released" in waiting and "replace_friction_disc" in waiting
     assert all(("secure_load" in {c.id: c for c in s.plan().checks()}[w].needs)
                for w in waiting if w in model.checks)
+
+
+# --- a new person acknowledges afresh ---------------------------------------------------------
+
+
+def _phone_session_with_acks():
+    """A phone session on the spring-applied pack whose agent acknowledged a card's cautions."""
+    model = load_model("spring-applied-brake")
+    s = Session(model, mode="phone")
+    for pid in list(s.open_parameters()):
+        default = model.parameters[pid].default
+        s.set_nameplate(pid, "yes" if pid == "gravity_load" else
+                        "unknown" if default is None else str(default))
+    s.add_complaint("will_not_release")
+    card = next(c for c in model.checks.values()
+                if c.phone_ok and s.pending_cautions(c.id))
+    for caution in s.pending_cautions(card.id):
+        s.acknowledge(caution.id, card.id)
+    assert not s.pending_cautions(card.id)  # the agent's acknowledgement stands for them
+    return s, card
+
+
+def test_the_site_visit_asks_every_caution_again():
+    s, card = _phone_session_with_acks()
+    s.end("visit")
+    s.reopen_for_visit("R. Tester")
+    # the technician at the site never read what the help-desk agent acknowledged
+    assert s.pending_cautions(card.id)
+    assert not s.reminders(card.id)
+
+
+def test_a_hand_off_to_another_person_asks_every_caution_again():
+    from diagnose.events import HandedOver
+    from diagnose.session import apply
+
+    s, card = _phone_session_with_acks()
+    before = s.evidence
+    assert before.acks
+    after = apply(before, HandedOver(taker="R. Tester", giver="Desk A"))
+    assert after.acks == () and after.steps == before.steps  # only the acknowledgements go

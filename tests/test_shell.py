@@ -185,7 +185,8 @@ def test_undo_with_nothing_to_undo(model):
 
 def test_note_calc_ranking_checks_why_help(model):
     shell, screen, _ = drive(model, PRELUDE + [
-        "note customer says it smelt burnt", "calc coil --rated-voltage 24V --rated-power 20W --ohms 3.2",
+        "note customer says it smelt burnt",
+        "calc coil --rated-voltage 24V --rated-power 20W --ohms 3.2",
         "ranking all", "checks", "why", "why listen_click", "help", "help do",
         "save", "quit"])
     assert shell.session.evidence.notes == ("customer says it smelt burnt",)

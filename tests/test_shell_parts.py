@@ -369,7 +369,8 @@ def test_without_a_terminal_the_shell_reads_a_script(tmp_path):
     script = "\n\n\n\n\n\n\nrelease\n\ndo listen_click\nsilent\nquit" + "\n"
     env = {**os.environ, "DIAGNOSE_JOURNAL": str(tmp_path / "j.sqlite3"), "TERM": "xterm"}
     env.pop("NO_COLOR", None)
-    proc = subprocess.run([sys.executable, "-m", "diagnose", "start", str(PACK)], input=script, check=False,
+    proc = subprocess.run([sys.executable, "-m", "diagnose", "start", str(PACK)],
+                          input=script, check=False,
                           capture_output=True, text=True, env=env, timeout=60)
     assert proc.returncode == 0, proc.stderr
     assert "\x1b[" not in proc.stdout            # no colour into a pipe

@@ -195,16 +195,24 @@ def _sessions(args: argparse.Namespace) -> int:
         return 0
     from rich.table import Table
 
+    from diagnose.journal.holders import lease_seconds
     from diagnose.journal.report import when
     from diagnose.text import console
 
-    table = Table(box=None, pad_edge=False)
+    table = Table(box=None, pad_edge=False, collapse_padding=True)  # fits 80 columns
     units = any(i.unit for i in infos)
     for col in ("id", "started", "unit" if units else "pack", "mode", "who", "status", "cause",
                 "events"):
-        table.add_column(col, justify="right" if col == "events" else "left")
+        widest = {"id": max(len(i.id) for i in infos), "started": 10}  # a date whole
+        table.add_column(col, justify="right" if col == "events" else "left",
+                         no_wrap=col in ("id", "mode", "events", "cause"),  # id: never cut
+                         min_width=widest.get(col),
+                         overflow="fold" if col in ("unit", "who", "status") else "ellipsis")
+    lease = lease_seconds()
     for i in infos:
         status = i.status if i.is_open else (i.outcome or "closed")
+        if i.is_open and i.holding.holds(lease):  # a shared journal: who writes it now
+            status = f"held by {i.holding.place}"
         cause = (i.cause or "") if i.outcome == "resolved" else ""
         unit = " / ".join(i.unit.values()) if units else f"{i.pack_id} {i.pack_version}"
         table.add_row(*(clean(v) for v in (

@@ -388,7 +388,7 @@ class _View:
 def _ranking_view(session: Any) -> Any:
     from diagnose.views import RankingView
 
-    return RankingView.of(session.ranking())
+    return RankingView.of(session.ranking(limit=RankingView.entries_for()))
 
 
 def _steps_so_far(session: Any) -> int:

@@ -34,6 +34,8 @@ not matter against a lease of minutes.
 True
 >>> h.blocks("R. Tester@laptop pid 3", 600, now="2025-01-14T09:11:00+00:00")
 False
+>>> h.holds(600, now="2025-01-14T09:04:00+00:00"), h.place
+(True, 'Desk A@desk-1')
 >>> person("Desk A@desk-1 pid 10"), same_place("a@h pid 1", "a@h pid 2")
 ('Desk A', True)
 """
@@ -156,6 +158,17 @@ class Holding:
         if self.holder is None or self.held is None or self.holder == me:
             return False
         return _seconds_between(self.held, now or utc_now()) < lease and not gone(self.holder)
+
+    def holds(self, lease: float, *, now: str | None = None) -> bool:
+        """Whether someone holds the session now: they wrote within ``lease`` s, and have not
+        left it or ended."""
+        return self.blocks("", lease, now=now)
+
+    @property
+    def place(self) -> str:
+        """The holder as a person at a machine, without the process (``Desk A@desk-1``)."""
+        found = _FORM.match(self.holder or "")
+        return f"{found.group('person')}@{found.group('host')}" if found else str(self.holder)
 
     def ago(self, now: str | None = None) -> str:
         """How long ago the holder last wrote, in words."""

@@ -148,7 +148,8 @@ def read_overlay(path: str | os.PathLike[str]) -> Overlay | None:
                        path=source)
     except (KeyError, TypeError, ValueError, AttributeError) as exc:
         raise JournalError(f"the learned priors {source} are not in the expected form "
-                           f"({exc!r}); run `diagnose learn PACK` again or delete the file") from None
+                           f"({exc!r}); run `diagnose learn PACK` again or delete the file"
+                           ) from None
 
 
 def overlay_for(pack_id: str, journal: str | os.PathLike[str] | None = None) -> Overlay | None:

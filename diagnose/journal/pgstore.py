@@ -5,9 +5,13 @@ public methods, the same schema versions and the same guarantees, kept in a
 PostgreSQL database (through psycopg 3, imported only when a
 ``postgresql://`` journal is opened):
 
-* **Every event is committed before ``write`` returns**: one short
-  transaction an event (the connection is in autocommit; each write is an
-  explicit transaction, committed synchronously by the server).
+* **Every event is committed before ``write`` returns**: the connection is
+  in autocommit, and an event is one statement (which locks the session's
+  row, checks, inserts the event and updates the session) committed
+  synchronously by the server, or, when that statement finds the session
+  changed by another writer, one short transaction (see ``PgJournal.write``).
+  Two writers of one session take turns on its row lock, and the primary key
+  (session, seq) refuses a second event of one number: the chain stays whole.
 * **A damaged, foreign or newer journal is refused** with ``JournalError``
   and left as it is: the database's schema version and an application marker
   are kept in the table ``diagnose_meta`` (``application`` =
@@ -28,44 +32,40 @@ PostgreSQL database (through psycopg 3, imported only when a
   which may repeat the connection string, are masked the same way.
 
 Migrations mirror the SQLite ones (``_MIGRATIONS[n]`` takes schema n to
-n + 1; the SQL differs, the numbers keep in step). They run in one
+n + 1, with the texts of :mod:`diagnose.journal.tables`; the few words that
+differ are here, the numbers keep in step). They run in one
 transaction, under an advisory lock, so that two programs opening a new
 journal at once create it once.
 
 References:
     PostgreSQL 15 documentation: "Explicit Locking" (row locks, advisory
-    locks), "Privileges", "The Information Schema"; psycopg 3 documentation,
-    "Transactions management".
+    locks), "Transaction Isolation" (Read Committed), "WITH Queries"
+    (data-modifying statements in WITH), "INSERT" (ON CONFLICT), "Privileges",
+    "The Information Schema"; psycopg 3 documentation, "Transactions
+    management", "Pipeline mode support".
 """
 
 from __future__ import annotations
 
-import json
 import re
 from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from contextlib import contextmanager, nullcontext
 from typing import Any
 from urllib.parse import unquote
 
 from diagnose.errors import JournalError
-from diagnose.events import Event
-from diagnose.journal.chain import Verified, check_chain, event_hash
-from diagnose.journal.holders import Holding, check_holder, take_row, utc_now
-from diagnose.journal.store import (
+from diagnose.journal import tables as schema
+from diagnose.journal.tables import (
     SCHEMA_VERSION,
-    STATUSES,
-    UNIT_FIELDS,
-    SessionInfo,
-    ambiguous,
-    chained_rows,
-    decode_row,
-    end_fields,
-    event_fields,
+    Entry,
+    TableStore,
+    copy_chained,
+    entry,
+    fill_session_uids,
     new_uid,
     normal_uid,
     now,
-    to_jsonable,
-    uid_prefix,
+    suspect_condition,
 )
 from diagnose.paths import journal_path, mask_url
 from diagnose.text import storable
@@ -76,6 +76,7 @@ APPLICATION = "diagnose-journal"
 _LOCK_SPACE = 0x64676E  # "dgn"
 _MIGRATE_LOCK = 1
 CONNECT_TIMEOUT = 10  # seconds, unless the URL says connect_timeout
+_INDENT = "\n            "
 
 
 def _pg(sql: str) -> str:
@@ -88,95 +89,76 @@ def _pg_locked(sql: str) -> str:
     return _pg(sql) + (" FOR UPDATE" if sql.startswith("SELECT") else "")
 
 
-def _fill_session_uids(cur: Any) -> None:
-    for (sid,) in cur.execute("SELECT id FROM session WHERE uid IS NULL").fetchall():
-        cur.execute("UPDATE session SET uid = %s WHERE id = %s", (new_uid(), sid))
-
-
-def _copy_chained(cur: Any) -> None:
-    uids = dict(cur.execute("SELECT id, uid FROM session").fetchall())
-    rows = cur.execute("SELECT session_id, seq, kind, time, data, ranking, format FROM event "
-                       "ORDER BY session_id, seq").fetchall()
-    cur.executemany("INSERT INTO event4 (session_id, seq, uid, kind, time, data, ranking, "
-                    "format, prev_hash, hash) VALUES (%s, %s, %s, %s, %s, %s, %s, %s, %s, %s)",
-                    chained_rows(rows, uids))
-
-
 # _MIGRATIONS[n] takes a journal from schema n to n + 1, as store._MIGRATIONS does for
-# SQLite. Append only; never edit one that has shipped.
+# SQLite, with the same texts (diagnose.journal.tables). Append only; never edit one that
+# has shipped.
 _MIGRATIONS: tuple[tuple[str | Callable[[Any], None], ...], ...] = (
     (
-        """CREATE TABLE diagnose_meta (
-            key TEXT PRIMARY KEY,
-            value TEXT NOT NULL
-        )""",
+        f"CREATE TABLE diagnose_meta ({_INDENT}key TEXT PRIMARY KEY,{_INDENT}"
+        f"value TEXT NOT NULL{schema.END_TABLE}",
         f"INSERT INTO diagnose_meta (key, value) VALUES ('application', '{APPLICATION}')",
-        """CREATE TABLE session (
-            id TEXT PRIMARY KEY,
-            pack_id TEXT NOT NULL,
-            pack_version TEXT NOT NULL,
-            content_hash TEXT NOT NULL,
-            mode TEXT NOT NULL,
-            who TEXT,
-            started TEXT NOT NULL,
-            updated TEXT NOT NULL,
-            status TEXT NOT NULL DEFAULT 'open' CHECK (status IN ('open', 'closed')),
-            outcome TEXT,
-            cause TEXT,
-            learned TEXT,
-            created TIMESTAMPTZ NOT NULL DEFAULT clock_timestamp()
-        )""",
-        """CREATE TABLE event (
-            session_id TEXT NOT NULL REFERENCES session(id),
-            seq INTEGER NOT NULL,
-            kind TEXT NOT NULL,
-            time TEXT NOT NULL,
-            data TEXT NOT NULL,
-            ranking TEXT,
-            PRIMARY KEY (session_id, seq)
-        )""",
+        f"CREATE TABLE session ({schema.SESSION_1},{_INDENT}"
+        f"created TIMESTAMPTZ NOT NULL DEFAULT clock_timestamp(){schema.END_TABLE}",
+        f"CREATE TABLE event ({schema.EVENT_1}{schema.END_TABLE}",
         "CREATE INDEX session_by_pack ON session (pack_id, status)",
     ),
-    (  # 2: the version of each event's data
-        "ALTER TABLE event ADD COLUMN format INTEGER NOT NULL DEFAULT 1",
-    ),
-    (  # 3: the unit of a session as searchable fields; where an imported session came from
-        "ALTER TABLE session ADD COLUMN site TEXT",
-        "ALTER TABLE session ADD COLUMN machine TEXT",
-        "ALTER TABLE session ADD COLUMN axis TEXT",
-        "ALTER TABLE session ADD COLUMN serial TEXT",
-        "CREATE INDEX session_by_serial ON session (serial)",
-        "CREATE INDEX session_by_site ON session (site, machine)",
-        "ALTER TABLE session ADD COLUMN origin TEXT",
-        "CREATE INDEX session_by_origin ON session (origin)",
-    ),
+    schema.STEP_2,
+    schema.STEP_3,
     (  # 4: a UUID for every session and event; the events hash-chained
         "ALTER TABLE session ADD COLUMN uid TEXT",
-        _fill_session_uids,
+        lambda cur: fill_session_uids(cur, _pg),
         "ALTER TABLE session ALTER COLUMN uid SET NOT NULL",
         "CREATE UNIQUE INDEX session_by_uid ON session (uid)",
-        """CREATE TABLE event4 (
-            session_id TEXT NOT NULL REFERENCES session(id),
-            seq INTEGER NOT NULL,
-            uid TEXT NOT NULL UNIQUE,
-            kind TEXT NOT NULL,
-            time TEXT NOT NULL,
-            data TEXT NOT NULL,
-            ranking TEXT,
-            format INTEGER NOT NULL DEFAULT 1,
-            prev_hash TEXT,
-            hash TEXT NOT NULL,
-            PRIMARY KEY (session_id, seq)
-        )""",
-        _copy_chained,  # the events copied with their uids and chain, never updated
+        f"CREATE TABLE event4 ({schema.EVENT_4}{schema.END_TABLE}",
+        lambda cur: copy_chained(cur, _pg),  # the events copied with their uids and chain
         "DROP TABLE event",
         "ALTER TABLE event4 RENAME TO event",
     ),
-    (  # 5: who holds a session, and the time of their last write (diagnose.journal.holders)
-        "ALTER TABLE session ADD COLUMN holder TEXT",
-        "ALTER TABLE session ADD COLUMN held TEXT",
-    ),
+    schema.STEP_5,
 )
+
+
+# --- the statements of the dialect -----------------------------------------------------------
+
+
+_NEW_SESSION = ("INSERT INTO session (id, pack_id, pack_version, content_hash, mode, who, "
+                "started, updated, learned, origin, uid) "
+                "VALUES (%s, %s, %s, %s, %s, %s, %s, %s, %s, %s, %s) "
+                "ON CONFLICT DO NOTHING RETURNING id")
+
+# The rows verify_events looks at closely (diagnose.journal.tables.suspect_condition), with
+# the data and ranking parsed once a row (d, r); a text that is not JSON stops the query.
+_SUSPECT = suspect_condition(
+    ["jsonb_typeof(d) <> 'object'", "r IS NOT NULL AND jsonb_typeof(r) <> 'array'"],
+    lambda key: f"(d -> '{key}') IS NULL")
+
+
+def _append_sql(sets: list[str], *, first: bool, held: bool, end: bool) -> str:
+    """The one statement that appends an event after a known last one (``PgJournal.write``).
+
+    It locks the session's row, then inserts the event only when the event
+    before is the one expected (number and hash; the first event of a session
+    needs none), the holder is still this program (``held``) and an ``end``
+    does not end a closed session; the primary key (session, seq) refuses a
+    second event of the same number. The session's row is updated (``sets``)
+    when the event went in. It returns the event's number, or no row.
+    """
+    guards = ["true"]
+    if not first:
+        guards.append("EXISTS (SELECT 1 FROM event WHERE session_id = s.id "
+                      "AND seq = %(last)s AND hash = %(prev)s)")
+    if held:
+        guards.append("(s.holder IS NULL OR s.holder = %(me)s)")
+    if end:
+        guards.append("s.status <> 'closed'")
+    assigned = ", ".join(f"{k} = %(set_{k})s" for k in sets)
+    return ("WITH s AS (SELECT id, status, holder FROM session WHERE id = %(sid)s FOR UPDATE), "
+            "e AS (INSERT INTO event (session_id, seq, uid, kind, time, data, ranking, format, "
+            "prev_hash, hash) SELECT s.id, %(seq)s, %(uid)s, %(kind)s, %(time)s, %(data)s, "
+            "%(ranking)s, %(format)s, %(prev)s, %(hash)s FROM s "
+            f"WHERE {' AND '.join(guards)} RETURNING seq), "
+            f"u AS (UPDATE session SET {assigned} FROM e WHERE session.id = %(sid)s) "
+            "SELECT seq FROM e")
 
 
 # --- messages that never show a password ----------------------------------------------------
@@ -239,7 +221,7 @@ def _connect(url: str, label: str) -> Any:
         raise JournalError(f"cannot reach the journal at {label}: {_reason(exc, url)}") from None
 
 
-class PgJournal:
+class PgJournal(TableStore):
     """The journal in a PostgreSQL database: sessions and their events.
 
     ``PgJournal(url)`` connects, checks the database and creates or upgrades
@@ -255,6 +237,10 @@ class PgJournal:
         self.path = journal_path(url)
         self.readonly = readonly
         self.held: dict[str, str] = {}  # the sessions this program holds: id -> holder
+        # What this program wrote last to each session (seq, hash), and the sessions' UUIDs:
+        # the next event's link, for writes in one statement (see write).
+        self._last: dict[str, tuple[int, str | None]] = {}
+        self._uids: dict[str, str] = {}
         self._conn = _connect(url, self.label)
         try:
             version = self.inspect()
@@ -341,13 +327,17 @@ class PgJournal:
 
     @contextmanager
     def _transaction(self) -> Iterator[Any]:
-        """One write transaction, committed when the block ends (before the caller goes on)."""
+        """One write transaction, committed when the block ends (before the caller goes on).
+
+        In pipeline mode where the client library has it: BEGIN goes with the first
+        statement, and the statements whose results are not read go with the COMMIT.
+        """
         import psycopg
 
-        if self.readonly:
-            raise JournalError(f"the journal {self.label} is open for reading only")
+        self._writable()
+        piped = self._conn.pipeline() if psycopg.Pipeline.is_supported() else nullcontext()
         try:
-            with self._conn.transaction(), self._conn.cursor() as cur:
+            with piped, self._conn.transaction(), self._conn.cursor() as cur:
                 yield cur
         except psycopg.Error as exc:
             raise self._translate(exc) from None
@@ -360,22 +350,51 @@ class PgJournal:
         except psycopg.Error as exc:
             raise self._translate(exc) from None
 
-    # -- public API (as diagnose.journal.store.Journal) ------------------------------------
-    def close(self) -> None:
-        """Release the sessions this program holds (leaving them), then close."""
-        for sid in list(self.held):
-            try:
-                self.release(sid)
-            except JournalError:
-                pass  # the lease runs out instead
+    # -- the dialect (diagnose.journal.tables.TableStore) ---------------------------------
+    _ARRIVAL = "created"
+    # Ties broken by the UUID, not the order of arrival: a synced journal's order does not
+    # depend on which laptop synced first.
+    _TIES = "s.uid DESC"
+    _INSTR = "strpos"
+
+    def _q(self, sql: str) -> str:
+        return _pg(sql)
+
+    def _locked(self, sql: str) -> str:
+        return _pg_locked(sql)
+
+    def _close(self) -> None:
         self._conn.close()
 
-    def __enter__(self) -> PgJournal:  # noqa: PYI034 (no subclasses)
-        return self
+    def _locked_last(self, cur: Any, session_id: str) -> tuple[Any, ...] | None:
+        row = super()._locked_last(cur, session_id)
+        if row is not None:
+            self._uids[session_id] = row[1]  # for the next write in one statement
+        return row
 
-    def __exit__(self, *exc: object) -> None:
-        self.close()
+    def _apply(self, sql: str, params: tuple[Any, ...]) -> int:
+        """One statement, committed by itself (the connection is in autocommit)."""
+        import psycopg
 
+        self._writable()
+        try:
+            return int(self._conn.execute(_pg(sql), params).rowcount)
+        except psycopg.Error as exc:
+            raise self._translate(exc) from None
+
+    def _suspect_rows(self, select: str) -> list[tuple[Any, ...]]:
+        import psycopg
+
+        try:
+            return self._conn.execute(f"{select} e, LATERAL (SELECT e.data::jsonb AS d, "
+                                      f"e.ranking::jsonb AS r) j WHERE ({_SUSPECT}) = 1 "
+                                      "ORDER BY session_id, seq").fetchall()
+        except psycopg.errors.DataError:  # a text that is not JSON: every row is read
+            return self._read(f"{select} ORDER BY session_id, seq")
+        except psycopg.Error as exc:
+            raise self._translate(exc) from None
+
+    # -- public API (as diagnose.journal.store.Journal) ------------------------------------
     @property
     def schema_version(self) -> int:
         rows = self._read("SELECT value FROM diagnose_meta WHERE key = 'schema'")
@@ -392,236 +411,84 @@ class PgJournal:
         give every session the same id: the day it started and the first 6 hex
         digits of its UUID (``250114-3fa2c1``), 2 digits more while that is taken
         (for one session in millions). ``wanted`` is therefore not used here.
+        Each try is one statement that inserts the row unless its id or UUID is
+        taken (the database's unique keys decide, so writers need no lock).
         """
         when = started or now()
         day = when[2:10].replace("-", "")
         uid = new_uid() if uid is None else normal_uid(uid)
-        with self._transaction() as cur:
-            # One writer at a time hands out the ids of a day.
-            cur.execute("SELECT pg_advisory_xact_lock(%s, hashtext(%s))", (_LOCK_SPACE, day))
-            there = cur.execute("SELECT id FROM session WHERE uid = %s", (uid,)).fetchone()
-            if there is not None:
-                return str(there[0])
-            digits = uid.replace("-", "")
-            for n in range(6, 33, 2):
-                sid = f"{day}-{digits[:n]}"
-                if cur.execute("SELECT 1 FROM session WHERE id = %s", (sid,)).fetchone() is None:
-                    break
-            cur.execute(
-                "INSERT INTO session (id, pack_id, pack_version, content_hash, mode, who, "
-                "started, updated, learned, origin, uid) "
-                "VALUES (%s, %s, %s, %s, %s, %s, %s, %s, %s, %s, %s)",
-                (sid, pack_id, pack_version, content_hash, mode,
-                 None if who is None else storable(who), when, when, learned, origin, uid))
-        return sid
+        self._writable()
+        digits = uid.replace("-", "")
+        row = (pack_id, pack_version, content_hash, mode,
+               None if who is None else storable(who), when, when, learned, origin, uid)
+        for n in range(6, 33, 2):
+            made = self._read(_NEW_SESSION, (f"{day}-{digits[:n]}", *row))
+            if made:
+                sid = str(made[0][0])
+                self._last[sid], self._uids[sid] = (0, None), uid
+                return sid
+            there = self._read("SELECT id FROM session WHERE uid = %s", (uid,))
+            if there:  # recorded before (a copy run again): kept as it is
+                return str(there[0][0])
+        raise JournalError(f"no free id for session {uid} in the journal {self.label}")
 
     def write(self, session_id: str, event: Any, *, ranking: Any = None,
               uid: str | None = None) -> int:
         """Append one event to a session, committed before this returns (see ``Journal.write``).
 
+        A team journal's writes are many and short, so most are one statement
+        (:func:`_append_sql`): this program remembers the number and hash of the
+        last event it wrote to each session, and while that is still the
+        session's last event the statement locks the session's row, checks the
+        holder, inserts the event and updates the session in one round trip,
+        committed by itself. Otherwise (the first write after a resume, another
+        writer in between, a UUID there already, a holder changed, a second end)
+        nothing is written by it, and one transaction reads the last event under
+        the row lock, checks and appends (:meth:`TableStore._append`).
+
         Raises:
             JournalError: unknown session, a second end, or the server refuses.
         """
-        kind, data, when, fmt = event_fields(event)
-        payload = storable(json.dumps(data, ensure_ascii=False, separators=(",", ":")))
-        ranked = None if ranking is None else json.dumps(to_jsonable(ranking),
-                                                         separators=(",", ":"))
-        given, uid = uid is not None, new_uid() if uid is None else normal_uid(uid)
-        # The session's row lock (one writer at a time appends to a session) and its last
-        # event, in one round trip: a team journal's writes are many and short.
-        locked = ("SELECT s.status, s.uid, s.holder, e.seq, e.hash FROM session s LEFT JOIN "
-                  "LATERAL (SELECT seq, hash FROM event WHERE session_id = s.id ORDER BY seq "
-                  "DESC LIMIT 1) e ON true WHERE s.id = %s FOR UPDATE OF s")
-        with self._transaction() as cur:
-            row = cur.execute(locked, (session_id,)).fetchone()
-            if row is None:
-                session_id = self._resolve(session_id, cur)
-                row = cur.execute(locked, (session_id,)).fetchone()
-            there = given and cur.execute("SELECT seq FROM event WHERE uid = %s",
-                                          (uid,)).fetchone()
-            if there:  # written before (a copy run again): nothing to add
-                return int(there[0])
-            if session_id in self.held:
-                check_holder(session_id, self.held[session_id], row[2])
-            if row[0] == "closed" and kind == "end":
-                raise JournalError(f"session {session_id} is closed already")
-            seq, prev = (1, None) if row[3] is None else (row[3] + 1, row[4])
-            digest = event_hash(row[1], seq, kind, fmt=fmt, time=when, data=json.loads(payload),
-                                prev=prev)
-            cur.execute("INSERT INTO event (session_id, seq, uid, kind, time, data, ranking, "
-                        "format, prev_hash, hash) "
-                        "VALUES (%s, %s, %s, %s, %s, %s, %s, %s, %s, %s)",
-                        (session_id, seq, uid, kind, when, payload, ranked, fmt, prev, digest))
-            sets: dict[str, Any] = {k: str(data[k]).strip() for k in UNIT_FIELDS
-                                    if kind == "identity" and str(data.get(k) or "").strip()}
-            sets["updated"] = when
-            if kind == "reopen":
-                sets.update(status="open", outcome=None, cause=None)
-            elif kind == "end":
-                outcome, cause = end_fields(data)
-                sets.update(status="closed", outcome=outcome, cause=cause)
-            if session_id in self.held:  # the holder's write renews the hold
-                sets.update(holder=self.held[session_id], held=utc_now())
-            cur.execute(f"UPDATE session SET {', '.join(f'{k} = %s' for k in sets)} "
-                        "WHERE id = %s", (*sets.values(), session_id))
-        return int(seq)
-
-    def take(self, session_id: str, holder: str, *, force: bool = False,
-             lease: float | None = None) -> Holding:
-        """Take session ``session_id`` for ``holder`` (see ``Journal.take``).
-
-        Raises:
-            SessionHeld: another holder wrote within the lease (and not ``force``).
-        """
-        session_id = self.resolve(session_id)
-        with self._transaction() as cur:
-            before = take_row(cur, _pg_locked, session_id, holder, force=force, lease=lease)
-        self.held[session_id] = holder
-        return before
-
-    def release(self, session_id: str) -> None:
-        """Leave session ``session_id`` (see ``Journal.release``)."""
-        holder = self.held.pop(session_id, None)
-        if holder is not None:
+        item = entry(event, ranking, uid)
+        self._writable()
+        seq = self._append_at_once(session_id, item)
+        if seq is None:
             with self._transaction() as cur:
-                cur.execute("UPDATE session SET held = NULL WHERE id = %s AND holder = %s",
-                            (session_id, holder))
+                session_id, seq, digest = self._append(cur, session_id, item)
+            if digest is not None:
+                self._last[session_id] = (seq, digest)
+        return seq
 
-    def holding(self, session_id: str) -> Holding:
-        """Who holds session ``session_id``, and when they last wrote."""
-        row = self._read("SELECT holder, held FROM session WHERE id = %s",
-                         (self.resolve(session_id),))
-        return Holding(*row[0])
+    def _append_at_once(self, session_id: str, item: Entry) -> int | None:
+        """Append ``item`` in one statement after the last event this program wrote there;
+        its number, or None when that was not the session's last event (nothing written)."""
+        import psycopg
 
-    def stored_events(self, session_id: str) -> list[tuple[Any, ...]]:
-        """The rows of a session's events as stored (see ``Journal.stored_events``)."""
-        return self._read("SELECT seq, uid, kind, data, time, ranking, format, hash FROM event "
-                          "WHERE session_id = %s ORDER BY seq", (self.resolve(session_id),))
-
-    def close_session(self, session_id: str, outcome: str, cause: str | None = None) -> None:
-        """Mark a session closed with its ``outcome`` and cause (see ``Journal.close_session``)."""
-        with self._transaction() as cur:
-            cur.execute("UPDATE session SET status = 'closed', outcome = %s, cause = %s, "
-                        "updated = %s WHERE id = %s", (outcome, cause, now(), session_id))
-            if cur.rowcount == 0:
-                raise JournalError(f"no session {session_id} in the journal {self.label}")
-
-    def load_events(self, session_id: str) -> list[Event]:
-        """The events of a session in order, decoded and checked (see ``Journal.load_events``)."""
-        session_id = self.session(session_id).id
-        return [self._decode(session_id, row)[0] for row in self._event_rows(session_id)]
-
-    def load_rankings(self, session_id: str) -> list[list[dict[str, Any]] | None]:
-        """The ranking kept beside each event, in event order."""
-        session_id = self.resolve(session_id)
-        return [self._decode(session_id, row)[1] for row in self._event_rows(session_id)]
-
-    def _event_rows(self, session_id: str) -> list[tuple[Any, ...]]:
-        return self._read("SELECT seq, kind, data, time, ranking, format FROM event "
-                          "WHERE session_id = %s ORDER BY seq", (session_id,))
-
-    def verify_events(self, session_id: str | None = None) -> None:
-        """Check the stored events read back through the codec (see ``Journal.verify_events``).
-
-        Raises:
-            JournalError: the first damaged event, by session and number.
-        """
-        select = "SELECT session_id, seq, kind, data, time, ranking, format FROM event"
-        if session_id is not None:
-            rows = self._read(f"{select} WHERE session_id = %s ORDER BY seq",
-                              (self.resolve(session_id),))
-        else:
-            rows = self._read(f"{select} ORDER BY session_id, seq")
-        for sid, *row in rows:
-            self._decode(sid, tuple(row))
-
-    def _decode(self, session_id: str, row: tuple[Any, ...]) -> tuple[Event, Any]:
-        return decode_row(self.label, session_id, row)
-
-    def session(self, session_id: str) -> SessionInfo:
-        """One session's metadata, by its short id, UUID or a unique UUID prefix."""
-        found = self._sessions("WHERE s.id = %s", (session_id,))
-        if not found:
-            found = self._sessions("WHERE s.id = %s", (self.resolve(session_id),))
-        return found[0]
-
-    def resolve(self, ref: str) -> str:
-        """The short id of the session ``ref`` names: its short id, UUID or UUID prefix."""
-        return self._resolve(ref, None)
-
-    def _resolve(self, ref: str, cur: Any) -> str:
-        def rows(sql: str, params: tuple[Any, ...]) -> list[tuple[Any, ...]]:
-            return cur.execute(sql, params).fetchall() if cur is not None else self._read(
-                sql, params)
-
-        ref = str(ref).strip()
-        if rows("SELECT id FROM session WHERE id = %s", (ref,)):
-            return ref
-        prefix = uid_prefix(ref)
-        found: list[tuple[Any, ...]] = []
-        if prefix:
-            found = rows("SELECT id FROM session WHERE replace(uid, '-', '') LIKE %s "
-                         "ORDER BY id LIMIT 3", (prefix + "%",))
-        if len(found) == 1:
-            return str(found[0][0])
-        if found:
-            raise JournalError(ambiguous(ref, [str(r[0]) for r in found]))
-        latest = [s.id for s in self._sessions("", ())[:3]]
-        hint = f"; latest: {', '.join(latest)}" if latest else ""
-        raise JournalError(f"no session {ref} in the journal {self.label}{hint}")
-
-    def sessions(self, status: str | None = None, pack_id: str | None = None,
-                 **unit: str | None) -> list[SessionInfo]:
-        """Sessions, newest first, filtered as ``Journal.sessions`` does."""
-        if status is not None and status not in STATUSES:
-            raise ValueError(f"status must be one of {STATUSES}, not {status!r}")
-        where, params = [], []
-        if status:
-            where.append("s.status = %s")
-            params.append(status)
-        if pack_id:
-            where.append("s.pack_id = %s")
-            params.append(pack_id)
-        for key, value in unit.items():
-            if value is None or not str(value).strip():
-                continue
-            if key not in (*UNIT_FIELDS, "since"):
-                raise ValueError(f"no filter {key!r}")
-            where.append({"serial": "lower(trim(s.serial)) = lower(trim(%s))",
-                          "since": "substr(s.started, 1, 10) >= %s"}.get(
-                key, f"strpos(lower(s.{key}), lower(trim(%s))) > 0"))
-            params.append(str(value))
-        clause = f"WHERE {' AND '.join(where)}" if where else ""
-        return self._sessions(clause, tuple(params))
-
-    def _sessions(self, clause: str, params: tuple[Any, ...]) -> list[SessionInfo]:
-        rows = self._read(
-            "SELECT s.id, s.pack_id, s.pack_version, s.content_hash, s.mode, s.who, s.started, "
-            "s.updated, s.status, s.outcome, s.cause, s.learned, "
-            "(SELECT count(*) FROM event e WHERE e.session_id = s.id), "
-            "(SELECT kind FROM event e WHERE e.session_id = s.id ORDER BY seq DESC LIMIT 1), "
-            "s.site, s.machine, s.axis, s.serial, s.origin, s.uid "
-            # Ties broken by the UUID, not the order of arrival: a synced journal's order
-            # does not depend on which laptop synced first.
-            f"FROM session s {clause} ORDER BY s.started DESC, s.uid DESC", params)
-        return [SessionInfo(*r[:12], int(r[12]), *r[13:]) for r in rows]
-
-    def verify_chain(self, session_id: str | None = None) -> Verified:
-        """Check the hash chain of one session's events, or of every session's."""
-        if session_id is not None:
-            sessions = [(self.resolve(session_id),)]
-        else:
-            sessions = self._read("SELECT id FROM session ORDER BY started, created")
-        events = 0
-        for (sid,) in sessions:
-            uid = self._read("SELECT uid FROM session WHERE id = %s", (sid,))[0][0]
-            rows = self._read("SELECT seq, kind, format, time, data, prev_hash, hash FROM event "
-                              "WHERE session_id = %s ORDER BY seq", (sid,))
-            broken = check_chain(sid, uid, rows)
-            if broken is not None:
-                return Verified(len(sessions), events, broken, session_id and sid)
-            events += len(rows)
-        return Verified(len(sessions), events, None, session_id and sessions[0][0])
+        known, session_uid = self._last.get(session_id), self._uids.get(session_id)
+        if known is None or session_uid is None:
+            return None
+        last, prev = known
+        seq = last + 1
+        digest = item.digest(session_uid, seq, prev)
+        sets = self._session_sets(session_id, item)
+        params: dict[str, Any] = {
+            "sid": session_id, "seq": seq, "last": last, "uid": item.uid, "kind": item.kind,
+            "time": item.time, "data": item.text, "ranking": item.ranking,
+            "format": item.format, "prev": prev, "hash": digest,
+            "me": self.held.get(session_id), **{f"set_{k}": v for k, v in sets.items()}}
+        sql = _append_sql(list(sets), first=last == 0, held=session_id in self.held,
+                          end=item.kind == "end")
+        try:
+            row = self._conn.execute(sql, params).fetchone()
+        except psycopg.errors.UniqueViolation:  # another writer was first, or a copy again
+            row = None
+        except psycopg.Error as exc:
+            raise self._translate(exc) from None
+        if row is None:
+            self._last.pop(session_id, None)
+            return None
+        self._last[session_id] = (seq, digest)
+        return seq
 
     def integrity(self) -> list[str]:
         """``["ok"]`` when the journal's tables can be read (the server keeps its own pages)."""

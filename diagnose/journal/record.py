@@ -247,9 +247,9 @@ def build_record(info: Any, events: Sequence[Event], model: Any = None,
     result = _text((end or {}).get("result")) or getattr(info, "outcome", None)
     cause_id = confirmed_cause(result, end, steps, model)
     session = info.to_dict() if hasattr(info, "to_dict") else dict(info or {})
-    if fold.site_who and fold.site_who != session.get("who"):
-        phone = session.get("who")
-        session["who"] = f"{phone} (phone), {fold.site_who} (site)" if phone else fold.site_who
+    if fold.site_who and fold.site_who != [session.get("who")]:
+        phone, site = session.get("who"), ", ".join(fold.site_who)
+        session["who"] = f"{phone} (phone), {site} (site)" if phone else site
     return Record(
         session=session, pack=_pack_of(session, events, model),
         notice=fold.notice or str(getattr(model, "notice", "") or ""),
@@ -351,7 +351,7 @@ class _Fold:
     notes: list[dict[str, Any]] = field(default_factory=list)
     attachments: list[dict[str, Any]] = field(default_factory=list)
     initial: tuple[dict[str, Any], ...] = ()
-    site_who: str | None = None
+    site_who: list[str] = field(default_factory=list)  # at the site, in order of their work
     handovers: list[dict[str, Any]] = field(default_factory=list)
 
     def add(self, event: Event, ranking: tuple[dict[str, Any], ...]) -> None:
@@ -372,12 +372,14 @@ class _Fold:
             case Acknowledged():
                 self.cautions.append(self._caution(event))
             case Reopened(who=who) if who:
-                self.site_who = who  # the technician who takes it up at the site
+                self.site_who = [who]  # the technician who takes it up at the site
                 self.who = who
             case HandedOver(taker=taker, giver=giver, forced=forced):
                 self.handovers.append({"time": event.time, "from": giver, "to": taker,
                                        "forced": forced})
                 self.who = taker  # what follows is theirs
+                if self.site_who and taker not in self.site_who:
+                    self.site_who.append(taker)  # another technician goes on at the site
             case Noted(text=text):
                 self.notes.append({"time": event.time, "who": self.who, "text": text})
             case Attached():

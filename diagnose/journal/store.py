@@ -48,199 +48,68 @@ References:
 
 from __future__ import annotations
 
-import dataclasses
 import errno
 import json
 import os
-import re
 import shutil
 import sqlite3
 import time as _time
-import uuid
-from collections.abc import Iterator, Mapping
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
-from dataclasses import dataclass
-from datetime import datetime
 from pathlib import Path
 from typing import Any
 
 from diagnose.errors import JournalError
-from diagnose.events import EVENT_KEYS, FORMAT, Event, EventError, Row, decode, encode, problem
-from diagnose.journal.chain import Verified, check_chain, event_hash
-from diagnose.journal.holders import Holding, renew_row, take_row
+from diagnose.journal import tables as schema
+from diagnose.journal.tables import (
+    SCHEMA_VERSION,
+    UNIT_FIELDS,
+    SessionInfo,
+    TableStore,
+    copy_chained,
+    entry,
+    fill_session_uids,
+    new_uid,
+    normal_uid,
+    now,
+    suspect_condition,
+)
 from diagnose.paths import APPLICATION_ID
 from diagnose.text import storable
 
-SCHEMA_VERSION = 5
-#: The identity keys kept as columns of a session, to find the past jobs on a unit.
-UNIT_FIELDS = ("site", "machine", "axis", "serial")
+#: What other modules took from here before diagnose.journal.tables held it.
+__all__ = ["SCHEMA_VERSION", "UNIT_FIELDS", "SessionInfo", "Journal", "inspect", "now",
+           "is_disk_full", "DISK_FULL"]
 HEADER = b"SQLite format 3\x00"
 BUSY_TIMEOUT_MS = 5000
 _RETRIES = 4  # on top of busy_timeout: a writer waits up to about 20 s in all
-STATUSES = ("open", "closed")
 _LOW_SPACE = 1 << 20  # bytes free below which an I/O error is taken for a full disk
 DISK_FULL = "the disk is full: nothing more was written; free space and resume"
 
-# What replaying a session reads from an event's data with no default
-# (``diagnose.session.apply``, ``diagnose.journal.record``): an event without it
-# was altered by hand. A reading needs its verdict or its weights besides.
-
-# _MIGRATIONS[n] takes a journal from schema n to n + 1. Append only; never edit one
-# that has shipped.
-_MIGRATIONS: tuple[tuple[str, ...], ...] = (
+# _MIGRATIONS[n] takes a journal from schema n to n + 1 (the texts are those of
+# diagnose.journal.tables, as the team journal's). Append only; never edit one that has
+# shipped.
+_MIGRATIONS: tuple[tuple[str | Callable[[Any], None], ...], ...] = (
     (
-        """CREATE TABLE session (
-            id TEXT PRIMARY KEY,
-            pack_id TEXT NOT NULL,
-            pack_version TEXT NOT NULL,
-            content_hash TEXT NOT NULL,
-            mode TEXT NOT NULL,
-            who TEXT,
-            started TEXT NOT NULL,
-            updated TEXT NOT NULL,
-            status TEXT NOT NULL DEFAULT 'open' CHECK (status IN ('open', 'closed')),
-            outcome TEXT,
-            cause TEXT,
-            learned TEXT
-        )""",
-        """CREATE TABLE event (
-            session_id TEXT NOT NULL REFERENCES session(id),
-            seq INTEGER NOT NULL,
-            kind TEXT NOT NULL,
-            time TEXT NOT NULL,
-            data TEXT NOT NULL,
-            ranking TEXT,
-            PRIMARY KEY (session_id, seq)
-        ) WITHOUT ROWID""",
+        f"CREATE TABLE session ({schema.SESSION_1}{schema.END_TABLE}",
+        f"CREATE TABLE event ({schema.EVENT_1}{schema.END_TABLE} WITHOUT ROWID",
         "CREATE INDEX session_by_pack ON session (pack_id, status)",
     ),
-    (  # 2: the version of each event's data, for the codec of diagnose.events
-        "ALTER TABLE event ADD COLUMN format INTEGER NOT NULL DEFAULT 1",
-    ),
-    (  # 3: the unit of a session as searchable fields (filled from its identity events)
-        "ALTER TABLE session ADD COLUMN site TEXT",
-        "ALTER TABLE session ADD COLUMN machine TEXT",
-        "ALTER TABLE session ADD COLUMN axis TEXT",
-        "ALTER TABLE session ADD COLUMN serial TEXT",
-        "CREATE INDEX session_by_serial ON session (serial)",
-        "CREATE INDEX session_by_site ON session (site, machine)",
-        # where an imported session came from (diagnose.journal.transfer), to import it once
-        "ALTER TABLE session ADD COLUMN origin TEXT",
-        "CREATE INDEX session_by_origin ON session (origin)",
-    ),
+    schema.STEP_2,
+    schema.STEP_3,
     (  # 4: a UUID for every session and event; the events hash-chained (diagnose.journal.chain)
         "ALTER TABLE session ADD COLUMN uid TEXT",
-        lambda conn: _fill_session_uids(conn),
+        lambda conn: fill_session_uids(conn, str),
         "CREATE UNIQUE INDEX session_by_uid ON session (uid)",
-        """CREATE TABLE event4 (
-            session_id TEXT NOT NULL REFERENCES session(id),
-            seq INTEGER NOT NULL,
-            uid TEXT NOT NULL UNIQUE,
-            kind TEXT NOT NULL,
-            time TEXT NOT NULL,
-            data TEXT NOT NULL,
-            ranking TEXT,
-            format INTEGER NOT NULL DEFAULT 1,
-            prev_hash TEXT,
-            hash TEXT NOT NULL,
-            PRIMARY KEY (session_id, seq)
-        ) WITHOUT ROWID""",
+        f"CREATE TABLE event4 ({schema.EVENT_4}{schema.END_TABLE} WITHOUT ROWID",
         # The events are copied into the new table with their uids and chain, never updated.
-        lambda conn: _copy_chained(conn),
+        lambda conn: copy_chained(conn, str),
         "DROP TABLE event",
         "ALTER TABLE event4 RENAME TO event",
     ),
-    (  # 5: who holds a session, and the time of their last write (diagnose.journal.holders)
-        "ALTER TABLE session ADD COLUMN holder TEXT",
-        "ALTER TABLE session ADD COLUMN held TEXT",
-    ),
+    schema.STEP_5,
 )
 
-
-@dataclass(frozen=True)
-class SessionInfo:
-    """One session's metadata, as ``sessions`` and ``session`` return it."""
-
-    id: str
-    pack_id: str
-    pack_version: str
-    content_hash: str
-    mode: str
-    who: str | None
-    started: str
-    updated: str
-    status: str
-    outcome: str | None = None
-    cause: str | None = None
-    learned: str | None = None
-    events: int = 0
-    last_kind: str | None = None
-    site: str | None = None
-    machine: str | None = None
-    axis: str | None = None
-    serial: str | None = None
-    origin: str | None = None  # of an imported session: its key in the journal it came from
-    uid: str | None = None  # the session's UUID (None in a journal of schema 3 or before)
-
-    @property
-    def unit(self) -> dict[str, str]:
-        """The unit's identity fields that are known (site, machine, axis, serial)."""
-        return {k: str(getattr(self, k)) for k in UNIT_FIELDS if getattr(self, k)}
-
-    @property
-    def is_open(self) -> bool:
-        return self.status == "open"
-
-    def to_dict(self) -> dict[str, Any]:
-        return dataclasses.asdict(self)
-
-
-def now() -> str:
-    """The local time with its UTC offset, to the second, as the journal writes it."""
-    return datetime.now().astimezone().isoformat(timespec="seconds")
-
-
-def to_jsonable(value: Any) -> Any:
-    """``value`` as plain JSON data: objects with ``to_dict``, dataclasses, sets and paths too.
-
-    >>> to_jsonable({"a": (1, 2), "b": {3}, "c": Path("x")})
-    {'a': [1, 2], 'b': [3], 'c': 'x'}
-    """
-    if isinstance(value, (str, int, float, bool)) or value is None:
-        return value
-    if isinstance(value, Mapping):
-        return {str(k): to_jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [to_jsonable(v) for v in value]
-    if isinstance(value, (set, frozenset)):
-        return sorted((to_jsonable(v) for v in value), key=str)
-    if hasattr(value, "to_dict"):
-        return to_jsonable(value.to_dict())
-    if dataclasses.is_dataclass(value) and not isinstance(value, type):
-        return to_jsonable({f.name: getattr(value, f.name) for f in dataclasses.fields(value)})
-    if isinstance(value, os.PathLike):
-        return os.fspath(value)
-    return str(value)
-
-
-def event_fields(event: Any) -> tuple[str, dict[str, Any], str, int]:
-    """The row of an event: a typed one through the codec, a mapping or object as it is."""
-    if isinstance(event, Event):
-        row = encode(event)
-        return row.kind, row.data, str(row.time or now()), row.format
-    if isinstance(event, Mapping):
-        kind, data, when = event.get("kind"), event.get("data", {}), event.get("time")
-    else:
-        kind, data, when = (getattr(event, "kind", None), getattr(event, "data", {}),
-                            getattr(event, "time", None))
-    if not isinstance(kind, str) or not kind:
-        raise JournalError(f"cannot record an event without a kind: {event!r}")
-    fmt = event.get("format", FORMAT) if isinstance(event, Mapping) else FORMAT
-    row = Row(kind, to_jsonable(data or {}), str(when or now()), fmt)
-    why = problem(row)
-    if why:  # a bug of the caller: the journal keeps only what reads back
-        raise JournalError(f"cannot record a malformed event: {why}")
-    return row.kind, row.data, row.time, row.format
 
 
 # --- checking a file before anything writes to it ----------------------------------
@@ -375,7 +244,7 @@ def _is_busy(exc: sqlite3.Error) -> bool:
 # --- the store ------------------------------------------------------------------------
 
 
-class Journal:
+class Journal(TableStore):
     """The journal file: sessions and their events.
 
     ``Journal(path)`` opens (or creates) the file for writing after the checks
@@ -393,6 +262,7 @@ class Journal:
 
     def __init__(self, path: str | os.PathLike[str], *, readonly: bool = False) -> None:
         self.path = Path(path)
+        self.label = str(self.path)
         self.readonly = readonly
         self.held: dict[str, str] = {}  # the sessions this program holds: id -> holder
         if readonly:
@@ -491,8 +361,7 @@ class Journal:
     @contextmanager
     def _transaction(self) -> Iterator[sqlite3.Connection]:
         """One short write transaction, taken at once and retried while another writer holds it."""
-        if self.readonly:
-            raise JournalError(f"the journal {self.path} is open for reading only")
+        self._writable()
         conn = self._conn
         for attempt in range(_RETRIES):
             try:
@@ -523,21 +392,6 @@ class Journal:
         except sqlite3.Error as exc:
             raise _translate(self.path, exc) from None
 
-    # -- public API ----------------------------------------------------------------
-    def close(self) -> None:
-        """Release the sessions this program holds (leaving them), then close."""
-        for sid in list(self.held):
-            try:
-                self.release(sid)
-            except JournalError:
-                pass  # the lease runs out instead
-        self._conn.close()
-
-    def __enter__(self) -> Journal:  # noqa: PYI034 (no subclasses)
-        return self
-
-    def __exit__(self, *exc: object) -> None:
-        self.close()
 
     @property
     def schema_version(self) -> int:
@@ -594,268 +448,33 @@ class Journal:
         Raises:
             JournalError: unknown session, a second end, or the file cannot be written.
         """
-        kind, data, when, fmt = event_fields(event)
-        payload = json.dumps(data, ensure_ascii=False, separators=(",", ":"))
-        payload = storable(payload)
-        ranked = None if ranking is None else json.dumps(to_jsonable(ranking),
-                                                         separators=(",", ":"))
-        uid = new_uid() if uid is None else normal_uid(uid)
+        item = entry(event, ranking, uid)
         with self._transaction() as conn:
-            row = conn.execute("SELECT status, uid, holder FROM session WHERE id = ?",
-                               (session_id,)).fetchone()
-            if row is None:
-                session_id = self._resolve(session_id, conn)
-                row = conn.execute("SELECT status, uid, holder FROM session WHERE id = ?",
-                                   (session_id,)).fetchone()
-            there = conn.execute("SELECT seq FROM event WHERE uid = ?", (uid,)).fetchone()
-            if there is not None:  # written before (a copy run again): nothing to add
-                return int(there[0])
-            if session_id in self.held:
-                renew_row(conn, str, session_id, self.held[session_id], row[2])
-            if row[0] == "closed" and kind == "end":
-                raise JournalError(f"session {session_id} is closed already")
-            last = conn.execute("SELECT seq, hash FROM event WHERE session_id = ? "
-                                "ORDER BY seq DESC LIMIT 1", (session_id,)).fetchone()
-            seq, prev = (1, None) if last is None else (last[0] + 1, last[1])
-            digest = event_hash(row[1], seq, kind, fmt=fmt, time=when, data=json.loads(payload),
-                                prev=prev)
-            conn.execute("INSERT INTO event (session_id, seq, uid, kind, time, data, ranking, "
-                         "format, prev_hash, hash) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-                         (session_id, seq, uid, kind, when, payload, ranked, fmt, prev, digest))
-            unit = {k: str(data[k]).strip() for k in UNIT_FIELDS
-                    if kind == "identity" and str(data.get(k) or "").strip()}
-            if unit:
-                conn.execute(f"UPDATE session SET {', '.join(f'{k} = ?' for k in unit)} "
-                             "WHERE id = ?", (*unit.values(), session_id))
-            if kind == "reopen":  # a phone diagnosis goes on at the site visit
-                conn.execute("UPDATE session SET updated = ?, status = 'open', outcome = NULL, "
-                             "cause = NULL WHERE id = ?", (when, session_id))
-            elif kind == "end":
-                outcome, cause = end_fields(data)
-                conn.execute("UPDATE session SET updated = ?, status = 'closed', outcome = ?, "
-                             "cause = ? WHERE id = ?", (when, outcome, cause, session_id))
-            else:
-                conn.execute("UPDATE session SET updated = ? WHERE id = ?", (when, session_id))
-        return int(seq)
+            seq = self._append(conn, session_id, item)[1]
+        return seq
 
-    def take(self, session_id: str, holder: str, *, force: bool = False,
-             lease: float | None = None) -> Holding:
-        """Take session ``session_id`` for ``holder`` (see :mod:`diagnose.journal.holders`).
+    def _close(self) -> None:
+        self._conn.close()
 
-        Returns the holding before (whom it was taken from).
-
-        Raises:
-            SessionHeld: another holder wrote within the lease (and not ``force``).
-        """
-        session_id = self.resolve(session_id)
-        with self._transaction() as conn:
-            before = take_row(conn, str, session_id, holder, force=force, lease=lease)
-        self.held[session_id] = holder
-        return before
-
-    def release(self, session_id: str) -> None:
-        """Leave session ``session_id``: another may take it at once (its holder's name stays)."""
-        holder = self.held.pop(session_id, None)
-        if holder is not None:
-            with self._transaction() as conn:
-                conn.execute("UPDATE session SET held = NULL WHERE id = ? AND holder = ?",
-                             (session_id, holder))
-
-    def holding(self, session_id: str) -> Holding:
-        """Who holds session ``session_id``, and when they last wrote."""
-        row = self._read("SELECT holder, held FROM session WHERE id = ?",
-                         (self.resolve(session_id),))
-        return Holding(*row[0])
-
-    def stored_events(self, session_id: str) -> list[tuple[Any, ...]]:
-        """The rows of a session's events as stored, for a copy to another journal:
-        ``(seq, uid, kind, data text, time, ranking text, format, hash)`` in order."""
-        return self._read("SELECT seq, uid, kind, data, time, ranking, format, hash FROM event "
-                          "WHERE session_id = ? ORDER BY seq", (self.resolve(session_id),))
-
-    def close_session(self, session_id: str, outcome: str, cause: str | None = None) -> None:
-        """Mark a session closed with its ``outcome`` (``resolved``, ``escalated``, ...) and cause.
-
-        A session normally closes with its ``end`` event; this is for a face that ends
-        one without a session object.
-        """
-        with self._transaction() as conn:
-            cur = conn.execute("UPDATE session SET status = 'closed', outcome = ?, cause = ?, "
-                               "updated = ? WHERE id = ?", (outcome, cause, now(), session_id))
-            if cur.rowcount == 0:
-                raise JournalError(f"no session {session_id} in the journal {self.path}")
-
-    def load_events(self, session_id: str) -> list[Event]:
-        """The events of a session in the order they were written, decoded and checked.
-
-        Raises:
-            JournalError: no such session, or an event was damaged (altered by hand)
-                or written by a newer diagnose.
-        """
-        session_id = self.session(session_id).id
-        return [self._decode(session_id, row)[0] for row in self._event_rows(session_id)]
-
-    def _event_rows(self, session_id: str) -> list[tuple[Any, ...]]:
-        return self._read(f"SELECT seq, kind, data, time, ranking, {self._format} FROM event "
-                          "WHERE session_id = ? ORDER BY seq", (session_id,))
+    def _has(self, table: str, column: str) -> bool:
+        return column in self._columns(table)
 
     @property
-    def _format(self) -> str:
+    def _format(self) -> str:  # type: ignore[override]
         """The column of the events' format (a journal of schema 1, read only: all format 1)."""
         return "format" if "format" in self._columns("event") else "1"
 
-    def load_rankings(self, session_id: str) -> list[list[dict[str, Any]] | None]:
-        """The ranking kept beside each event (None where none was), in event order.
-
-        Raises:
-            JournalError: an event was damaged (altered by hand).
-        """
-        session_id = self.resolve(session_id)
-        return [self._decode(session_id, row)[1] for row in self._event_rows(session_id)]
-
-    def verify_events(self, session_id: str | None = None) -> None:
-        """Check the stored events before a session is replayed or listed.
-
-        Every event must read back through the codec (``diagnose.events``). One
-        session's events are all read and checked; for the whole journal
-        (``session_id`` None) the database's own JSON functions first pick
-        out the rows worth a closer look, so that a long journal lists quickly.
-
-        Raises:
-            JournalError: the first damaged event, by session and number.
-        """
-        select = f"SELECT session_id, seq, kind, data, time, ranking, {self._format} FROM event"
-        if session_id is not None:
-            session_id = self.resolve(session_id)
-            rows = self._read(f"{select} WHERE session_id = ? ORDER BY seq", (session_id,))
-        else:
-            try:
-                rows = self._conn.execute(
-                    f"{select} WHERE {_SUSPECT} ORDER BY session_id, seq").fetchall()
-            except sqlite3.OperationalError as exc:
-                if "no such function" not in str(exc):
-                    raise _translate(self.path, exc) from None
-                rows = self._read(f"{select} ORDER BY session_id, seq")  # no JSON functions
-            except sqlite3.Error as exc:
+    def _suspect_rows(self, select: str) -> list[tuple[Any, ...]]:
+        try:
+            return self._conn.execute(
+                f"{select} WHERE {_SUSPECT} ORDER BY session_id, seq").fetchall()
+        except sqlite3.OperationalError as exc:
+            if "no such function" not in str(exc):
                 raise _translate(self.path, exc) from None
-        for sid, *row in rows:
-            self._decode(sid, tuple(row))
+            return self._read(f"{select} ORDER BY session_id, seq")  # no JSON functions
+        except sqlite3.Error as exc:
+            raise _translate(self.path, exc) from None
 
-    def _decode(self, session_id: str, row: tuple[Any, ...]) -> tuple[Event, Any]:
-        """The event and ranking of a stored row ``(seq, kind, data, time, ranking, format)``."""
-        return decode_row(self.path, session_id, row)
-
-    def session(self, session_id: str) -> SessionInfo:
-        """One session's metadata, by its short id, its UUID or a unique prefix of the UUID.
-
-        Raises:
-            JournalError: no such session (the message names the latest ones), or the
-                prefix fits several.
-        """
-        found = self._sessions("WHERE s.id = ?", (session_id,))
-        if not found:
-            found = self._sessions("WHERE s.id = ?", (self.resolve(session_id),))
-        return found[0]
-
-    def resolve(self, ref: str, conn: sqlite3.Connection | None = None) -> str:
-        """The short id of the session ``ref`` names: its short id, UUID or UUID prefix.
-
-        Raises:
-            JournalError: no such session, or the prefix fits several.
-        """
-        return self._resolve(ref, conn)
-
-    def _resolve(self, ref: str, conn: sqlite3.Connection | None = None) -> str:
-        def rows(sql: str, params: tuple[Any, ...]) -> list[tuple[Any, ...]]:
-            return (conn.execute(sql, params).fetchall() if conn is not None
-                    else self._read(sql, params))
-
-        ref = str(ref).strip()
-        if rows("SELECT id FROM session WHERE id = ?", (ref,)):
-            return ref
-        prefix = uid_prefix(ref)
-        found: list[tuple[Any, ...]] = []
-        if prefix and "uid" in self._columns("session"):
-            found = rows("SELECT id FROM session WHERE replace(uid, '-', '') LIKE ? "
-                         "ORDER BY id LIMIT 3", (prefix + "%",))
-        if len(found) == 1:
-            return str(found[0][0])
-        if found:
-            raise JournalError(ambiguous(ref, [str(r[0]) for r in found]))
-        latest = [s.id for s in self._sessions("", ())[:3]]
-        hint = f"; latest: {', '.join(latest)}" if latest else ""
-        raise JournalError(f"no session {ref} in the journal {self.path}{hint}")
-
-    def verify_chain(self, session_id: str | None = None) -> Verified:
-        """Check the hash chain of one session's events, or of every session's.
-
-        Returns what was checked and the first break (None when every chain holds);
-        see :mod:`diagnose.journal.chain`.
-
-        Raises:
-            JournalError: no such session, or a journal from before the chains.
-        """
-        if "hash" not in self._columns("event"):
-            raise JournalError(f"the journal {self.path} is of schema {self.schema_version}, "
-                               "from before the hash chains; open it once for writing (any "
-                               "command that records) to upgrade it")
-        if session_id is not None:
-            sessions = [(self.resolve(session_id),)]
-        else:
-            sessions = self._read("SELECT id FROM session ORDER BY started, rowid")
-        events = 0
-        for (sid,) in sessions:
-            uid = self._read("SELECT uid FROM session WHERE id = ?", (sid,))[0][0]
-            rows = self._read("SELECT seq, kind, format, time, data, prev_hash, hash FROM event "
-                              "WHERE session_id = ? ORDER BY seq", (sid,))
-            broken = check_chain(sid, uid, rows)
-            if broken is not None:
-                return Verified(len(sessions), events, broken, session_id and sid)
-            events += len(rows)
-        return Verified(len(sessions), events, None, session_id and sessions[0][0])
-
-    def sessions(self, status: str | None = None, pack_id: str | None = None,
-                 **unit: str | None) -> list[SessionInfo]:
-        """Sessions, newest first; ``status`` is ``open``, ``closed`` or None for all.
-
-        ``unit`` filters by the unit: ``serial`` (the same, ignoring case and
-        spaces at the ends), ``site``, ``machine``, ``axis`` (containing the
-        words, ignoring case), and ``since`` (started on or after an ISO date).
-        """
-        if status is not None and status not in STATUSES:
-            raise ValueError(f"status must be one of {STATUSES}, not {status!r}")
-        where, params = [], []
-        if status:
-            where.append("s.status = ?")
-            params.append(status)
-        if pack_id:
-            where.append("s.pack_id = ?")
-            params.append(pack_id)
-        for key, value in unit.items():
-            if value is None or not str(value).strip():
-                continue
-            if key not in (*UNIT_FIELDS, "since"):
-                raise ValueError(f"no filter {key!r}")
-            if key != "since" and key not in self._columns("session"):
-                return []  # a journal from before these fields: nothing to match
-            where.append({"serial": "lower(trim(s.serial)) = lower(trim(?))",
-                          "since": "substr(s.started, 1, 10) >= ?"}.get(
-                key, f"instr(lower(s.{key}), lower(trim(?))) > 0"))
-            params.append(str(value))
-        clause = f"WHERE {' AND '.join(where)}" if where else ""
-        return self._sessions(clause, tuple(params))
-
-    def _sessions(self, clause: str, params: tuple[Any, ...]) -> list[SessionInfo]:
-        have = self._columns("session")
-        unit = ", ".join(f"s.{k}" if k in have else "NULL"
-                         for k in (*UNIT_FIELDS, "origin", "uid"))
-        rows = self._read(
-            "SELECT s.id, s.pack_id, s.pack_version, s.content_hash, s.mode, s.who, s.started, "
-            "s.updated, s.status, s.outcome, s.cause, s.learned, "
-            "(SELECT count(*) FROM event e WHERE e.session_id = s.id), "
-            "(SELECT kind FROM event e WHERE e.session_id = s.id ORDER BY seq DESC LIMIT 1), "
-            f"{unit} FROM session s {clause} ORDER BY s.started DESC, s.rowid DESC", params)
-        return [SessionInfo(*r) for r in rows]
 
     def _columns(self, table: str) -> frozenset[str]:
         """The columns of ``table`` (a journal of an older schema, read only, has fewer)."""
@@ -924,49 +543,18 @@ class Journal:
             raise JournalError(f"cannot write the backup {dest}: {why}") from None
 
 
-def _ranking_problem(ranking: Any) -> str:
-    if ranking is None:
-        return ""
-    if not isinstance(ranking, list) or not all(
-            isinstance(r, dict) and _is_number(r.get("p", 0)) for r in ranking):
-        return "its ranking is not a list of causes with numbers"
-    return ""
 
 
-def _is_number(value: Any) -> bool:
-    return isinstance(value, (int, float)) and not isinstance(value, bool)
-
-
-def _damaged_event(path: Path, session_id: str, seq: Any, why: str) -> JournalError:
-    return JournalError(
-        f"the journal {path} is damaged: session {session_id}, event {seq}: {why} (altered by "
-        "hand?); it was left as it is. Restore a backup, or mend or delete that event")
-
-
-def _suspect_rows() -> str:
-    """An SQL condition, quick to test, for the event rows worth checking in Python.
-
-    It holds for text that is not a JSON object, a ranking that is not a
-    JSON list, and an event of a kind in ``EVENT_KEYS`` whose text does not
-    name one of its keys. It may hold for sound rows too (JSON with NaN or
-    Infinity, which the database's parser refuses): every row it picks is
-    checked again through the codec (``diagnose.events.decode``).
-    """
-    arms = ["WHEN typeof(kind) != 'text' OR typeof(time) != 'text' THEN 1",
-            "WHEN NOT json_valid(data) THEN 1",
-            "WHEN json_type(data) != 'object' THEN 1",
-            "WHEN ranking IS NOT NULL AND NOT json_valid(ranking) THEN 1",
-            "WHEN ranking IS NOT NULL AND json_type(ranking) != 'array' THEN 1",
-            "WHEN kind = 'reading' AND instr(data, '\"verdict\"') = 0 "
-            "AND instr(data, '\"weights\"') = 0 THEN 1",
-            "WHEN kind = 'undo' THEN 1"]  # few, and the index must be a whole number
-    for kind, keys in EVENT_KEYS.items():
-        absent = " OR ".join(f"instr(data, '\"{k}\"') = 0" for k in keys)
-        arms.append(f"WHEN kind = '{kind}' AND ({absent}) THEN 1")
-    return "CASE " + " ".join(arms) + " ELSE 0 END"
-
-
-_SUSPECT = _suspect_rows()
+# An SQL condition, quick to test, for the event rows worth checking in Python: text
+# that is not a JSON object, a ranking that is not a JSON list (the JSON functions of
+# SQLite), and what diagnose.journal.tables.suspect_condition adds for every store.
+_SUSPECT = suspect_condition(
+    ["typeof(kind) != 'text' OR typeof(time) != 'text'",
+     "NOT json_valid(data)",
+     "json_type(data) != 'object'",
+     "ranking IS NOT NULL AND NOT json_valid(ranking)",
+     "ranking IS NOT NULL AND json_type(ranking) != 'array'"],
+    lambda key: f"instr(data, '\"{key}\"') = 0")
 
 
 def _fill_unit_fields(conn: sqlite3.Connection) -> None:
@@ -983,117 +571,3 @@ def _fill_unit_fields(conn: sqlite3.Connection) -> None:
         if unit:
             conn.execute(f"UPDATE session SET {', '.join(f'{k} = ?' for k in unit)} "
                          "WHERE id = ?", (*unit.values(), sid))
-
-
-def end_fields(data: Mapping[str, Any]) -> tuple[str | None, str | None]:
-    """The outcome and cause an ``end`` event's data gives its session's row."""
-    outcome = data.get("result", data.get("outcome"))
-    cause = data.get("cause")
-    return (str(outcome) if outcome is not None else None,
-            str(cause) if cause is not None else None)
-
-
-def new_uid() -> str:
-    """A new UUID (version 4, RFC 9562) as text: lower case, with hyphens."""
-    return str(uuid.uuid4())
-
-
-def normal_uid(text: str) -> str:
-    """``text`` as a UUID in the journal's form (lower case, with hyphens).
-
-    Raises:
-        JournalError: it is not a UUID.
-
-    >>> normal_uid("0B7D4F0E7A0F4C399D1F5B2B2F0C1A10")
-    '0b7d4f0e-7a0f-4c39-9d1f-5b2b2f0c1a10'
-    """
-    try:
-        return str(uuid.UUID(str(text)))
-    except ValueError:
-        raise JournalError(f"{text!r} is not a UUID") from None
-
-
-#: The fewest hex digits of a UUID that a command takes for a session.
-MIN_PREFIX = 8
-
-
-def uid_prefix(ref: str) -> str:
-    """The hex digits of ``ref`` when it may be (the start of) a UUID, else "".
-
-    >>> uid_prefix("0b7d4f0e-7a0f"), uid_prefix("250114-1"), uid_prefix("0b7d4f0")
-    ('0b7d4f0e7a0f', '', '')
-    """
-    text = str(ref).strip().lower()
-    if not re.fullmatch(r"[0-9a-f-]+", text):
-        return ""
-    digits = text.replace("-", "")
-    return digits if MIN_PREFIX <= len(digits) <= 32 else ""
-
-
-def ambiguous(ref: str, ids: list[str]) -> str:
-    """The message for a UUID prefix that fits several sessions."""
-    more = ", ..." if len(ids) > 2 else ""
-    return (f"the id {ref} fits several sessions ({', '.join(ids[:2])}{more}); "
-            "give more of its UUID, or the short id")
-
-
-def decode_row(where: Any, session_id: str, row: tuple[Any, ...]) -> tuple[Event, Any]:
-    """The event and ranking of a stored row ``(seq, kind, data, time, ranking, format)``.
-
-    Raises:
-        JournalError: the row is damaged (named by session and event number in the
-            journal ``where``) or of a newer format.
-    """
-    seq, kind, text, when, ranked, fmt = row
-    try:
-        data = json.loads(text) if isinstance(text, (str, bytes)) else None
-        ranking = None if ranked is None else json.loads(ranked)
-    except ValueError as exc:
-        raise _damaged_event(where, session_id, seq, f"not JSON: {exc}") from None
-    why = _ranking_problem(ranking)
-    if why:
-        raise _damaged_event(where, session_id, seq, why)
-    try:
-        return decode(Row(kind, data, when, fmt)), ranking
-    except EventError as exc:
-        raise _damaged_event(where, session_id, seq, str(exc)) from None
-
-
-def _fill_session_uids(conn: sqlite3.Connection) -> None:
-    """Give every session of a migrated journal a UUID (schema 4)."""
-    for (sid,) in conn.execute("SELECT id FROM session WHERE uid IS NULL").fetchall():
-        conn.execute("UPDATE session SET uid = ? WHERE id = ?", (new_uid(), sid))
-
-
-def chained_rows(rows: list[tuple[Any, ...]], uids: Mapping[str, str]) -> list[tuple[Any, ...]]:
-    """The events of a journal before schema 4 with a UUID and their chain (for a migration).
-
-    ``rows`` are ``(session_id, seq, kind, time, data, ranking, format)`` ordered by
-    session and seq; ``uids`` the sessions' UUIDs. Returns ``(session_id, seq, uid,
-    kind, time, data, ranking, format, prev_hash, hash)``. Data that is not JSON (a
-    row damaged before) is hashed as its text, and so is named by ``verify``.
-    """
-    out: list[tuple[Any, ...]] = []
-    prev: dict[str, str] = {}
-    for sid, seq, kind, when, text, ranked, fmt in rows:
-        try:
-            data = json.loads(text)
-        except (TypeError, ValueError):
-            data = str(text)
-        fmt = int(fmt) if isinstance(fmt, int) else 1
-        before = prev.get(sid)
-        digest = event_hash(uids.get(sid) or "", seq, str(kind), fmt=fmt, time=str(when),
-                            data=data, prev=before)
-        out.append((sid, seq, new_uid(), kind, when, text, ranked, fmt, before, digest))
-        prev[sid] = digest
-    return out
-
-
-def _copy_chained(conn: sqlite3.Connection) -> None:
-    """Copy the events into the schema 4 table with their UUIDs and chain."""
-    uids = dict(conn.execute("SELECT id, uid FROM session").fetchall())
-    rows = conn.execute("SELECT session_id, seq, kind, time, data, ranking, format FROM event "
-                        "ORDER BY session_id, seq").fetchall()
-    conn.executemany("INSERT INTO event4 (session_id, seq, uid, kind, time, data, ranking, "
-                     "format, prev_hash, hash) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-                     chained_rows(rows, uids))

@@ -1,8 +1,10 @@
 """One session carried from one journal to another: a phone call handed to a site visit.
 
-``diagnose export ID`` writes a session as one JSON file: its metadata, every
-event as the journal stores it (kind, data, time, format), the ranking kept
-beside each, and the attached files. ``diagnose import FILE`` reads it into
+``diagnose export ID`` writes a session as one JSON file: its metadata (with
+its UUID), every event as the journal stores it (kind, data, time, format,
+and its UUID), the ranking kept beside each, and the attached files. The
+copy keeps the UUIDs, so its events have the same hashes and its chain is the
+same chain (``diagnose verify`` in the receiving journal). ``diagnose import FILE`` reads it into
 another journal. Importing is idempotent and resumable:
 
 * the session is known by its **origin**, a key made from what never
@@ -59,7 +61,7 @@ def export_session(journal: Any, session_id: str) -> dict[str, Any]:
 
     info = journal.session(session_id)  # the short id, the UUID or a prefix of it
     session_id = info.id
-    events = journal.load_events(session_id)
+    events = journal.load_events(session_id)  # checked: a damaged event is named, not carried
     rankings = journal.load_rankings(session_id)
     files = {}
     for e in events:
@@ -67,9 +69,14 @@ def export_session(journal: Any, session_id: str) -> dict[str, Any]:
             data = read(journal.path, e.sha256)
             if data is not None:
                 files[e.sha256] = base64.b64encode(data).decode("ascii")
+    # Each event as stored, with its UUID: the receiving journal then computes the same
+    # hashes, and the session's chain is the same there as here.
+    stored = journal.stored_events(session_id)
     return {"format": FORMAT, "version": VERSION, "origin": _origin_of(info),
             "session": info.to_dict(),
-            "events": [{**encode(e)._asdict(), "ranking": r} for e, r in zip(events, rankings)],
+            "events": [{"kind": kind, "data": json.loads(text), "time": when, "format": fmt,
+                        "ranking": r, "uid": uid}
+                       for (_seq, uid, kind, text, when, _r, fmt, _h), r in zip(stored, rankings)],
             "attachments": files}
 
 
@@ -141,7 +148,7 @@ def import_session(journal: Any, data: dict[str, Any]) -> Imported:
     info, rows = data["session"], data["events"]
     origin = str(data.get("origin") or origin_key(info["id"], info["started"],
                                                   info["content_hash"]))
-    here = _find(journal, origin)
+    here = _find(journal, origin) or _with_uid(journal, _uid(info.get("uid")))
     _keep_files(journal, data.get("attachments") or {})
     if here is None:
         sid = journal.new_session(info["pack_id"], info["pack_version"], info["content_hash"],
@@ -155,11 +162,19 @@ def import_session(journal: Any, data: dict[str, Any]) -> Imported:
 
 
 def _uid(value: Any) -> str | None:
-    """The session's UUID from the file, kept across journals (None: a file without one)."""
-    from diagnose.journal.store import normal_uid
+    """A UUID from the file, kept across journals (None: a file without one)."""
+    from diagnose.journal.tables import normal_uid
 
     try:
         return normal_uid(value) if value else None
+    except JournalError:
+        return None
+
+
+def _with_uid(journal: Any, uid: str | None) -> Any:
+    """The session here with the UUID ``uid`` (synced or imported before), or None."""
+    try:
+        return journal.session(uid) if uid else None
     except JournalError:
         return None
 
@@ -180,11 +195,14 @@ def _append(journal: Any, sid: str, rows: list[dict[str, Any]], local: list[Row]
         raise JournalError(f"session {sid} went on differently here than in the file; "
                            "nothing was imported (export it from here to carry it on)")
     for row, raw in zip(theirs[shared:], rows[shared:]):
-        journal.write(sid, decode(row), ranking=raw.get("ranking"))
+        # As it was stored, with its UUID when the file has one (an export of an older
+        # diagnose has none: the event gets a new one), so that the hash is the same.
+        journal.write(sid, row._asdict(), ranking=raw.get("ranking"), uid=_uid(raw.get("uid")))
     return Imported(sid, len(theirs) - shared, new=not local, renamed_from=renamed_from)
 
 
 def _same(row: Row) -> tuple[str, str, str]:
+    row = encode(decode(row))  # both sides as this diagnose writes them
     return row.kind, json.dumps(row.data, sort_keys=True), row.time
 
 

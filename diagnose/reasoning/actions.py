@@ -135,7 +135,10 @@ class Plan:
     ``check_eco`` is NaN for a check that cannot be proposed now, and, until
     :meth:`ecos` is called, for a check the decision rule could not choose
     (less information than ``Settings.min_bits``): the planner computes those
-    only when asked (``fill_eco`` fills them in, in place).
+    only when asked (``fill_eco`` fills them in, in place). The order of every
+    check and every repair is worked out once, when first asked for
+    (:meth:`check_order`, :meth:`repair_order`), with NumPy; the rows of
+    :meth:`checks` and :meth:`repairs` are made only for those asked for.
     """
 
     action: Action
@@ -172,34 +175,61 @@ class Plan:
             self.fill_eco()
         return self.check_eco
 
+    def check_order(self) -> np.ndarray:
+        """Every check's index in the order of :meth:`checks` (computed once per plan)."""
+        memo = self.__dict__.get("_check_order")
+        if memo is None:
+            eco = self.ecos()
+            live = self.check_code == 0
+            first = by_preference(np.flatnonzero(live), eco, self.check_bits,
+                                  self.check_minutes, self.check_ids)
+            memo = np.concatenate([np.array(first, dtype=np.intp), np.flatnonzero(~live)])
+            self.__dict__["_check_order"] = memo  # the scores are fixed: so is their order
+        return memo
+
+    def repair_order(self) -> np.ndarray:
+        """Every repair's index in the order of :meth:`repairs` (computed once per plan)."""
+        memo = self.__dict__.get("_repair_order")
+        if memo is None:
+            ratio = self.p_cure / self.repair_minutes
+            memo = np.lexsort((-ratio, self.repair_code != 0))
+            self.__dict__["_repair_order"] = memo
+        return memo
+
     def checks(self, limit: int | None = None) -> tuple[CheckScore, ...]:
-        """Checks, those that can be proposed first, by ECO (least first).
+        """Checks, those that can be proposed first, by ECO (least first); the first ``limit``.
 
         Ties go by the rule of :mod:`diagnose.reasoning.ties` (more bits, fewer
-        minutes, id); the others follow in the model's order.
+        minutes, id); the others follow in the model's order. Every check is
+        ordered; rows are made only for those asked for.
         """
-        eco = self.ecos()
-        live = self.check_code == 0
-        order = by_preference(np.flatnonzero(live), eco, self.check_bits, self.check_minutes,
-                              self.check_ids) + [int(i) for i in np.flatnonzero(~live)]
-        order = order[:limit]
-        out = []
-        for i in order:
-            code = int(self.check_code[i])
-            status = self.check_blocked.get(i, "") if code == CHECK_BLOCKED else CHECK_STATUS[code]
-            cid = self.check_ids[i]
-            out.append(CheckScore(cid, self.model.checks[cid].title, float(self.check_minutes[i]),
-                                  float(self.check_bits[i]),
-                                  None if code else float(self.check_eco[i]), status,
-                                  self.check_needs.get(i, ())))
-        return tuple(out)
+        return tuple(self._check_row(i) for i in self.check_order()[:limit].tolist())
+
+    def check_score(self, check_id: str) -> CheckScore:
+        """The row of one check, as :meth:`checks` has it.
+
+        Raises:
+            ValueError: not a check of the plan.
+        """
+        i = self.check_ids.index(check_id)
+        self.ecos()
+        return self._check_row(i)
+
+    def _check_row(self, i: int) -> CheckScore:
+        code = int(self.check_code[i])
+        status = self.check_blocked.get(i, "") if code == CHECK_BLOCKED else CHECK_STATUS[code]
+        cid = self.check_ids[i]
+        return CheckScore(cid, self.model.checks[cid].title, float(self.check_minutes[i]),
+                          float(self.check_bits[i]), None if code else float(self.check_eco[i]),
+                          status, self.check_needs.get(i, ()))
 
     def repairs(self, limit: int | None = None) -> tuple[RepairScore, ...]:
-        """Repairs, those that can be proposed first, by p/c (highest first)."""
-        ratio = self.p_cure / self.repair_minutes
-        order = np.lexsort((-ratio, self.repair_code != 0))[:limit]
+        """Repairs, those that can be proposed first, by p/c (highest first).
+
+        Every repair is ordered; rows are made only for the first ``limit``.
+        """
         out = []
-        for i in order:
+        for i in self.repair_order()[:limit].tolist():
             code = int(self.repair_code[i])
             status = (self.repair_blocked.get(i, "") if code == REPAIR_BLOCKED
                       else REPAIR_STATUS[code])
@@ -217,13 +247,23 @@ class Plan:
 
 @dataclass(frozen=True)
 class ChecksTable:
-    """Every check with its score now; available ones first, best ECO first."""
+    """Every check with its score now; available ones first, best ECO first.
+
+    ``rows`` may be the first of them only (as many as are shown); ``total``
+    counts them all (None: the rows are all of them).
+    """
 
     rows: tuple[CheckScore, ...]
     ecr: float
     mode: str = "site"
     shown: int = 30
     extra: dict[str, Any] = field(default_factory=dict)
+    total: int | None = None
+
+    @property
+    def count(self) -> int:
+        """How many checks there are, rows made or not."""
+        return len(self.rows) if self.total is None else self.total
 
     def to_list(self) -> list[dict[str, Any]]:
         return [r.to_dict() for r in self.rows]

@@ -14,7 +14,7 @@ carries no evidence.
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 
 MODES = ("site", "phone")
 
@@ -88,16 +88,23 @@ class Evidence:
         return any(c for _, c in self.repairs)
 
     # --- new values -------------------------------------------------------------------
+    def _but(self, **changes: object) -> Evidence:
+        """This value with ``changes``: ``dataclasses.replace`` without its cost per field
+        (the planner and the simulator make one per answer; no field is derived)."""
+        out = object.__new__(type(self))
+        out.__dict__.update(self.__dict__, **changes)
+        return out
+
     def with_complaint(self, complaint: str) -> Evidence:
         if complaint in self.complaints:
             return self
-        return replace(self, complaints=self.complaints + (complaint,))
+        return self._but(complaints=self.complaints + (complaint,))
 
     def with_finding(self, check: str, weights: Mapping[str, float]) -> Evidence:
         """The answer to ``check`` (a later answer replaces an earlier one)."""
         findings = dict(self.findings)
         findings[check] = dict(weights)
-        return replace(self, findings=findings, unsure=self.unsure - {check},
+        return self._but(findings=findings, unsure=self.unsure - {check},
                        skipped=self.skipped - {check}, steps=self.steps + (("check", check),))
 
     def with_outcome(self, check: str, outcome: str) -> Evidence:
@@ -105,14 +112,14 @@ class Evidence:
 
     def with_unsure(self, check: str) -> Evidence:
         findings = {k: v for k, v in self.findings.items() if k != check}
-        return replace(self, findings=findings, unsure=self.unsure | {check},
+        return self._but(findings=findings, unsure=self.unsure | {check},
                        skipped=self.skipped - {check}, steps=self.steps + (("check", check),))
 
     def with_skip(self, check: str) -> Evidence:
-        return replace(self, skipped=self.skipped | {check})
+        return self._but(skipped=self.skipped | {check})
 
     def with_repair(self, repair: str, cured: bool) -> Evidence:
-        return replace(self, repairs=self.repairs + ((repair, bool(cured)),),
+        return self._but(repairs=self.repairs + ((repair, bool(cured)),),
                        repairs_skipped=self.repairs_skipped - {repair},
                        steps=self.steps + (("repair", repair),),
                        pending_repair=None if self.pending_repair == repair
@@ -120,11 +127,11 @@ class Evidence:
 
     def with_state(self, var: str, value: str) -> Evidence:
         """The technician says the unit is now ``var = value`` (power restored, brake refitted)."""
-        return replace(self, steps=self.steps + (("state", f"{var}={value}"),))
+        return self._but(steps=self.steps + (("state", f"{var}={value}"),))
 
     def with_skipped_repair(self, repair: str) -> Evidence:
         """``repair`` cannot be done now: not proposed again."""
-        return replace(self, repairs_skipped=self.repairs_skipped | {repair},
+        return self._but(repairs_skipped=self.repairs_skipped | {repair},
                        pending_repair=None if self.pending_repair == repair
                        else self.pending_repair)
 
@@ -135,20 +142,20 @@ class Evidence:
         ``step``: how many steps were done when it was given (None: not recorded).
         """
         pairs = self.acknowledged_for | ({(item, caution)} if item else set())
-        return replace(self, acknowledged=self.acknowledged | {caution}, acknowledged_for=pairs,
+        return self._but(acknowledged=self.acknowledged | {caution}, acknowledged_for=pairs,
                        acks=self.acks + ((caution, item, step),))
 
     def with_nameplate(self, param: str, value: str, assumed: bool = False) -> Evidence:
         """``param`` is ``value``; ``assumed``: taken from a default, not read off the unit."""
         marked = self.assumed | {param} if assumed else self.assumed - {param}
-        return replace(self, nameplate={**self.nameplate, param: value}, assumed=marked)
+        return self._but(nameplate={**self.nameplate, param: value}, assumed=marked)
 
     def with_history(self, cause: str, factor: float) -> Evidence:
         """``cause`` was found on this unit recently: its prior odds × ``factor`` (1: none)."""
         history = {k: v for k, v in self.history.items() if k != cause}
         if factor != 1.0:
             history[cause] = float(factor)
-        return replace(self, history=history)
+        return self._but(history=history)
 
     def with_mode(self, mode: str) -> Evidence:
-        return replace(self, mode=mode)
+        return self._but(mode=mode)

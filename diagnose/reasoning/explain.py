@@ -198,7 +198,7 @@ def explain_check(model: Model, evidence: Evidence, check: str, *, max_faults: i
     if chk is None:
         raise InputError("check", f"unknown check {check!r}")
     pl = plan(model, evidence, max_faults=max_faults, settings=settings)
-    row = next(r for r in pl.checks() if r.id == check)
+    row = pl.check_score(check)
     post = posterior(model, evidence, max_faults=max_faults)
     tables = tables_for(model, max_faults, evidence)
     dense = tables.checks[check].dense(tables.n_hyp)

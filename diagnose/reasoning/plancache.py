@@ -58,7 +58,13 @@ from diagnose.reasoning.openworld import (
     supported_causes,
     unobservable_causes,
 )
-from diagnose.reasoning.posterior import Posterior, complaints_only, settle
+from diagnose.reasoning.posterior import (
+    Posterior,
+    complaints_only,
+    log_posterior,
+    log_posterior_after,
+    settle,
+)
 from diagnose.reasoning.repair_cost import assign_repairs
 from diagnose.reasoning.tables import Tables
 from diagnose.reasoning.unitstate import apply_step, unit_state
@@ -118,6 +124,7 @@ class PlanCache:
         self._baseline: dict[Any, np.ndarray] = {}
         self._indices: dict[frozenset[str], np.ndarray] = {}
         self._last: tuple[Evidence, Posterior] | None = None  # the last posterior and its evidence
+        self._logw: tuple[Evidence, np.ndarray] | None = None  # the last log weights, the same
 
     def posterior(self, model: Model, evidence: Evidence) -> Posterior:
         """The posterior, as :func:`~diagnose.reasoning.posterior.posterior` gives it.
@@ -163,8 +170,13 @@ class PlanCache:
                 _remember(self._baseline, key, found, self._per_hyp)
             return found
 
+        before = self._logw
+        logw = log_posterior(tables, evidence) if before is None else \
+            log_posterior_after(tables, evidence, *before)
+        logw.flags.writeable = False
+        self._logw = (evidence, logw)
         post = settle(tables, evidence, excluded, hidden=hidden, capped=capped,
-                      baseline=baseline)
+                      baseline=baseline, logw=logw)
         self._last = (evidence, post)
         return post
 

@@ -134,6 +134,28 @@ def log_posterior(tables: Tables, evidence: Evidence) -> np.ndarray:
     return out
 
 
+def log_posterior_after(tables: Tables, evidence: Evidence, before: Evidence,
+                        logw: np.ndarray) -> np.ndarray:
+    """:func:`log_posterior` of ``evidence``, from ``logw``, that of an earlier value ``before``.
+
+    When ``evidence`` is ``before`` with one more hard finding (its check not
+    answered before) and neither holds a repair or a history, one vector is
+    added to ``logw``: the additions of :func:`log_posterior` in the same
+    order, so the same numbers. Otherwise it is worked out afresh.
+    """
+    now, then = evidence.findings, before.findings
+    if (len(now) == len(then) + 1 and not evidence.repairs and not before.repairs
+            and not evidence.history and not before.history
+            and evidence.complaints == before.complaints):
+        items = list(now.items())
+        cid, weights = items[-1]
+        if len(weights) == 1 and cid not in then and items[:-1] == list(then.items()):
+            vec = tables.log_likelihood("finding", cid, next(iter(weights)))
+            if vec is not None:
+                return logw + vec
+    return log_posterior(tables, evidence)
+
+
 def _log_posterior(tables: Tables, evidence: Evidence) -> np.ndarray:
     """:func:`log_posterior` from the tables, filling the cache for hard evidence."""
     out = tables.log_prior.copy()
@@ -187,8 +209,20 @@ class Posterior:
         first = self.ranking(limit=1).entries[0]
         return first.cause, first.p
 
-    def ranking(self, limit: int | None = None) -> Ranking:
-        """Causes (and "unknown") from most to least likely."""
+    def ranking(self, limit: int | None = None, *, unknown: bool = False) -> Ranking:
+        """Causes (and "unknown") from most to least likely; the first ``limit`` of them.
+
+        ``unknown``: with a ``limit``, "unknown" ("none of the known causes")
+        follows the entries when it is not among them, as a view of the leading
+        causes shows it when it matters.
+        """
+        out = self._ranked(limit)
+        if unknown and limit is not None and all(e.cause != UNKNOWN_CAUSE for e in out.entries):
+            last = RankEntry(UNKNOWN_CAUSE, "None of the known causes", self.unknown)
+            out = replace(out, entries=out.entries + (last,))
+        return out
+
+    def _ranked(self, limit: int | None) -> Ranking:
         t = self.tables
         marg = self.causes()
         values = np.concatenate([marg, [self.unknown]])
@@ -251,7 +285,7 @@ def posterior(model: Model, evidence: Evidence, *, max_faults: int = 1,
 
 def settle(tables: Tables, evidence: Evidence, excluded: frozenset[str], *,
            hidden: Callable[[], frozenset[str]], capped: Callable[[frozenset[str]], np.ndarray],
-           baseline: Callable[[], np.ndarray]) -> Posterior:
+           baseline: Callable[[], np.ndarray], logw: np.ndarray | None = None) -> Posterior:
     """Bayes' rule in log space, the nameplate's ``excluded`` causes, then the open-world rule.
 
     The steps of :func:`posterior`, with what they need asked for only when it
@@ -259,8 +293,11 @@ def settle(tables: Tables, evidence: Evidence, excluded: frozenset[str], *,
     ``capped(causes)`` (the hypotheses within them) and ``baseline()`` (the
     posterior of the complaints alone); the planner's cache answers these from
     memos (``diagnose.reasoning.plancache``), :func:`posterior` works them out.
+    ``logw``: :func:`log_posterior` of ``evidence`` when the caller has it (it
+    is not changed).
     """
-    logw = log_posterior(tables, evidence)
+    if logw is None:
+        logw = log_posterior(tables, evidence)
     if excluded:
         logw = logw + tables.exclusion(excluded)
     p, bad = normalise(logw)

@@ -130,7 +130,10 @@ def caller_safe(model: Model, evidence: Evidence, item: Any) -> bool:
 
 
 def withheld_until(model: Model, evidence: Evidence, item: Any) -> dict[str, str]:
-    """The state the unit must be in before ``item`` (its applicable hazards' ``withhold_until``)."""
+    """The state the unit must be in before ``item``.
+
+    That is, its applicable hazards' ``withhold_until``.
+    """
     out: dict[str, str] = {}
     for hz in applicable_hazards(model, evidence, item):
         out.update(hz.withhold_until)

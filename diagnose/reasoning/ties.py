@@ -80,11 +80,43 @@ def by_preference(idx: np.ndarray, eco: np.ndarray, bits: np.ndarray, minutes: n
     Costs are grouped from the least up: a group holds the costs equal to
     its least; inside a group, bits are grouped from the most down the same
     way, then minutes and id decide.
+
+    (Thousands of checks: the costs are sorted at once and only the runs of
+    costs close enough to tie are grouped one by one; a group of more than
+    one check is ordered by the rule as written. The same order as grouping
+    every check in turn.)
     """
+    idx = np.asarray(idx, dtype=np.intp)
+    e = eco[idx]
+    if np.isnan(e).any():  # no order among NaNs: group them as they come
+        return _in_turn(idx.tolist(), eco, bits, minutes, ids)
+    ordered = idx[np.argsort(e, kind="stable")]  # as sorted(): equal costs keep idx's order
+    start = _starts(eco[ordered], 0.0)
+    if start.all():
+        return ordered.tolist()
+    out = ordered.tolist()
+    firsts = np.flatnonzero(start).tolist() + [len(out)]
+    for a, b in zip(firsts, firsts[1:]):
+        if b - a > 1:
+            out[a:b] = _inside(out[a:b], bits, minutes, ids)
+    return out
+
+
+def _in_turn(idx: list[int], eco: np.ndarray, bits: np.ndarray, minutes: np.ndarray,
+             ids: Sequence[str]) -> list[int]:
+    """:func:`by_preference` as the rule is written: every check grouped in turn."""
     out: list[int] = []
     for group in _groups(sorted(idx, key=lambda i: eco[i]), eco, 0.0):
-        for inner in _groups(sorted(group, key=lambda i: -bits[i]), bits, BITS_ATOL):
-            out += sorted(inner, key=lambda i: (minutes[i], ids[i]))
+        out += _inside(group, bits, minutes, ids)
+    return out
+
+
+def _inside(group: list[int], bits: np.ndarray, minutes: np.ndarray,
+            ids: Sequence[str]) -> list[int]:
+    """A group of equal costs in order: bits grouped from the most down, then minutes, id."""
+    out: list[int] = []
+    for inner in _groups(sorted(group, key=lambda i: -bits[i]), bits, BITS_ATOL):
+        out += sorted(inner, key=lambda i: (minutes[i], ids[i]))
     return out
 
 
@@ -97,3 +129,26 @@ def _groups(ordered: list[int], values: np.ndarray, atol: float) -> list[list[in
         else:
             out.append([i])
     return out
+
+
+def _starts(v: np.ndarray, atol: float) -> np.ndarray:
+    """Where a group of :func:`_groups` starts in ``v`` (sorted, least first; no NaN).
+
+    A value that joins its predecessor's group is within the tolerance of the
+    group's first value, so it is within it of its predecessor too (four
+    times the tolerance is ample for the rounding): only those neighbours are
+    tested, in turn, against the first value of their group.
+    """
+    start = np.ones(len(v), dtype=bool)
+    if len(v) < 2:
+        return start
+    with np.errstate(invalid="ignore"):  # inf - inf: NaN, never near
+        scale = np.maximum(np.abs(v[1:]), np.abs(v[:-1]))
+        near = np.abs(v[1:] - v[:-1]) <= 4.0 * (TIE_RTOL * scale + atol)
+    anchor = 0.0
+    for j in np.flatnonzero(near).tolist():  # from position j to j + 1
+        if start[j]:
+            anchor = float(v[j])
+        if bool(_same(anchor, np.asarray(v[j + 1]), atol)):
+            start[j + 1] = False
+    return start

@@ -131,9 +131,13 @@ class Shell:
             note = session_note(self.session)
             if note:
                 self.warn(note)
-            if self.session.events and self.session.events[-1].kind == "reopen":
+            last = self.session.events[-1].kind if self.session.events else ""
+            if last in ("reopen", "handover"):  # another person goes on: the notice is theirs
+                self.console.print(NoticeView(self.session.notice or FALLBACK_NOTICE))
+            if last == "reopen":
                 self.say("The phone diagnosis ended with a site visit: it goes on here, on "
-                         "site, with the caller's answers kept.", style="bold")
+                         "site, with the caller's answers kept. Every caution is "
+                         "acknowledged afresh on site.", style="bold")
         else:
             if not self.notice_shown:
                 self.console.print(NoticeView(self.session.notice or FALLBACK_NOTICE))
@@ -536,7 +540,8 @@ class Shell:
         return False
 
     def ranking_view(self, top: int = 5) -> RankingView:
-        return RankingView.of(self.session.ranking(), top=top)
+        """The leading causes as the shell shows them (only those are ranked)."""
+        return RankingView.of(self.session.ranking(limit=RankingView.entries_for(top)), top=top)
 
     def cautions(self, ids: Sequence[str], reminded: Sequence[str] = ()
                  ) -> tuple[CautionView, ...]:
@@ -960,18 +965,29 @@ class Shell:
                 return choices[int(low) - 1]
             if low in self.model.causes or low == "unknown":
                 return low
+            if len(low.split()) >= 3:  # what was found, in words: kept for the log
+                s.note(f"Finding: {text.strip()}")
+                self.say("  kept as a note for the repair log; now the cause it was "
+                         f"(1 to {len(choices)}, a cause id, unknown; Enter: {title})",
+                         style="dim")
+                return noted
             raise InputError("finding", f"a number 1 to {len(choices)}, a cause id, or "
-                                        "unknown (none of the known causes)")
+                                        "unknown (none of the known causes); a sentence is "
+                                        "kept as a note")
 
+        noted = object()
         title = self.model.causes[top].title if top in self.model.causes else top
-        return self.ask(f"What did you find? [{title}]: ", parse,
-                        answers=tuple((c, self.model.causes[c].title) for c in choices)
-                        + (("unknown", "none of the known causes"),))
+        while True:
+            found = self.ask(f"What did you find? [{title}]: ", parse,
+                             answers=tuple((c, self.model.causes[c].title) for c in choices)
+                             + (("unknown", "none of the known causes"),))
+            if found is not noted:
+                return found
 
     def end_view(self, action: Action) -> EndView:
         s = self.session
         ev = s.evidence
-        top = s.ranking().top
+        top = s.ranking(limit=1).top
         title = self.model.causes[top.cause].title if top.cause in self.model.causes else top.title
         phone = s.mode == "phone"
         if action.kind == "done" and ev.cured:
@@ -992,7 +1008,9 @@ class Shell:
             head = ("Recommendation: a site visit with an application engineer; none of the "
                     "known causes fits." if phone else "None of the known causes fits: escalate "
                     "to an application engineer or the manufacturer.")
-            known = next((e for e in s.ranking().entries if e.cause in self.model.causes), None)
+            # of the two leading entries, one at least is a known cause (when any is left)
+            known = next((e for e in s.ranking(limit=2).entries if e.cause in self.model.causes),
+                         None)
             ruled, total = s.ruled_out()
             lines = [_sentence(action.reason)]
             if total:
@@ -1046,7 +1064,7 @@ class Shell:
         cause, share = "-", ""
         try:
             if s.evidence.complaints:
-                top = s.ranking().top
+                top = s.ranking(limit=1).top
                 cause, share = top.title or top.cause, f" {percent(top.p)}"
         except Exception:  # noqa: BLE001 - drawn on every key, it must never fail
             cause, share = "-", ""

@@ -168,9 +168,10 @@ def checks(shell: Shell, arg: str) -> None:
     first; the lowest is proposed when it beats repairing now, the ECR in the
     heading) and why a check is not offered. `help why` says more.
     """
+    from diagnose.reasoning.actions import ChecksTable
     from diagnose.views_reasoning import ChecksTableView
 
-    shell.console.print(ChecksTableView(shell.session.checks_table()))
+    shell.console.print(ChecksTableView(shell.session.checks_table(limit=ChecksTable.shown)))
 
 
 @command("do CHECK", choices=_checks_offered)
