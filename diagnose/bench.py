@@ -350,7 +350,7 @@ def pgmpy_new_evidence(model: Model, sessions: list[tuple[str, list[tuple[str, s
 
 
 def simulate_side_by_side(pack: str = "spring-applied-brake", *, runs: int = 300, seed: int = 1,
-                          noise: float = 0.05, unknown_rate: float = 0.1) -> dict[str, Any]:
+                          noise: float = 0.05, unknown_rate: float = 0.0) -> dict[str, Any]:
     """Seconds of the simulator with the planner and with its reference, on the same draws.
 
     ``identical``: every run went the same way (checks and repairs in order, minutes, cure).
