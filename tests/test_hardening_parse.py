@@ -25,6 +25,7 @@ import yaml
 from hostile import WALL_SECONDS, diagnose, one_line_error
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from packdata import units_in_use
 
 from diagnose.commands.run import read_answers
 from diagnose.errors import DiagnoseError, InputError
@@ -32,7 +33,6 @@ from diagnose.kb.locate import scan
 from diagnose.kb.yamlpos import read_text, read_yaml
 from diagnose.physics import units
 from diagnose.physics.inputs import MAX_READINGS, split_readings
-from diagnose.physics.registry import EVALUATORS
 
 ROOT = Path(__file__).parent.parent
 MINI = ROOT / "tests" / "fixtures" / "mini"
@@ -217,25 +217,7 @@ def test_read_text_refuses_a_file_over_its_limit(tmp_path):
 
 def _units_in_use() -> set[str]:
     """Every unit the registry and the shipped and test packs name, and their default values."""
-    found = {unit for unit, _, _ in units._KINDS}
-    for spec in EVALUATORS.values():
-        for inp in spec.inputs:
-            found.add(inp.unit)
-            if isinstance(inp.default, str) and inp.kind == "quantity":
-                found.add(units.unit_of(inp.default) or "")
-    for path in [*SHIPPED.glob("*/*.yaml"), *MINI.glob("*.yaml")]:
-        data = yaml.safe_load(path.read_text(encoding="utf-8")) or {}
-        for section in data.values() if isinstance(data, dict) else ():
-            for item in section if isinstance(section, list) else ():
-                if isinstance(item, dict):
-                    measurement = item.get("measurement")
-                    for holder in (item, measurement if isinstance(measurement, dict) else {}):
-                        if isinstance(holder.get("unit"), str):
-                            found.add(holder["unit"])
-                    default = item.get("default")
-                    if isinstance(default, str) and units.unit_of(default):
-                        found.add(units.unit_of(default) or "")
-    return found
+    return units_in_use([*SHIPPED.glob("*/*.yaml"), *MINI.glob("*.yaml")])
 
 
 @pytest.mark.parametrize("unit", sorted(_units_in_use()))

@@ -8,6 +8,7 @@ from pathlib import Path
 import yaml
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from packdata import places
 
 from diagnose.kb.compiler import compile_sources
 from diagnose.kb.loader import PackSource
@@ -17,17 +18,7 @@ MINI = Path(__file__).parent / "fixtures" / "mini"
 DOCS = {f.name: yaml.safe_load(f.read_text()) for f in sorted(MINI.glob("*.yaml"))}
 
 
-def _paths(value, at=()):
-    yield at
-    if isinstance(value, dict):
-        for k, v in value.items():
-            yield from _paths(v, at + (k,))
-    elif isinstance(value, list):
-        for i, v in enumerate(value):
-            yield from _paths(v, at + (i,))
-
-
-PLACES = [(name, p) for name, data in DOCS.items() for p in _paths(data) if p]
+PLACES = [(name, p) for name, data in DOCS.items() for p in places(data) if p]
 JUNK = st.sampled_from(["ten", "", -1, 0, 1e308, [], {}, None, True, [{"x": 1}], {"a": [1]},
                         "$nope", "0.5 kg", ["a", "b"]])
 

@@ -16,6 +16,7 @@ import pytest
 import yaml
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from packdata import places
 
 from diagnose.kb.schema import pack_schema
 from diagnose.kb.schemacheck import Unsure, compile_schema, is_valid
@@ -56,17 +57,7 @@ def test_the_shipped_packs_are_valid_by_the_fast_check():
     assert shipped and all(is_valid(CHECK, DOCS[n]) is True for n in shipped)
 
 
-def _paths(value, at=()):
-    yield at
-    if isinstance(value, dict):
-        for k, v in value.items():
-            yield from _paths(v, at + (k,))
-    elif isinstance(value, list):
-        for i, v in enumerate(value):
-            yield from _paths(v, at + (i,))
-
-
-PLACES = [(name, p) for name, data in DOCS.items() for p in _paths(data) if p]
+PLACES = [(name, p) for name, data in DOCS.items() for p in places(data) if p]
 JUNK = st.sampled_from(["ten", "", "Coil Open", "a b", -1, 0, 0.5, 1, 1.0, 2, 1e308, -0.0,
                         [], {}, None, True, False, [{"x": 1}], {"a": [1]}, ["a", "a"],
                         ["a", "b"], [1, True], "DANGER", "$nope", {"id": "x"}])

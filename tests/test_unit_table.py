@@ -15,10 +15,9 @@ import sys
 from pathlib import Path
 
 import pytest
-import yaml
+from packdata import units_in_use
 
 from diagnose.physics import units
-from diagnose.physics.registry import EVALUATORS
 
 ROOT = Path(__file__).parent.parent
 PACKS = [*(ROOT / "knowledge").glob("*/*.yaml"), *(ROOT / "tests" / "fixtures").rglob("*.yaml")]
@@ -35,32 +34,8 @@ def ureg():
 
 
 def _units_in_use() -> set[str]:
-    """Every unit the calculators and the shipped and test packs name, and their defaults' units."""
-    found = {unit for unit, _, _ in units._KINDS}
-    for spec in EVALUATORS.values():
-        for inp in spec.inputs:
-            found.add(inp.unit)
-            if isinstance(inp.default, str) and inp.kind == "quantity":
-                found.add(units.unit_of(inp.default) or "")
-    for path in PACKS:
-        try:
-            data = yaml.safe_load(path.read_text(encoding="utf-8"))
-        except yaml.YAMLError:  # a fixture broken on purpose
-            continue
-        stack = [data]
-        while stack:
-            item = stack.pop()
-            if isinstance(item, dict):
-                for key, value in item.items():
-                    if key == "unit" and isinstance(value, str):
-                        found.add(value)
-                    elif key == "default" and isinstance(value, str) and units.unit_of(value):
-                        found.add(units.unit_of(value) or "")
-                    else:
-                        stack.append(value)
-            elif isinstance(item, list):
-                stack.extend(item)
-    return found
+    """Every unit the calculators and the shipped and test packs name."""
+    return units_in_use(PACKS)
 
 
 #: Spellings technicians type (as in tests/test_physics_units.py) and compound units.

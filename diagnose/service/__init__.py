@@ -116,6 +116,23 @@ def preferred_answer(check: Any, text: Any, units: str) -> Any:
     return preferred_reading(text, m.unit, units)
 
 
+def named_reading(check: Any, name: str, text: str, units: str) -> str:
+    """One named reading of ``check`` as typed, checked in its own unit before the next is
+    asked: a bare number in the preferred ``units`` (as :func:`preferred_answer`).
+
+    Raises:
+        InputError: not a reading of ``name``'s kind (a voltage where a length is read).
+    """
+    from diagnose.physics import units as u
+
+    unit = next(r.unit for r in check.measurement.readings if r.name == name)
+    typed = u.preferred_reading(text, unit, units)
+    if not u.is_open(typed):
+        u.parse_quantity(typed if u.unit_of(typed) else f"{typed} {unit}", unit, name,
+                         negative=True)
+    return typed
+
+
 # --- packs -----------------------------------------------------------------------------------
 
 

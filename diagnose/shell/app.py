@@ -746,16 +746,15 @@ class Shell:
         an outcome by name, unsure or skip; a later one takes a reading, or
         unsure or skip for the whole check.
         """
-        from diagnose.physics import units as u
         from diagnose.physics.units import bare_unit
-        from diagnose.service import preferred_answer
+        from diagnose.service import named_reading, preferred_answer
 
         m = chk.measurement
         assert m is not None
         got: dict[str, str] = {}
         done = object()
 
-        def one(name: str, unit: str, last: bool) -> Callable[[str], Any]:
+        def one(name: str, last: bool) -> Callable[[str], Any]:
             def take(text: str) -> Any:
                 low = text.lower()
                 if low in ("skip", "unsure") or "=" in text or not _READING.match(text):
@@ -763,11 +762,7 @@ class Shell:
                         raise InputError(chk.id, f"type the {name} reading alone, or unsure "
                                                  "or skip")
                     return parse(text)
-                typed = u.preferred_reading(text, unit, self.units)
-                if not u.is_open(typed):
-                    u.parse_quantity(typed if u.unit_of(typed) else f"{typed} {unit}", unit,
-                                     name, negative=True)
-                got[name] = typed
+                got[name] = named_reading(chk, name, text, self.units)
                 if not last:
                     return done
                 return self.session.answer(chk.id, preferred_answer(chk, dict(got), "metric"))
@@ -778,7 +773,7 @@ class Shell:
             about = f" ({r.ask})" if r.ask else ""
             msg = (f"Reading {i + 1} of {len(m.readings)}: {r.name}{about}, in "
                    f"{unit_text(bare)} if no unit is given; unsure or skip: ")
-            result = self.ask(msg, one(r.name, r.unit, i == len(m.readings) - 1),
+            result = self.ask(msg, one(r.name, i == len(m.readings) - 1),
                               answers=answers if i == 0 else answers[-2:],
                               empty=f"type the {r.name} reading, unsure or skip")
             if result is not done:
